@@ -1,0 +1,360 @@
+//! Events raised by the monitor and the bounded queue that holds them.
+//!
+//! # Invariants
+//! - The queue never allocates and never drops an event silently: when it is full, the
+//!   newest event is discarded and [`EventQueue::dropped`] counts it.
+//! - Every event names the sample (`seq`) that raised it.
+
+use heapless::Deque;
+use serde::{Deserialize, Serialize};
+
+use crate::real::Real;
+use crate::transform::Rung;
+
+/// How serious a raised condition is.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+pub enum Severity {
+    /// Worth knowing; no action needed.
+    Info,
+    /// Look at it soon.
+    Warn,
+    /// The calibration or the sensor cannot be trusted as it is.
+    Alarm,
+}
+
+impl Severity {
+    /// Name as written in event logs and configs.
+    pub const fn name(self) -> &'static str {
+        match self {
+            Severity::Info => "info",
+            Severity::Warn => "warn",
+            Severity::Alarm => "alarm",
+        }
+    }
+
+    /// Parses a name written by [`Severity::name`].
+    pub fn from_name(name: &str) -> Option<Severity> {
+        [Severity::Info, Severity::Warn, Severity::Alarm].into_iter().find(|s| s.name() == name)
+    }
+}
+
+/// Why the screen refused a sample.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
+pub enum RejectReason {
+    /// The raw value is NaN or infinite.
+    NonFiniteRaw,
+    /// The reference value is NaN or infinite.
+    NonFiniteReference,
+    /// The temperature is NaN or infinite.
+    NonFiniteTemperature,
+    /// The value (or its prediction) is at or below the level origin while a power rung is
+    /// active.
+    BelowOrigin,
+    /// The raw value is outside the configured physical range.
+    OutOfRange,
+    /// The standardized residual is beyond the spike bound.
+    Spike,
+}
+
+impl RejectReason {
+    /// Name as written in event logs.
+    pub const fn name(self) -> &'static str {
+        match self {
+            RejectReason::NonFiniteRaw => "non_finite_raw",
+            RejectReason::NonFiniteReference => "non_finite_reference",
+            RejectReason::NonFiniteTemperature => "non_finite_temperature",
+            RejectReason::BelowOrigin => "below_origin",
+            RejectReason::OutOfRange => "out_of_range",
+            RejectReason::Spike => "spike",
+        }
+    }
+}
+
+/// Which alarm a `cleared` event refers to.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+pub enum AlarmKind {
+    /// Sustained bias of the residuals (CUSUM).
+    BiasShift,
+    /// Gain moved beyond tolerance from the baseline.
+    GainDrift,
+    /// Offset moved beyond tolerance from the baseline.
+    OffsetDrift,
+    /// Scatter grew at all levels.
+    SpreadJump,
+    /// The signal is stuck.
+    SignalStuck,
+    /// The signal is outside its physical range.
+    SignalOutOfRange,
+    /// No reference check for too long.
+    ReferenceGap,
+    /// The scatter tracks the level.
+    SpreadTracksLevel,
+    /// The mean of the active calibration is not adequate.
+    MeanMisfit,
+}
+
+impl AlarmKind {
+    /// Number of alarm kinds.
+    pub const COUNT: usize = 9;
+
+    /// All alarm kinds, in [`AlarmKind::index`] order.
+    pub const ALL: [AlarmKind; AlarmKind::COUNT] = [
+        AlarmKind::BiasShift,
+        AlarmKind::GainDrift,
+        AlarmKind::OffsetDrift,
+        AlarmKind::SpreadJump,
+        AlarmKind::SignalStuck,
+        AlarmKind::SignalOutOfRange,
+        AlarmKind::ReferenceGap,
+        AlarmKind::SpreadTracksLevel,
+        AlarmKind::MeanMisfit,
+    ];
+
+    /// Position in [`AlarmKind::ALL`].
+    pub const fn index(self) -> usize {
+        self as usize
+    }
+
+    /// Name, the same as the event kind that raises it.
+    pub const fn name(self) -> &'static str {
+        match self {
+            AlarmKind::BiasShift => "bias_shift",
+            AlarmKind::GainDrift => "gain_drift",
+            AlarmKind::OffsetDrift => "offset_drift",
+            AlarmKind::SpreadJump => "spread_jump",
+            AlarmKind::SignalStuck => "signal_stuck",
+            AlarmKind::SignalOutOfRange => "signal_out_of_range",
+            AlarmKind::ReferenceGap => "reference_gap",
+            AlarmKind::SpreadTracksLevel => "spread_tracks_level",
+            AlarmKind::MeanMisfit => "mean_misfit",
+        }
+    }
+}
+
+/// Direction of a bias shift.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
+pub enum Direction {
+    /// The sensor reads high against the reference.
+    Up,
+    /// The sensor reads low against the reference.
+    Down,
+}
+
+impl Direction {
+    /// Name as written in event logs.
+    pub const fn name(self) -> &'static str {
+        match self {
+            Direction::Up => "up",
+            Direction::Down => "down",
+        }
+    }
+}
+
+/// What happened.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub enum EventKind<R> {
+    /// The scatter grows (or shrinks) with the level: SD ∝ level^k, k with its 95 % interval.
+    SpreadTracksLevel {
+        /// Estimated exponent.
+        k: R,
+        /// Lower end of the interval.
+        k_low: R,
+        /// Upper end of the interval.
+        k_high: R,
+    },
+    /// The active calibration moved to another rung.
+    TransformChanged {
+        /// Previous rung.
+        from: Rung,
+        /// New rung.
+        to: Rung,
+        /// Profile log-likelihood gain of `to` over `from` at the switch.
+        gain: R,
+    },
+    /// After a switch, the residual means by level are not zero: the calibration mean is
+    /// wrong, not only the scatter model.
+    MeanMisfit {
+        /// The active rung.
+        rung: Rung,
+        /// Lack-of-fit statistic (χ² with `dof` degrees of freedom).
+        statistic: R,
+        /// Degrees of freedom of `statistic`.
+        dof: u8,
+        /// A quadratic term would probably help.
+        suggest_quadratic: bool,
+        /// A temperature term would probably help.
+        suggest_temperature: bool,
+    },
+    /// The screen refused a sample.
+    SampleRejected {
+        /// Why.
+        reason: RejectReason,
+    },
+    /// CUSUM of standardized residuals crossed its decision interval.
+    BiasShift {
+        /// Which way the sensor moved.
+        direction: Direction,
+        /// Estimated size of the shift, in standardized units.
+        size: R,
+        /// Severity.
+        severity: Severity,
+    },
+    /// The gain moved beyond tolerance (and significantly) from the baseline.
+    GainDrift {
+        /// Relative change of the gain (fraction, 0.01 = 1 %).
+        change: R,
+        /// Standard uncertainty of `change`.
+        uncertainty: R,
+        /// Severity.
+        severity: Severity,
+    },
+    /// The offset moved beyond tolerance (and significantly) from the baseline.
+    OffsetDrift {
+        /// Change of the offset, in raw units.
+        change: R,
+        /// Standard uncertainty of `change`.
+        uncertainty: R,
+        /// Severity.
+        severity: Severity,
+    },
+    /// The scatter grew at all levels.
+    SpreadJump {
+        /// Ratio of the new to the old scatter (SD).
+        ratio: R,
+        /// Severity.
+        severity: Severity,
+    },
+    /// The signal is stuck.
+    SignalStuck {
+        /// Length of the run of identical values.
+        run: u32,
+        /// Severity.
+        severity: Severity,
+    },
+    /// The raw value is outside the configured physical range.
+    SignalOutOfRange {
+        /// The value.
+        raw: R,
+        /// Severity.
+        severity: Severity,
+    },
+    /// No reference check for too long: the calibration is unverified.
+    ReferenceGap {
+        /// Seconds since the last check.
+        seconds: f64,
+        /// Severity.
+        severity: Severity,
+    },
+    /// A raised condition is no longer present.
+    Cleared {
+        /// What cleared.
+        alarm: AlarmKind,
+    },
+}
+
+impl<R: Real> EventKind<R> {
+    /// The event's name as written in event logs.
+    pub const fn name(&self) -> &'static str {
+        match self {
+            EventKind::SpreadTracksLevel { .. } => "spread_tracks_level",
+            EventKind::TransformChanged { .. } => "transform_changed",
+            EventKind::MeanMisfit { .. } => "mean_misfit",
+            EventKind::SampleRejected { .. } => "sample_rejected",
+            EventKind::BiasShift { .. } => "bias_shift",
+            EventKind::GainDrift { .. } => "gain_drift",
+            EventKind::OffsetDrift { .. } => "offset_drift",
+            EventKind::SpreadJump { .. } => "spread_jump",
+            EventKind::SignalStuck { .. } => "signal_stuck",
+            EventKind::SignalOutOfRange { .. } => "signal_out_of_range",
+            EventKind::ReferenceGap { .. } => "reference_gap",
+            EventKind::Cleared { .. } => "cleared",
+        }
+    }
+
+    /// All event names, for counting tables.
+    pub const NAMES: [&'static str; 12] = [
+        "spread_tracks_level",
+        "transform_changed",
+        "mean_misfit",
+        "sample_rejected",
+        "bias_shift",
+        "gain_drift",
+        "offset_drift",
+        "spread_jump",
+        "signal_stuck",
+        "signal_out_of_range",
+        "reference_gap",
+        "cleared",
+    ];
+}
+
+/// One event: what happened, and at which sample.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Event<R> {
+    /// Sequence number of the sample that raised it.
+    pub seq: u64,
+    /// What happened.
+    pub kind: EventKind<R>,
+}
+
+/// A bounded first-in first-out queue of events with a count of the ones it had to drop.
+///
+/// ```
+/// use steadycal_core::event::{Event, EventKind, EventQueue, RejectReason};
+/// let mut queue: EventQueue<f32, 2> = EventQueue::new();
+/// let event = Event { seq: 1, kind: EventKind::SampleRejected { reason: RejectReason::Spike } };
+/// assert!(queue.push(event));
+/// assert!(queue.push(event));
+/// assert!(!queue.push(event)); // full: dropped and counted
+/// assert_eq!(queue.dropped(), 1);
+/// assert_eq!(queue.pop(), Some(event));
+/// ```
+#[derive(Clone, Debug, Serialize, Deserialize)]
+pub struct EventQueue<R, const Q: usize> {
+    events: Deque<Event<R>, Q>,
+    dropped: u32,
+}
+
+impl<R: Real, const Q: usize> Default for EventQueue<R, Q> {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl<R: Real, const Q: usize> EventQueue<R, Q> {
+    /// An empty queue.
+    pub const fn new() -> Self {
+        EventQueue { events: Deque::new(), dropped: 0 }
+    }
+
+    /// Appends an event; returns `false` (and counts the drop) when the queue is full.
+    pub fn push(&mut self, event: Event<R>) -> bool {
+        match self.events.push_back(event) {
+            Ok(()) => true,
+            Err(_) => {
+                self.dropped = self.dropped.saturating_add(1);
+                false
+            }
+        }
+    }
+
+    /// Takes the oldest event.
+    pub fn pop(&mut self) -> Option<Event<R>> {
+        self.events.pop_front()
+    }
+
+    /// Events waiting.
+    pub fn len(&self) -> usize {
+        self.events.len()
+    }
+
+    /// True when no event is waiting.
+    pub fn is_empty(&self) -> bool {
+        self.events.is_empty()
+    }
+
+    /// Events dropped so far because the queue was full.
+    pub fn dropped(&self) -> u32 {
+        self.dropped
+    }
+}

@@ -1,0 +1,126 @@
+//! What goes into the monitor ([`Sample`]) and what comes out of one push ([`Outcome`]).
+//!
+//! # Invariants
+//! - A `Sample` may carry any value, NaN and ±∞ included; the monitor screens it.
+//! - An [`Outcome`] with a [`Reading`] always has finite value and uncertainties.
+
+use serde::{Deserialize, Serialize};
+
+use crate::real::Real;
+use crate::transform::Rung;
+
+/// One sample of one channel.
+///
+/// ```
+/// use steadycal_core::sample::Sample;
+/// let check = Sample::check(7, 70.0, 101.3f32, 100.0);
+/// assert!(check.reference.is_some());
+/// let reading = Sample::reading(8, 80.0, 55.1f32);
+/// assert!(reading.reference.is_none());
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Sample<R> {
+    /// Sequence number (0-based data-row index in a feed).
+    pub seq: u64,
+    /// Time in seconds (any epoch; `f64` on every target so long runs keep their resolution).
+    pub t: f64,
+    /// The sensor's raw output.
+    pub raw: R,
+    /// The reference value, when this sample is a check against a reference.
+    pub reference: Option<R>,
+    /// Temperature, when the channel measures it.
+    pub temperature: Option<R>,
+}
+
+impl<R: Real> Sample<R> {
+    /// A sample with a reference value (a check).
+    pub fn check(seq: u64, t: f64, raw: R, reference: R) -> Self {
+        Sample { seq, t, raw, reference: Some(reference), temperature: None }
+    }
+
+    /// A sample without reference, to be turned into a calibrated reading.
+    pub fn reading(seq: u64, t: f64, raw: R) -> Self {
+        Sample { seq, t, raw, reference: None, temperature: None }
+    }
+
+    /// The same sample with a temperature.
+    pub fn with_temperature(mut self, temperature: R) -> Self {
+        self.temperature = Some(temperature);
+        self
+    }
+}
+
+/// A calibrated reading: the reference-scale value for a raw sample, with its uncertainty.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Reading<R> {
+    /// Calibrated value in reference units (inverse prediction through the active fit).
+    pub value: R,
+    /// Standard uncertainty of `value` (one standard deviation).
+    pub standard_uncertainty: R,
+    /// Expanded uncertainty: `coverage_factor × standard_uncertainty` (k = 2 by default).
+    pub expanded_uncertainty: R,
+    /// The rung the reading was made under.
+    pub rung: Rung,
+}
+
+/// Bit flags describing what one push did.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Flags(pub u16);
+
+impl Flags {
+    /// The sample carried a reference (a check).
+    pub const CHECK: Flags = Flags(1 << 0);
+    /// The sample was rejected by the screen and did not update anything.
+    pub const REJECTED: Flags = Flags(1 << 1);
+    /// The monitor is still warming up (too few checks for the spread model and ladder).
+    pub const WARMING_UP: Flags = Flags(1 << 2);
+    /// No reading could be made (no calibration yet, or the raw value is outside the
+    /// invertible range of the active fit).
+    pub const NO_READING: Flags = Flags(1 << 3);
+    /// At least one alarm of severity `alarm` is raised.
+    pub const ALARM: Flags = Flags(1 << 4);
+    /// At least one alarm of severity `warn` is raised.
+    pub const WARNING: Flags = Flags(1 << 5);
+    /// The sample was at or below the level origin, so the power rungs did not use it.
+    pub const BELOW_ORIGIN: Flags = Flags(1 << 6);
+    /// Events were dropped because the event queue was full.
+    pub const EVENTS_DROPPED: Flags = Flags(1 << 7);
+
+    /// No flag set.
+    pub const fn empty() -> Flags {
+        Flags(0)
+    }
+    /// True if every flag of `other` is set in `self`.
+    pub const fn contains(self, other: Flags) -> bool {
+        self.0 & other.0 == other.0
+    }
+    /// Sets the flags of `other`.
+    pub fn insert(&mut self, other: Flags) {
+        self.0 |= other.0;
+    }
+    /// Names of the set flags, in bit order.
+    pub fn names(self) -> impl Iterator<Item = &'static str> {
+        const NAMES: [&str; 8] = [
+            "check",
+            "rejected",
+            "warming_up",
+            "no_reading",
+            "alarm",
+            "warning",
+            "below_origin",
+            "events_dropped",
+        ];
+        (0..NAMES.len()).filter(move |bit| self.0 & (1 << bit) != 0).map(|bit| NAMES[bit])
+    }
+}
+
+/// What one [`crate::monitor::Monitor::push`] returns.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Outcome<R> {
+    /// The calibrated reading, for a sample without reference that could be inverted.
+    pub reading: Option<Reading<R>>,
+    /// What happened.
+    pub flags: Flags,
+    /// How many events this push appended to the monitor's queue (including dropped ones).
+    pub new_events: u8,
+}

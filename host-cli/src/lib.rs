@@ -1,0 +1,3 @@
+//! steadycal-cli: the host side of steadycal, as a library the `steadycal` binary is a thin
+//! layer over.
+#![forbid(unsafe_code)]
