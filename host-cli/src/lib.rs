@@ -4,3 +4,4 @@
 
 pub mod feed;
 pub mod replay;
+pub mod simulate;
