@@ -462,3 +462,45 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         })
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn default_monitor_fits_in_two_kilobytes() {
+        // Target from the design: Monitor<f32> with defaults (P = 3, 16 bins, 5 rungs,
+        // queue of 8) at most 2048 bytes. The README states the measured figure.
+        let size = core::mem::size_of::<Monitor<f32>>();
+        std::eprintln!("size_of::<Monitor<f32>>() = {size}");
+        assert!(size <= 2048, "{size}");
+    }
+
+    #[test]
+    fn bad_config_names_parameter() {
+        let mut config = MonitorConfig::<f32>::default_for_range(1.0, 100.0);
+        config.forgetting = 1.5;
+        let error = Monitor::<f32>::new(config).unwrap_err();
+        assert_eq!(error.parameter(), "forgetting");
+        let mut config = MonitorConfig::<f32>::default_for_range(100.0, 1.0);
+        config.level_low = 100.0;
+        assert_eq!(Monitor::<f32>::new(config).unwrap_err(), ConfigError::LevelRange);
+    }
+
+    #[test]
+    fn non_finite_samples_are_rejected_without_touching_state() {
+        let config = MonitorConfig::<f32>::default_for_range(1.0, 100.0);
+        let mut monitor: Monitor<f32> = Monitor::new(config).unwrap();
+        for value in [f32::NAN, f32::INFINITY, f32::NEG_INFINITY] {
+            let outcome = monitor.push(&Sample::check(0, 0.0, value, 1.0));
+            assert!(outcome.flags.contains(Flags::REJECTED));
+            let outcome = monitor.push(&Sample::check(0, 0.0, 1.0, value));
+            assert!(outcome.flags.contains(Flags::REJECTED));
+            let outcome = monitor.push(&Sample::reading(0, 0.0, value));
+            assert!(outcome.flags.contains(Flags::REJECTED));
+        }
+        assert_eq!(monitor.counters().checks, 0);
+        assert_eq!(monitor.counters().rejected, 9);
+        assert_eq!(monitor.events_dropped(), 1); // queue of 8, 9 rejections
+    }
+}

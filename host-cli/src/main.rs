@@ -2,6 +2,7 @@
 //!
 //! Exit codes: 0 ok, 1 alarms raised when `--fail-on` asks, 2 bad input or usage.
 
+use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -28,6 +29,41 @@ enum Command {
     ///
     /// Example: steadycal replay simulated-feeds/gas-cell.csv --events events.jsonl --summary summary.json
     Replay(ReplayArgs),
+    /// Write a seeded, reproducible synthetic feed from a scenario file (TOML).
+    ///
+    /// Example: steadycal simulate simulated-feeds/gas-cell.toml --out gas-cell.csv --truth gas-cell.truth.json
+    Simulate(SimulateArgs),
+}
+
+#[derive(Args, Debug)]
+struct SimulateArgs {
+    /// Scenario file (TOML).
+    scenario: PathBuf,
+    /// Where to write the feed CSV (`-` = stdout).
+    #[arg(long, value_name = "FILE", default_value = "-")]
+    out: PathBuf,
+    /// Where to write the ground truth JSON.
+    #[arg(long, value_name = "FILE")]
+    truth: Option<PathBuf>,
+}
+
+fn run_simulate(args: SimulateArgs) -> anyhow::Result<ExitCode> {
+    use anyhow::Context;
+    let text = std::fs::read_to_string(&args.scenario)
+        .with_context(|| format!("{}: cannot read", args.scenario.display()))?;
+    let scenario: steadycal_cli::simulate::Scenario =
+        toml::from_str(&text).map_err(|error| anyhow::anyhow!("{}: {error}", args.scenario.display()))?;
+    let (rows, truth) = steadycal_cli::simulate::generate(&scenario);
+    let mut out = replay::create_output(&args.out)?;
+    steadycal_cli::simulate::write_csv(&rows, out.as_mut())?;
+    out.flush()?;
+    if let Some(path) = args.truth {
+        let mut out = replay::create_output(&path)?;
+        serde_json::to_writer_pretty(&mut out, &truth)?;
+        out.write_all(b"\n")?;
+        out.flush()?;
+    }
+    Ok(ExitCode::SUCCESS)
 }
 
 #[derive(Args, Debug)]
@@ -94,6 +130,7 @@ fn main() -> ExitCode {
     };
     let result = match cli.command {
         Command::Replay(args) => run_replay(args),
+        Command::Simulate(args) => run_simulate(args),
     };
     match result {
         Ok(code) => code,
