@@ -182,6 +182,44 @@ impl<R: Real> MonitorConfig<R> {
         self.basis.validate(capacity).map_err(ConfigError::Basis)
     }
 
+    /// The same configuration in another float type (values rounded to nearest).
+    ///
+    /// ```
+    /// use steadycal_core::monitor::MonitorConfig;
+    /// let wide = MonitorConfig::<f64>::default_for_range(1.0, 1000.0);
+    /// let narrow: MonitorConfig<f32> = wide.convert();
+    /// assert_eq!(narrow.forgetting, 0.999f32);
+    /// ```
+    pub fn convert<S: Real>(&self) -> MonitorConfig<S> {
+        let c = |value: R| S::from_f64(value.to_f64());
+        let basis = self.basis;
+        MonitorConfig {
+            basis: Basis {
+                quadratic: basis.quadratic,
+                temperature: basis.temperature,
+                reference_scale: c(basis.reference_scale),
+                temperature_reference: c(basis.temperature_reference),
+                temperature_scale: c(basis.temperature_scale),
+            },
+            forgetting: c(self.forgetting),
+            initial_variance: c(self.initial_variance),
+            level_origin: c(self.level_origin),
+            level_low: c(self.level_low),
+            level_high: c(self.level_high),
+            warm_up: self.warm_up,
+            switch_margin: c(self.switch_margin),
+            switch_hold: self.switch_hold,
+            initial_rung: self.initial_rung,
+            spread_threshold: c(self.spread_threshold),
+            spread_every: self.spread_every,
+            mean_check_after: self.mean_check_after,
+            mean_check_min_per_bin: self.mean_check_min_per_bin,
+            mean_check_z: c(self.mean_check_z),
+            interval_z: c(self.interval_z),
+            coverage_factor: c(self.coverage_factor),
+        }
+    }
+
     /// The ladder's view of this configuration.
     pub fn ladder(&self) -> LadderConfig<R> {
         let scale = (self.level_low * self.level_high).sqrt();

@@ -156,37 +156,6 @@ pub fn replay(options: &ReplayOptions) -> Result<ReplayResult> {
     }
 }
 
-/// Converts an f64 configuration to the run's float type.
-pub fn convert_config<R: Real>(config: &MonitorConfig<f64>) -> MonitorConfig<R> {
-    let c = |value: f64| R::from_f64(value);
-    let basis = config.basis;
-    MonitorConfig {
-        basis: steadycal_core::basis::Basis {
-            quadratic: basis.quadratic,
-            temperature: basis.temperature,
-            reference_scale: c(basis.reference_scale),
-            temperature_reference: c(basis.temperature_reference),
-            temperature_scale: c(basis.temperature_scale),
-        },
-        forgetting: c(config.forgetting),
-        initial_variance: c(config.initial_variance),
-        level_origin: c(config.level_origin),
-        level_low: c(config.level_low),
-        level_high: c(config.level_high),
-        warm_up: config.warm_up,
-        switch_margin: c(config.switch_margin),
-        switch_hold: config.switch_hold,
-        initial_rung: config.initial_rung,
-        spread_threshold: c(config.spread_threshold),
-        spread_every: config.spread_every,
-        mean_check_after: config.mean_check_after,
-        mean_check_min_per_bin: config.mean_check_min_per_bin,
-        mean_check_z: c(config.mean_check_z),
-        interval_z: c(config.interval_z),
-        coverage_factor: c(config.coverage_factor),
-    }
-}
-
 fn write_reading<R: Real + Display>(out: &mut dyn Write, sample: &Sample<R>, outcome: &Outcome<R>, rung: Rung) -> std::io::Result<()> {
     let flags: Vec<&str> = outcome.flags.names().collect();
     match outcome.reading {
@@ -211,7 +180,7 @@ where
     R: Real + FromStr + Display,
     I: Read,
 {
-    let config = convert_config::<R>(&options.config);
+    let config: MonitorConfig<R> = options.config.convert();
     let mut monitor: Monitor<R> = Monitor::new(config)
         .map_err(|error| anyhow::anyhow!("configuration: `{}` is out of range", error.parameter()))?;
     let mut events_out = options.events.as_deref().map(create_output).transpose()?;
