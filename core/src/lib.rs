@@ -10,7 +10,8 @@
 //! Modules, one concept each: [`real`] (the float trait), [`basis`] (regressors),
 //! [`fit`] (recursive least squares), [`transform`] (Box–Cox rungs), [`spread`] (spread
 //! against level), [`ladder`] (shadow fits per rung), [`adequacy`] (mean check after a
-//! switch), [`event`] (events and their queue), [`sample`] (inputs and outcomes),
+//! switch), [`detect`] (drift and fault detectors, alarms), [`event`] (events and their
+//! queue), [`sample`] (inputs and outcomes),
 //! [`monitor`] (the composition).
 #![no_std]
 #![forbid(unsafe_code)]
@@ -23,6 +24,7 @@ extern crate std;
 
 pub mod adequacy;
 pub mod basis;
+pub mod detect;
 pub mod event;
 pub mod fit;
 pub mod ladder;
