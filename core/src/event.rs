@@ -56,6 +56,9 @@ pub enum RejectReason {
     OutOfRange,
     /// The standardized residual is beyond the spike bound.
     Spike,
+    /// The raw value is part of a run of identical values long enough to call the signal
+    /// stuck.
+    Stuck,
 }
 
 impl RejectReason {
@@ -68,6 +71,7 @@ impl RejectReason {
             RejectReason::BelowOrigin => "below_origin",
             RejectReason::OutOfRange => "out_of_range",
             RejectReason::Spike => "spike",
+            RejectReason::Stuck => "stuck",
         }
     }
 }

@@ -86,6 +86,18 @@ pub struct LadderStep<R> {
     pub switch: Option<Switch<R>>,
 }
 
+/// The active rung's a-priori view of one check (see [`PowerLadder::assess`]).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Assessment<R> {
+    /// The active rung's a-priori prediction of the raw value.
+    pub prediction: R,
+    /// `raw − prediction`.
+    pub residual: R,
+    /// The residual standardized by the active rung's spread model at this level
+    /// (`residual / √(σ²·(1/w(f) + xᵀPx))`); `None` until the fit has a residual variance.
+    pub standardized: Option<R>,
+}
+
 /// Shadow fits on every rung, and the choice between them.
 #[derive(Clone, Debug, Serialize, Deserialize)]
 #[serde(bound = "R: Real")]
@@ -184,9 +196,12 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         Some(best)
     }
 
-    /// One check: `x` the regressors of the reference, `raw` the sensor output.
-    /// The caller has screened `raw` and `x` to be finite.
-    pub fn update(&mut self, config: &LadderConfig<R>, x: &[R; P], raw: R) -> LadderStep<R> {
+    /// The active rung's view of a check before any fit changes: its a-priori prediction,
+    /// residual and standardized residual (the same values [`PowerLadder::update`] reports
+    /// in its [`LadderStep`]). Changes nothing; used by the screen to exclude spikes from
+    /// every fit.
+    #[inline]
+    pub fn assess(&self, config: &LadderConfig<R>, x: &[R; P], raw: R) -> Assessment<R> {
         let active = self.active;
         let active_fit = &self.rungs[active.index()].fit;
         let prediction = active_fit.predict(x);
@@ -201,6 +216,34 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
                 None
             }
         };
+        Assessment {
+            prediction,
+            residual,
+            standardized,
+        }
+    }
+
+    /// One check: `x` the regressors of the reference, `raw` the sensor output.
+    /// The caller has screened `raw` and `x` to be finite.
+    pub fn update(&mut self, config: &LadderConfig<R>, x: &[R; P], raw: R) -> LadderStep<R> {
+        let assessment = self.assess(config, x, raw);
+        self.update_assessed(config, x, raw, assessment)
+    }
+
+    /// [`PowerLadder::update`] with the assessment already made by
+    /// [`PowerLadder::assess`] on the same state, `x` and `raw` (saves computing it twice).
+    pub fn update_assessed(
+        &mut self,
+        config: &LadderConfig<R>,
+        x: &[R; P],
+        raw: R,
+        assessment: Assessment<R>,
+    ) -> LadderStep<R> {
+        let Assessment {
+            prediction,
+            residual,
+            standardized,
+        } = assessment;
 
         let raw_level = Self::scaled_level(config, raw);
         let counting = self.checks >= config.warm_up;

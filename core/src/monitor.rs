@@ -20,7 +20,11 @@ use serde::{Deserialize, Serialize};
 
 use crate::adequacy::MeanCheck;
 use crate::basis::{Basis, BasisError};
-use crate::event::{AlarmKind, Event, EventKind, EventQueue, RejectReason};
+use crate::detect::alarm::Transition;
+use crate::detect::drift::{Baseline, BaselineError, DriftStatus, Layout};
+use crate::detect::screen::Screen;
+use crate::detect::{DetectConfig, DetectConfigError, DetectorCounts, Detectors};
+use crate::event::{AlarmKind, Event, EventKind, EventQueue, RejectReason, Severity};
 use crate::fit::FitConfig;
 use crate::ladder::{LadderConfig, PowerLadder};
 use crate::real::Real;
@@ -70,6 +74,8 @@ pub struct MonitorConfig<R> {
     pub interval_z: R,
     /// Coverage factor of the expanded uncertainty (default 2).
     pub coverage_factor: R,
+    /// Drift and fault detectors, and their alarm rules.
+    pub detect: DetectConfig<R>,
 }
 
 /// A configuration value that is not usable.
@@ -93,6 +99,8 @@ pub enum ConfigError {
     SpreadEvery,
     /// The basis is not usable.
     Basis(BasisError),
+    /// A detector setting is not usable.
+    Detect(DetectConfigError),
 }
 
 impl ConfigError {
@@ -108,6 +116,7 @@ impl ConfigError {
             ConfigError::Quantile => "coverage_factor/interval_z/mean_check_z",
             ConfigError::SpreadEvery => "spread_every",
             ConfigError::Basis(_) => "basis",
+            ConfigError::Detect(error) => error.parameter(),
         }
     }
 }
@@ -120,7 +129,8 @@ impl<R: Real> MonitorConfig<R> {
     /// Defaults for a straight-line calibration over the working range `[low, high]` (raw
     /// units above an origin of 0): β = 0.999 (memory of about 1000 checks), warm-up 200
     /// checks, switch after a lead of 5.41 held for 200 checks, spread evaluated every 32
-    /// checks, mean check 1000 checks after a switch, k = 2 coverage.
+    /// checks, mean check 1000 checks after a switch, k = 2 coverage; detectors as
+    /// documented on [`DetectConfig::default_for_range`].
     ///
     /// ```
     /// use steadycal_core::monitor::MonitorConfig;
@@ -148,6 +158,7 @@ impl<R: Real> MonitorConfig<R> {
             mean_check_z: R::from_f64(3.090),
             interval_z: R::from_f64(1.960),
             coverage_factor: R::TWO,
+            detect: DetectConfig::default_for_range(R::ZERO, low, high),
         }
     }
 
@@ -184,6 +195,7 @@ impl<R: Real> MonitorConfig<R> {
         if self.spread_every == 0 {
             return Err(ConfigError::SpreadEvery);
         }
+        self.detect.validate().map_err(ConfigError::Detect)?;
         self.basis.validate(capacity).map_err(ConfigError::Basis)
     }
 
@@ -222,6 +234,7 @@ impl<R: Real> MonitorConfig<R> {
             mean_check_z: c(self.mean_check_z),
             interval_z: c(self.interval_z),
             coverage_factor: c(self.coverage_factor),
+            detect: self.detect.convert(),
         }
     }
 
@@ -295,6 +308,7 @@ pub struct Monitor<R, const P: usize = 3, const BINS: usize = 16, const Q: usize
     counters: Counters,
     spread_raised: bool,
     last_exponent: Option<SpreadExponent<R>>,
+    detectors: Detectors<R>,
 }
 
 impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, BINS, Q> {
@@ -312,6 +326,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             counters: Counters::default(),
             spread_raised: false,
             last_exponent: None,
+            detectors: Detectors::new(),
         })
     }
 
@@ -352,6 +367,57 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             .physical(&self.ladder.active_fit().parameters())
     }
 
+    /// The severity of every raised alarm, by [`AlarmKind::index`] (`None` = not raised).
+    /// `spread_tracks_level` shows as `info` while raised.
+    pub fn raised_alarms(&self) -> [Option<Severity>; AlarmKind::COUNT] {
+        let mut out = self
+            .detectors
+            .alarms
+            .raised_severities(&self.config.detect.alarms);
+        if self.spread_raised {
+            out[AlarmKind::SpreadTracksLevel.index()] = Some(Severity::Info);
+        }
+        out
+    }
+
+    /// How many times a detector alarm was raised.
+    pub fn alarm_raises(&self, kind: AlarmKind) -> u32 {
+        self.detectors.alarms.raises(kind)
+    }
+
+    /// The latest drift evaluation against the baseline (reported whether or not it
+    /// alarms: drift inside tolerance shows here and is not raised).
+    pub fn drift_status(&self) -> Option<DriftStatus<R>> {
+        self.detectors.drift.status()
+    }
+
+    /// The baseline the drift test compares with, once set or frozen.
+    pub fn baseline(&self) -> Option<&Baseline<R>> {
+        self.detectors.drift.baseline()
+    }
+
+    /// Sets the commissioned baseline: physical `[offset, gain, quadratic, temperature]`
+    /// and their covariance (`None`: taken as exact). Replaces a frozen one.
+    pub fn set_baseline(
+        &mut self,
+        parameters: [R; 4],
+        covariance: Option<[[R; 4]; 4]>,
+    ) -> Result<(), BaselineError> {
+        let baseline = Baseline::new(parameters, covariance)?;
+        self.detectors.drift.set_baseline(baseline);
+        Ok(())
+    }
+
+    /// How often each detector fired.
+    pub fn detector_counts(&self) -> DetectorCounts {
+        self.detectors.counts
+    }
+
+    /// The bias CUSUM's state (for tests and reports).
+    pub fn detectors(&self) -> &Detectors<R> {
+        &self.detectors
+    }
+
     /// Takes the oldest waiting event.
     pub fn pop_event(&mut self) -> Option<Event<R>> {
         self.events.pop()
@@ -366,6 +432,29 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         outcome.new_events = outcome.new_events.saturating_add(1);
         if !self.events.push(Event { seq, kind }) {
             outcome.flags.insert(Flags::EVENTS_DROPPED);
+        }
+    }
+
+    /// One observation of a detector alarm; emits the raise (built by `event` with the
+    /// rule's severity) or the `cleared` event.
+    fn observe_alarm(
+        &mut self,
+        seq: u64,
+        kind: AlarmKind,
+        present: bool,
+        event: impl FnOnce(Severity) -> EventKind<R>,
+        outcome: &mut Outcome<R>,
+    ) {
+        match self
+            .detectors
+            .alarms
+            .observe(&self.config.detect.alarms, kind, present)
+        {
+            Some(Transition::Raised(severity)) => self.raise(seq, event(severity), outcome),
+            Some(Transition::Cleared) => {
+                self.raise(seq, EventKind::Cleared { alarm: kind }, outcome)
+            }
+            None => {}
         }
     }
 
@@ -393,6 +482,10 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             return outcome;
         }
         let temperature = sample.temperature.filter(|t| t.is_finite());
+        if self.screen(sample, &mut outcome) {
+            self.flag_alarms(&mut outcome);
+            return outcome;
+        }
         match sample.reference {
             Some(reference) if !reference.is_finite() => {
                 self.reject(sample, RejectReason::NonFiniteReference, &mut outcome);
@@ -403,7 +496,85 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         if !self.ladder.warmed_up(&self.ladder_config) {
             outcome.flags.insert(Flags::WARMING_UP);
         }
+        self.flag_alarms(&mut outcome);
         outcome
+    }
+
+    fn flag_alarms(&self, outcome: &mut Outcome<R>) {
+        for severity in self
+            .detectors
+            .alarms
+            .raised_severities(&self.config.detect.alarms)
+            .into_iter()
+            .flatten()
+        {
+            match severity {
+                Severity::Alarm => outcome.flags.insert(Flags::ALARM),
+                Severity::Warn => outcome.flags.insert(Flags::WARNING),
+                Severity::Info => {}
+            }
+        }
+    }
+
+    /// The sample-level screen (reference gap, physical range, stuck signal). Returns true
+    /// when the sample was rejected.
+    fn screen(&mut self, sample: &Sample<R>, outcome: &mut Outcome<R>) -> bool {
+        let screen_config = self.config.detect.screen;
+        let seq = sample.seq;
+        let is_check = sample.reference.is_some_and(|r| r.is_finite());
+        let gap = self
+            .detectors
+            .screen
+            .observe_time(&screen_config, sample.t, is_check);
+        if gap.is_some() {
+            self.detectors.counts.gap_samples += 1;
+        }
+        let seconds = gap.unwrap_or(0.0);
+        self.observe_alarm(
+            seq,
+            AlarmKind::ReferenceGap,
+            gap.is_some(),
+            |severity| EventKind::ReferenceGap { seconds, severity },
+            outcome,
+        );
+        let raw = sample.raw;
+        let in_range = Screen::in_range(&screen_config, raw);
+        self.observe_alarm(
+            seq,
+            AlarmKind::SignalOutOfRange,
+            !in_range,
+            |severity| EventKind::SignalOutOfRange { raw, severity },
+            outcome,
+        );
+        if !in_range {
+            self.detectors.counts.out_of_range += 1;
+            self.reject(sample, RejectReason::OutOfRange, outcome);
+            return true;
+        }
+        let run = self.detectors.screen.observe_raw(raw);
+        let identical = run >= screen_config.stuck_run;
+        let unresponsive = self.detectors.screen.unresponsive();
+        let reported_run = if identical {
+            run
+        } else {
+            screen_config.stuck_window
+        };
+        self.observe_alarm(
+            seq,
+            AlarmKind::SignalStuck,
+            identical || unresponsive,
+            |severity| EventKind::SignalStuck {
+                run: reported_run,
+                severity,
+            },
+            outcome,
+        );
+        if identical {
+            self.detectors.counts.stuck_samples += 1;
+            self.reject(sample, RejectReason::Stuck, outcome);
+            return true;
+        }
+        false
     }
 
     fn check(
@@ -416,7 +587,20 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         outcome.flags.insert(Flags::CHECK);
         let x: [R; P] = self.config.basis.regressors(reference, temperature);
         let warmed_up = self.ladder.warmed_up(&self.ladder_config);
-        let step = self.ladder.update(&self.ladder_config, &x, sample.raw);
+        let assessment = self.ladder.assess(&self.ladder_config, &x, sample.raw);
+        if warmed_up
+            && self
+                .detectors
+                .screen
+                .is_spike(&self.config.detect.screen, assessment.standardized)
+        {
+            self.detectors.counts.spikes += 1;
+            self.reject(sample, RejectReason::Spike, outcome);
+            return;
+        }
+        let step = self
+            .ladder
+            .update_assessed(&self.ladder_config, &x, sample.raw, assessment);
         self.counters.checks += 1;
         if step.below_origin {
             self.counters.below_origin += 1;
@@ -473,6 +657,141 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         if warmed_up && self.counters.checks % self.config.spread_every as u64 == 0 {
             self.evaluate_spread(sample.seq, outcome);
         }
+        if warmed_up {
+            self.detect(
+                sample,
+                step.standardized,
+                step.prediction,
+                step.switch.is_some(),
+                outcome,
+            );
+        }
+    }
+
+    /// The check-level detectors: bias CUSUM, spread jump, no-response window, drift.
+    fn detect(
+        &mut self,
+        sample: &Sample<R>,
+        standardized: Option<R>,
+        prediction: R,
+        switched: bool,
+        outcome: &mut Outcome<R>,
+    ) {
+        let detect = self.config.detect;
+        let seq = sample.seq;
+        if let Some(z) = standardized {
+            self.detectors.counts.cusum_checks += 1;
+            let signal = self.detectors.cusum.update(&detect.cusum, z);
+            if signal.is_some() {
+                self.detectors.counts.cusum_signals += 1;
+            }
+            self.observe_alarm(
+                seq,
+                AlarmKind::BiasShift,
+                signal.is_some(),
+                |severity| {
+                    let signal = signal.unwrap_or(crate::detect::cusum::CusumSignal {
+                        direction: crate::event::Direction::Up,
+                        size: R::ZERO,
+                        run: 0,
+                    });
+                    EventKind::BiasShift {
+                        direction: signal.direction,
+                        size: signal.size,
+                        severity,
+                    }
+                },
+                outcome,
+            );
+            let jump = self.detectors.spread_jump.update(&detect.spread_jump, z);
+            if jump.is_some() {
+                self.detectors.counts.spread_jump_signals += 1;
+            }
+            let ratio = jump.map(|j| j.ratio).unwrap_or(R::ONE);
+            self.observe_alarm(
+                seq,
+                AlarmKind::SpreadJump,
+                jump.is_some(),
+                |severity| EventKind::SpreadJump { ratio, severity },
+                outcome,
+            );
+        }
+        if switched {
+            // The standardization changes with the rung: both sums restart.
+            self.detectors.cusum.reset();
+            self.detectors.spread_jump.reset();
+        }
+        if self
+            .detectors
+            .screen
+            .observe_response(&detect.screen, sample.raw, prediction)
+            == Some(true)
+        {
+            self.detectors.counts.unresponsive_windows += 1;
+        }
+        self.drift(seq, outcome);
+    }
+
+    fn drift(&mut self, seq: u64, outcome: &mut Outcome<R>) {
+        let drift_config = self.config.detect.drift;
+        let basis = self.config.basis;
+        let fit = self.ladder.active_fit();
+        if (fit.updates() as usize) <= fit.dim() {
+            return;
+        }
+        let since_warm_up = self.ladder.checks().saturating_sub(self.config.warm_up);
+        if self.detectors.drift.baseline().is_none() {
+            if since_warm_up >= drift_config.freeze_after {
+                let parameters = basis.physical(&fit.parameters());
+                let layout = Layout::of(&basis);
+                let covariance =
+                    layout.physical_covariance(&fit.covariance(), fit.residual_variance());
+                if let Ok(baseline) = Baseline::new(parameters, Some(covariance)) {
+                    self.detectors.drift.set_baseline(baseline);
+                }
+            }
+            return;
+        }
+        if self.counters.checks % drift_config.every as u64 != 0 {
+            return;
+        }
+        let (theta, covariance, variance) =
+            (fit.parameters(), fit.covariance(), fit.residual_variance());
+        let Some(status) =
+            self.detectors
+                .drift
+                .evaluate(&drift_config, &basis, &theta, &covariance, variance)
+        else {
+            return;
+        };
+        self.detectors.counts.drift_evaluations += 1;
+        if status.significant {
+            self.detectors.counts.drift_significant += 1;
+        }
+        let gain_change = status.gain_change.unwrap_or(R::ZERO);
+        let gain_uncertainty = status.gain_uncertainty.unwrap_or(R::ZERO);
+        self.observe_alarm(
+            seq,
+            AlarmKind::GainDrift,
+            status.gain_signal(),
+            |severity| EventKind::GainDrift {
+                change: gain_change,
+                uncertainty: gain_uncertainty,
+                severity,
+            },
+            outcome,
+        );
+        self.observe_alarm(
+            seq,
+            AlarmKind::OffsetDrift,
+            status.offset_signal(),
+            |severity| EventKind::OffsetDrift {
+                change: status.offset_change,
+                uncertainty: status.offset_uncertainty,
+                severity,
+            },
+            outcome,
+        );
     }
 
     fn evaluate_spread(&mut self, seq: u64, outcome: &mut Outcome<R>) {

@@ -55,6 +55,7 @@ pub struct Screen<R> {
     window_prediction_low: R,
     window_prediction_high: R,
     spikes_in_a_row: u32,
+    unresponsive: bool,
     /// Time of the last check; NaN until the clock starts at the first sample.
     last_check_t: f64,
 }
@@ -77,6 +78,7 @@ impl<R: Real> Screen<R> {
             window_prediction_low: R::ZERO,
             window_prediction_high: R::ZERO,
             spikes_in_a_row: 0,
+            unresponsive: false,
             last_check_t: f64::NAN,
         }
     }
@@ -120,7 +122,7 @@ impl<R: Real> Screen<R> {
 
     /// Adds an accepted check to the no-response window. At the end of a window returns
     /// `Some(true)` when the raw values stayed flat while the predictions moved, `Some(false)`
-    /// otherwise; `None` inside a window.
+    /// otherwise (the verdict is kept, see [`Screen::unresponsive`]); `None` inside a window.
     #[inline]
     pub fn observe_response(
         &mut self,
@@ -149,7 +151,13 @@ impl<R: Real> Screen<R> {
         self.window_checks = 0;
         let predicted = self.window_prediction_high - self.window_prediction_low;
         let observed = self.window_raw_high - self.window_raw_low;
-        Some(predicted > R::ZERO && observed <= config.stuck_response * predicted)
+        self.unresponsive = predicted > R::ZERO && observed <= config.stuck_response * predicted;
+        Some(self.unresponsive)
+    }
+
+    /// The verdict of the last complete no-response window.
+    pub fn unresponsive(&self) -> bool {
+        self.unresponsive
     }
 
     /// Advances the gap clock with a sample at time `t`. A sample carrying a reference
