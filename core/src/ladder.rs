@@ -202,25 +202,60 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
     /// every fit.
     #[inline]
     pub fn assess(&self, config: &LadderConfig<R>, x: &[R; P], raw: R) -> Assessment<R> {
-        let active = self.active;
-        let active_fit = &self.rungs[active.index()].fit;
-        let prediction = active_fit.predict(x);
-        let residual = raw - prediction;
-        let standardized = {
-            let variance = active_fit.residual_variance();
-            let weight = Self::weight(config, active, prediction);
-            let spread = variance * (R::ONE / weight + active_fit.leverage(x));
-            if active_fit.updates() as usize > active_fit.dim() && spread > R::ZERO {
-                Some(residual / spread.sqrt())
-            } else {
-                None
-            }
-        };
+        let (prediction, standardized) = self.standardized_on(config, self.active, x, raw);
         Assessment {
             prediction,
-            residual,
+            residual: raw - prediction,
             standardized,
         }
+    }
+
+    /// A rung's a-priori prediction and standardized residual
+    /// `(raw − f) / √(σ²·(1/w(f) + xᵀPx))` for a check, without changing anything.
+    /// The standardized residual is `None` until that rung's fit has a residual variance.
+    #[inline]
+    pub fn standardized_on(
+        &self,
+        config: &LadderConfig<R>,
+        rung: Rung,
+        x: &[R; P],
+        raw: R,
+    ) -> (R, Option<R>) {
+        let fit = &self.rungs[rung.index()].fit;
+        let prediction = fit.predict(x);
+        let variance = fit.residual_variance();
+        let weight = Self::weight(config, rung, prediction);
+        let spread = variance * (R::ONE / weight + fit.leverage(x));
+        let standardized = if fit.updates() as usize > fit.dim() && spread > R::ZERO {
+            Some((raw - prediction) / spread.sqrt())
+        } else {
+            None
+        };
+        (prediction, standardized)
+    }
+
+    /// True when the check is beyond `bound` standardized units under every rung's spread
+    /// model that has one (an outlier whatever the scatter model, not evidence for another
+    /// rung). Only the active rung is computed unless its residual is beyond the bound.
+    pub fn beyond_on_every_rung(
+        &self,
+        config: &LadderConfig<R>,
+        active: Option<R>,
+        x: &[R; P],
+        raw: R,
+        bound: R,
+    ) -> bool {
+        let beyond = |z: Option<R>| matches!(z, Some(z) if !(z.abs() <= bound));
+        if !beyond(active) {
+            return false;
+        }
+        Rung::ALL
+            .into_iter()
+            .filter(|&rung| rung != self.active)
+            .all(|rung| {
+                let (_, z) = self.standardized_on(config, rung, x, raw);
+                z.is_none() || beyond(z)
+            })
     }
 
     /// One check: `x` the regressors of the reference, `raw` the sensor output.
@@ -250,7 +285,15 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         let mut levels = [R::ZERO; RUNG_COUNT];
         let mut below_origin = !(raw_level > R::ZERO);
         for rung in Rung::ALL {
-            let level = Self::scaled_level(config, self.rungs[rung.index()].fit.predict(x));
+            let fit = &self.rungs[rung.index()].fit;
+            // Until a rung's fit is determined its prediction means nothing (all zero at
+            // the start, which would keep every power rung below the origin forever): its
+            // weight and origin test use the observed level instead.
+            let level = if fit.updates() as usize > fit.dim() {
+                Self::scaled_level(config, fit.predict(x))
+            } else {
+                raw_level
+            };
             levels[rung.index()] = level;
             below_origin |= rung.needs_positive() && !(level > R::ZERO);
         }

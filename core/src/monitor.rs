@@ -588,11 +588,20 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         let x: [R; P] = self.config.basis.regressors(reference, temperature);
         let warmed_up = self.ladder.warmed_up(&self.ladder_config);
         let assessment = self.ladder.assess(&self.ladder_config, &x, sample.raw);
+        let spike_bound = self.config.detect.screen.spike_bound;
+        let beyond = warmed_up
+            && self.ladder.beyond_on_every_rung(
+                &self.ladder_config,
+                assessment.standardized,
+                &x,
+                sample.raw,
+                spike_bound,
+            );
         if warmed_up
             && self
                 .detectors
                 .screen
-                .is_spike(&self.config.detect.screen, assessment.standardized)
+                .is_spike(&self.config.detect.screen, beyond)
         {
             self.detectors.counts.spikes += 1;
             self.reject(sample, RejectReason::Spike, outcome);

@@ -14,7 +14,7 @@ use std::str::FromStr;
 use anyhow::{Context, Result};
 use serde::Serialize;
 use serde_json::{json, Map, Value};
-use steadycal_core::event::{Event, EventKind};
+use steadycal_core::event::{AlarmKind, Event, EventKind};
 use steadycal_core::monitor::{Monitor, MonitorConfig};
 use steadycal_core::real::Real;
 use steadycal_core::sample::{Outcome, Sample};
@@ -320,7 +320,67 @@ pub fn summary_json<R: Real + Display>(
         "log_likelihood": Value::Object(rungs),
         "events": counts,
         "events_dropped": monitor.events_dropped(),
+        "alarms": alarms_json(monitor),
+        "drift": drift_json(monitor),
+        "detectors": detectors_json(monitor),
         "stopped_at": error.map(|e| Value::String(e.to_string())).unwrap_or(Value::Null),
         "caution": CAUTION,
+    })
+}
+
+/// The alarms raised at the end of a run: `[{kind, severity, raised_count}]`, in kind order.
+pub fn alarms_json<R: Real>(monitor: &Monitor<R>) -> Value {
+    let raised = monitor.raised_alarms();
+    let list: Vec<Value> = AlarmKind::ALL
+        .iter()
+        .filter_map(|&kind| {
+            raised[kind.index()].map(|severity| {
+                json!({
+                    "kind": kind.name(),
+                    "severity": severity.name(),
+                    "times_raised": monitor.alarm_raises(kind),
+                })
+            })
+        })
+        .collect();
+    Value::Array(list)
+}
+
+/// The drift against the baseline (reported whether or not it alarms), or null before a
+/// baseline and a first evaluation exist.
+pub fn drift_json<R: Real + Display>(monitor: &Monitor<R>) -> Value {
+    let (Some(status), Some(baseline)) = (monitor.drift_status(), monitor.baseline()) else {
+        return Value::Null;
+    };
+    let optional = |value: Option<R>| value.map(number).unwrap_or(Value::Null);
+    json!({
+        "baseline": { "offset": number(baseline.parameters[0]), "gain": number(baseline.parameters[1]) },
+        "gain_change": optional(status.gain_change),
+        "gain_change_uncertainty": optional(status.gain_uncertainty),
+        "offset_change": number(status.offset_change),
+        "offset_change_uncertainty": number(status.offset_uncertainty),
+        "wald": number(status.wald),
+        "wald_threshold": number(status.threshold),
+        "dof": status.dof,
+        "significant": status.significant,
+        "gain_beyond_tolerance": status.gain_beyond_tolerance,
+        "offset_beyond_tolerance": status.offset_beyond_tolerance,
+    })
+}
+
+/// Per-detector counts (signals and screened samples, not raised alarms).
+pub fn detectors_json<R: Real>(monitor: &Monitor<R>) -> Value {
+    let counts = monitor.detector_counts();
+    json!({
+        "spikes": counts.spikes,
+        "out_of_range": counts.out_of_range,
+        "stuck_samples": counts.stuck_samples,
+        "unresponsive_windows": counts.unresponsive_windows,
+        "cusum_checks": counts.cusum_checks,
+        "cusum_signals": counts.cusum_signals,
+        "spread_jump_signals": counts.spread_jump_signals,
+        "drift_evaluations": counts.drift_evaluations,
+        "drift_significant": counts.drift_significant,
+        "gap_samples": counts.gap_samples,
     })
 }

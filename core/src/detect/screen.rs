@@ -7,9 +7,12 @@
 //!   `stuck_window` checks, a raw range below `stuck_response` times the range of the
 //!   predictions while the reference moves (a sensor that no longer responds).
 //! - Spikes: a check whose standardized residual (by the spread model at its level, before
-//!   any fit sees it) is beyond `spike_bound` is rejected (`spike`) and excluded from every
-//!   fit. After `spike_run_limit` spikes in a row the screen stops rejecting: that is a
-//!   change of the sensor, which the CUSUM and drift detectors must see.
+//!   any fit sees it) is beyond `spike_bound` under every rung's spread model is rejected
+//!   (`spike`) and excluded from every fit. (Under the active rung alone, the scatter at the
+//!   top of the range of a still-wrong rung would be cut away, hiding the evidence the
+//!   ladder needs to move to the right rung; measured.) After `spike_run_limit` spikes in
+//!   a row the screen stops rejecting: that is a change of the sensor, which the CUSUM and
+//!   drift detectors must see.
 //! - Reference gap: time (sample time `t`) since the last check beyond
 //!   `reference_gap_seconds`.
 //!
@@ -107,11 +110,11 @@ impl<R: Real> Screen<R> {
         self.identical_run
     }
 
-    /// Whether a check with standardized residual `z` is a spike to reject. Isolated
-    /// spikes are rejected; from the `spike_run_limit`-th in a row on they are accepted.
+    /// Whether a check that is `beyond` the spike bound (under every rung's spread model,
+    /// see `PowerLadder::beyond_on_every_rung`) is a spike to reject. Isolated spikes are
+    /// rejected; from the `spike_run_limit`-th in a row on they are accepted.
     #[inline]
-    pub fn is_spike(&mut self, config: &ScreenConfig<R>, z: Option<R>) -> bool {
-        let beyond = matches!(z, Some(z) if !(z.abs() <= config.spike_bound));
+    pub fn is_spike(&mut self, config: &ScreenConfig<R>, beyond: bool) -> bool {
         if !beyond {
             self.spikes_in_a_row = 0;
             return false;
@@ -219,14 +222,13 @@ mod tests {
     fn spikes_are_rejected_until_they_persist() {
         let config = config();
         let mut screen = Screen::<f32>::new();
-        assert!(!screen.is_spike(&config, None));
-        assert!(!screen.is_spike(&config, Some(5.9)));
-        assert!(screen.is_spike(&config, Some(-7.0)));
-        assert!(!screen.is_spike(&config, Some(0.0)));
-        assert!(screen.is_spike(&config, Some(8.0)));
-        assert!(screen.is_spike(&config, Some(8.0)));
-        assert!(!screen.is_spike(&config, Some(8.0))); // third in a row: a change
-        assert!(!screen.is_spike(&config, Some(8.0)));
+        assert!(!screen.is_spike(&config, false));
+        assert!(screen.is_spike(&config, true));
+        assert!(!screen.is_spike(&config, false));
+        assert!(screen.is_spike(&config, true));
+        assert!(screen.is_spike(&config, true));
+        assert!(!screen.is_spike(&config, true)); // third in a row: a change
+        assert!(!screen.is_spike(&config, true));
     }
 
     #[test]
