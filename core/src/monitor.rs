@@ -235,7 +235,7 @@ impl<R: Real> MonitorConfig<R> {
             },
             level_origin: self.level_origin,
             level_scale: scale,
-            level_floor: R::HALF * self.level_low / scale,
+            level_floor: self.level_low / scale,
             warm_up: self.warm_up,
             switch_margin: self.switch_margin,
             switch_hold: self.switch_hold,
