@@ -105,7 +105,7 @@ impl<'a> Profiler<'a> {
         start: &[f64],
     ) -> Result<Profiler<'a>, BoxCoxError> {
         for (row, &y) in response.iter().enumerate() {
-            if !(y - origin > 0.0) || !y.is_finite() {
+            if !super::above(y - origin, 0.0) || !y.is_finite() {
                 return Err(BoxCoxError::NotAboveOrigin { row, origin });
             }
         }
@@ -121,7 +121,7 @@ impl<'a> Profiler<'a> {
             start: start.to_vec(),
         };
         let fitted = profiler.scaled_fitted(start);
-        if let Some(row) = fitted.iter().position(|u| !(*u > 0.0)) {
+        if let Some(row) = fitted.iter().position(|u| !super::above(*u, 0.0)) {
             return Err(BoxCoxError::FittedNotAboveOrigin { row });
         }
         Ok(profiler)

@@ -119,7 +119,7 @@ pub fn chi_squared_upper_tail(x: f64, df: f64) -> Option<f64> {
 /// 1e-9 relative (`t.cdf(t.ppf(0.975, 6), 6) = 0.97499999992`); this value satisfies the CDF
 /// to a few ulps.
 pub fn t_quantile(p: f64, df: f64) -> Option<f64> {
-    if !(p > 0.0 && p < 1.0) || !(df > 0.0) {
+    if !(p > 0.0 && p < 1.0 && df > 0.0) {
         return None;
     }
     if p == 0.5 {

@@ -233,6 +233,11 @@ pub struct Assessment {
     pub caution: &'static str,
 }
 
+/// `value > bound`, false for a NaN (spelled out so that negations read clearly).
+pub(crate) fn above(value: f64, bound: f64) -> bool {
+    value > bound
+}
+
 fn check_column(column: &'static str, values: &[f64], expected: usize) -> Result<(), AssessError> {
     if values.len() != expected {
         return Err(AssessError::LengthMismatch {
@@ -371,7 +376,7 @@ pub fn assess(data: &CalibrationData, options: &AssessOptions) -> Result<Assessm
             notes.push("no spread model: fewer than three usable levels or bins".into());
             None
         }
-        Some(spread) if fitted_level.iter().any(|l| !(*l > 0.0)) => {
+        Some(spread) if fitted_level.iter().any(|l| !above(*l, 0.0)) => {
             let _ = spread;
             notes.push("no WLS fit: a fitted level is not above the level origin".into());
             None

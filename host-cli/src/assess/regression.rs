@@ -161,9 +161,8 @@ pub fn least_squares(
             return Err(RegressionError::RankDeficient { column });
         }
     }
-    for column in 0..columns {
-        let norm = column_norms[column];
-        scaled.column_mut(column).unscale_mut(norm);
+    for (column, norm) in column_norms.iter().enumerate() {
+        scaled.column_mut(column).unscale_mut(*norm);
     }
     let weighted_response =
         DVector::from_iterator(rows, (0..rows).map(|i| response[i] * root_weights[i]));
@@ -268,7 +267,7 @@ impl QrSolver {
             .fold(0.0_f64, f64::max);
         for column in 0..columns {
             let diagonal = r[(column, column)].abs();
-            if !(diagonal > columns as f64 * f64::EPSILON * largest) {
+            if !super::above(diagonal, columns as f64 * f64::EPSILON * largest) {
                 return Err(RegressionError::RankDeficient { column });
             }
         }
@@ -347,7 +346,7 @@ pub fn lack_of_fit(
             .map(|&i| weights[i] * (values[i] - mean).powi(2))
             .sum::<f64>();
     }
-    if !(pure_error_ss > 0.0) {
+    if !super::above(pure_error_ss, 0.0) {
         return None;
     }
     let pure_error_df = observations - group_count;
