@@ -66,7 +66,12 @@ impl<R: Real> Basis<R> {
     }
     /// Inverse prediction: the reference value whose mean raw output is `raw`, or `None`
     /// when there is none (zero slope, no real root, non-finite input).
-    pub fn invert<const P: usize>(&self, scaled: &[R; P], raw: R, temperature: Option<R>) -> Option<R> {
+    pub fn invert<const P: usize>(
+        &self,
+        scaled: &[R; P],
+        raw: R,
+        temperature: Option<R>,
+    ) -> Option<R> {
         let _ = (scaled, raw, temperature);
         unimplemented!()
     }

@@ -1,0 +1,281 @@
+//! The power ladder: one shadow calibration fit per Box–Cox rung, compared by their profile
+//! log-likelihood on the raw scale.
+//!
+//! Every rung keeps the calibration mean on the raw scale, `raw = f(ref; θ)`, and transforms
+//! both sides through it (Carroll & Ruppert): its residual is `g_λ(raw) − g_λ(f)`. To first
+//! order that is weighted least squares with weight `g_λ'(f)² = f^(2λ−2)`, so each rung is a
+//! [`RecursiveFit`] updated with that weight evaluated at the rung's own current prediction.
+//! A transform therefore changes how the scatter is treated and never bends the line. The
+//! regressor is never transformed.
+//!
+//! Rungs are compared by the Box–Cox profile log-likelihood
+//! `ℓ(λ) = −(N/2)·ln(RSS_λ/N) + (λ − 1)·Σ ln u`, with `RSS_λ` the sum of squared transformed
+//! residuals and `u` the scaled level, all kept as exponentially weighted running sums at the
+//! fits' forgetting rate. Levels are scaled by a fixed `level_scale` so that the transforms
+//! stay well conditioned in `f32`; the scale cancels in every difference of `ℓ`.
+//!
+//! # Invariants
+//! - The active rung always has a fit that has seen every sample the other rungs saw, so a
+//!   switch hands over a warmed-up fit and causes no transient.
+//! - The likelihood sums only take samples that every rung could use (level above the
+//!   origin, prediction above the origin), so the rungs are compared on the same data.
+//! - A rung only becomes active after it has led the active rung by `switch_margin` for
+//!   `switch_hold` consecutive checks.
+
+use serde::{Deserialize, Serialize};
+
+use crate::fit::{FitConfig, RecursiveFit};
+use crate::real::Real;
+use crate::transform::{Rung, RUNG_COUNT};
+
+/// Settings of a [`PowerLadder`].
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct LadderConfig<R> {
+    /// Settings of every rung's fit.
+    pub fit: FitConfig<R>,
+    /// Levels are measured above this origin; power rungs need values above it.
+    pub level_origin: R,
+    /// Levels are divided by this scale before transforming (for example the geometric
+    /// mean of the working range).
+    pub level_scale: R,
+    /// Smallest scaled prediction used for a weight (keeps weights bounded near the origin).
+    pub level_floor: R,
+    /// Checks before the likelihood sums start (the fits are still poor before).
+    pub warm_up: u32,
+    /// Log-likelihood lead a rung needs over the active one to count as winning.
+    pub switch_margin: R,
+    /// Consecutive winning checks needed for a switch.
+    pub switch_hold: u32,
+}
+
+/// The state of one rung.
+#[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(bound = "R: Real")]
+pub struct RungState<R, const P: usize> {
+    /// The rung's calibration fit (raw-scale mean, transform-both-sides weights).
+    pub fit: RecursiveFit<R, P>,
+    /// Exponentially weighted sum of squared transformed residuals.
+    pub transformed_sse: R,
+}
+
+/// A switch of the active rung.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Switch<R> {
+    /// Previous rung.
+    pub from: Rung,
+    /// New rung.
+    pub to: Rung,
+    /// Log-likelihood lead of `to` over `from` at the switch.
+    pub gain: R,
+}
+
+/// What one check did to the ladder, seen from the active rung before the update.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct LadderStep<R> {
+    /// The active rung's a-priori prediction of the raw value.
+    pub prediction: R,
+    /// `raw − prediction`.
+    pub residual: R,
+    /// The residual standardized by the active rung's spread model at this level,
+    /// including the uncertainty of the prediction. `None` until the fit has a residual
+    /// variance.
+    pub standardized: Option<R>,
+    /// The value or the prediction was at or below the origin: the power rungs skipped it.
+    pub below_origin: bool,
+    /// A switch that happened on this check.
+    pub switch: Option<Switch<R>>,
+}
+
+/// Shadow fits on every rung, and the choice between them.
+#[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(bound = "R: Real")]
+pub struct PowerLadder<R, const P: usize> {
+    rungs: [RungState<R, P>; RUNG_COUNT],
+    log_level_sum: R,
+    sample_weight: R,
+    active: Rung,
+    candidate: Option<Rung>,
+    lead: u32,
+    checks: u32,
+}
+
+impl<R: Real, const P: usize> PowerLadder<R, P> {
+    /// A ladder of `dim`-parameter fits, starting on `initial` rung.
+    pub fn new(dim: usize, config: &LadderConfig<R>, initial: Rung) -> Self {
+        let rung = || RungState {
+            fit: RecursiveFit::new(dim, config.fit),
+            transformed_sse: R::ZERO,
+        };
+        PowerLadder {
+            rungs: [rung(), rung(), rung(), rung(), rung()],
+            log_level_sum: R::ZERO,
+            sample_weight: R::ZERO,
+            active: initial,
+            candidate: None,
+            lead: 0,
+            checks: 0,
+        }
+    }
+
+    /// The rung the calibration currently uses.
+    pub fn active(&self) -> Rung {
+        self.active
+    }
+
+    /// The fit of a rung.
+    pub fn fit(&self, rung: Rung) -> &RecursiveFit<R, P> {
+        &self.rungs[rung.index()].fit
+    }
+
+    /// The active rung's fit.
+    pub fn active_fit(&self) -> &RecursiveFit<R, P> {
+        self.fit(self.active)
+    }
+
+    /// Checks seen.
+    pub fn checks(&self) -> u32 {
+        self.checks
+    }
+
+    /// True once the likelihood sums have started.
+    pub fn warmed_up(&self, config: &LadderConfig<R>) -> bool {
+        self.checks > config.warm_up
+    }
+
+    /// The scaled level `(value − origin) / scale`.
+    #[inline]
+    pub fn scaled_level(config: &LadderConfig<R>, value: R) -> R {
+        (value - config.level_origin) / config.level_scale
+    }
+
+    /// Weight of `rung` at raw-scale prediction `prediction` (bounded below by the floor).
+    #[inline]
+    pub fn weight(config: &LadderConfig<R>, rung: Rung, prediction: R) -> R {
+        let scaled = Self::scaled_level(config, prediction).max(config.level_floor);
+        rung.weight(scaled)
+    }
+
+    /// Profile log-likelihood of every rung (`None` before the sums start).
+    pub fn log_likelihoods(&self) -> Option<[R; RUNG_COUNT]> {
+        if !(self.sample_weight > R::ONE) {
+            return None;
+        }
+        let n = self.sample_weight;
+        let mut out = [R::ZERO; RUNG_COUNT];
+        for rung in Rung::ALL {
+            let sse = self.rungs[rung.index()]
+                .transformed_sse
+                .max(R::MIN_POSITIVE);
+            out[rung.index()] =
+                -(n * R::HALF) * (sse / n).ln() + rung.log_jacobian(self.log_level_sum);
+        }
+        Some(out)
+    }
+
+    /// The rung with the highest profile log-likelihood, and that log-likelihood.
+    pub fn best(&self) -> Option<(Rung, R)> {
+        let likelihoods = self.log_likelihoods()?;
+        let mut best = (self.active, likelihoods[self.active.index()]);
+        for rung in Rung::ALL {
+            if likelihoods[rung.index()] > best.1 {
+                best = (rung, likelihoods[rung.index()]);
+            }
+        }
+        Some(best)
+    }
+
+    /// One check: `x` the regressors of the reference, `raw` the sensor output.
+    /// The caller has screened `raw` and `x` to be finite.
+    pub fn update(&mut self, config: &LadderConfig<R>, x: &[R; P], raw: R) -> LadderStep<R> {
+        let active = self.active;
+        let active_fit = &self.rungs[active.index()].fit;
+        let prediction = active_fit.predict(x);
+        let residual = raw - prediction;
+        let standardized = {
+            let variance = active_fit.residual_variance();
+            let weight = Self::weight(config, active, prediction);
+            let spread = variance * (R::ONE / weight + active_fit.leverage(x));
+            if active_fit.updates() as usize > active_fit.dim() && spread > R::ZERO {
+                Some(residual / spread.sqrt())
+            } else {
+                None
+            }
+        };
+
+        let raw_level = Self::scaled_level(config, raw);
+        let counting = self.checks >= config.warm_up;
+        let mut levels = [R::ZERO; RUNG_COUNT];
+        let mut below_origin = !(raw_level > R::ZERO);
+        for rung in Rung::ALL {
+            let level = Self::scaled_level(config, self.rungs[rung.index()].fit.predict(x));
+            levels[rung.index()] = level;
+            below_origin |= rung.needs_positive() && !(level > R::ZERO);
+        }
+        let mut transformed = [R::ZERO; RUNG_COUNT];
+        for rung in Rung::ALL {
+            if rung.needs_positive() && below_origin {
+                continue;
+            }
+            let level = levels[rung.index()];
+            if counting {
+                // Transformed residual against the a-priori prediction of this rung.
+                if let (Some(g_raw), Some(g_fit)) = (rung.apply(raw_level), rung.apply(level)) {
+                    transformed[rung.index()] = g_raw - g_fit;
+                }
+            }
+            let weight = rung.weight(level.max(config.level_floor));
+            // A refused update (non-finite weight) leaves the rung as it was.
+            let _ = self.rungs[rung.index()].fit.update(x, raw, weight);
+        }
+        self.checks = self.checks.saturating_add(1);
+
+        let mut switch = None;
+        if counting && !below_origin {
+            let beta = config.fit.forgetting;
+            self.sample_weight = beta * self.sample_weight + R::ONE;
+            self.log_level_sum = beta * self.log_level_sum + raw_level.ln();
+            for rung in Rung::ALL {
+                let state = &mut self.rungs[rung.index()];
+                let e = transformed[rung.index()];
+                state.transformed_sse = beta * state.transformed_sse + e * e;
+            }
+            switch = self.decide(config);
+        }
+        LadderStep {
+            prediction,
+            residual,
+            standardized,
+            below_origin,
+            switch,
+        }
+    }
+
+    fn decide(&mut self, config: &LadderConfig<R>) -> Option<Switch<R>> {
+        let likelihoods = self.log_likelihoods()?;
+        let (best, best_likelihood) = self.best()?;
+        let lead = best_likelihood - likelihoods[self.active.index()];
+        if best == self.active || !(lead >= config.switch_margin) {
+            self.candidate = None;
+            self.lead = 0;
+            return None;
+        }
+        if self.candidate == Some(best) {
+            self.lead = self.lead.saturating_add(1);
+        } else {
+            self.candidate = Some(best);
+            self.lead = 1;
+        }
+        if self.lead < config.switch_hold {
+            return None;
+        }
+        let from = self.active;
+        self.active = best;
+        self.candidate = None;
+        self.lead = 0;
+        Some(Switch {
+            from,
+            to: best,
+            gain: lead,
+        })
+    }
+}
