@@ -27,6 +27,7 @@ pub mod limits;
 pub mod regression;
 pub mod render;
 pub mod replicates;
+pub mod run_file;
 pub mod spread_model;
 
 use serde::Serialize;
