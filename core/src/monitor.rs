@@ -470,7 +470,12 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 }
             }
         }
-        if warmed_up && self.counters.checks % self.config.spread_every as u64 == 0 {
+        if warmed_up
+            && self
+                .counters
+                .checks
+                .is_multiple_of(self.config.spread_every as u64)
+        {
             self.evaluate_spread(sample.seq, outcome);
         }
     }
