@@ -17,6 +17,9 @@
 //!   residual and `α = β/w + xᵀPx` (the a-priori × a-posteriori residual identity of RLS).
 //!   With `β = 1` and a large `P₀`, `J/(n − p)` equals the batch residual variance.
 
+// Index loops mirror the published algorithm's notation (U[i][j], D[j], f[j]).
+#![allow(clippy::needless_range_loop)]
+
 use serde::{Deserialize, Serialize};
 use serde_big_array::{Array, BigArray};
 
