@@ -766,7 +766,11 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             }
             return;
         }
-        if self.counters.checks % drift_config.every as u64 != 0 {
+        if !self
+            .counters
+            .checks
+            .is_multiple_of(drift_config.every as u64)
+        {
             return;
         }
         let (theta, covariance, variance) =
@@ -927,5 +931,92 @@ mod tests {
         assert_eq!(monitor.counters().checks, 0);
         assert_eq!(monitor.counters().rejected, 9);
         assert_eq!(monitor.events_dropped(), 1); // queue of 8, 9 rejections
+    }
+
+    fn line_monitor() -> Monitor<f64> {
+        let config = MonitorConfig::<f64>::default_for_range(1.0, 100.0);
+        let mut monitor: Monitor<f64> = Monitor::new(config).unwrap();
+        // A deterministic, slightly noisy line through 400 checks (invented, for the test).
+        for i in 0..400u64 {
+            let reference = 1.0 + (i % 50) as f64 * 2.0;
+            let noise = 0.01 * (((i * 7919) % 13) as f64 - 6.0);
+            monitor.push(&Sample::check(
+                i,
+                i as f64,
+                0.5 + 2.0 * reference + noise,
+                reference,
+            ));
+        }
+        while monitor.pop_event().is_some() {}
+        monitor
+    }
+
+    #[test]
+    fn out_of_range_is_rejected_and_raises() {
+        let mut monitor = line_monitor();
+        // Default physical range for [1, 100]: [-100, 200].
+        let mut raised = false;
+        for i in 0..3u64 {
+            let outcome = monitor.push(&Sample::reading(400 + i, 400.0, 250.0));
+            assert!(outcome.flags.contains(Flags::REJECTED));
+            while let Some(event) = monitor.pop_event() {
+                raised |=
+                    matches!(event.kind, EventKind::SignalOutOfRange { raw, .. } if raw == 250.0);
+            }
+        }
+        assert!(raised);
+        assert_eq!(
+            monitor.raised_alarms()[AlarmKind::SignalOutOfRange.index()],
+            Some(Severity::Alarm)
+        );
+        assert_eq!(monitor.detector_counts().out_of_range, 3);
+    }
+
+    #[test]
+    fn isolated_spike_is_excluded_from_the_fits() {
+        let mut monitor = line_monitor();
+        let before = monitor.ladder().active_fit().parameters();
+        let outcome = monitor.push(&Sample::check(400, 400.0, 150.0, 10.0));
+        assert!(outcome.flags.contains(Flags::REJECTED));
+        assert_eq!(monitor.ladder().active_fit().parameters(), before);
+        assert_eq!(monitor.detector_counts().spikes, 1);
+        assert_eq!(
+            monitor.pop_event().map(|e| e.kind),
+            Some(EventKind::SampleRejected {
+                reason: RejectReason::Spike
+            })
+        );
+    }
+
+    #[test]
+    fn baseline_is_checked_and_used() {
+        let mut monitor = line_monitor();
+        let mut covariance = [[0.0; 4]; 4];
+        covariance[0][0] = f64::NAN;
+        assert_eq!(
+            monitor.set_baseline([0.5, 2.0, 0.0, 0.0], Some(covariance)),
+            Err(BaselineError::NonFinite)
+        );
+        // A baseline 5 % below the true gain: the drift test reports and raises gain_drift.
+        monitor.set_baseline([0.5, 1.9, 0.0, 0.0], None).unwrap();
+        let mut raised = None;
+        for i in 400..600u64 {
+            let reference = 1.0 + (i % 50) as f64 * 2.0;
+            let noise = 0.01 * (((i * 7919) % 13) as f64 - 6.0);
+            monitor.push(&Sample::check(
+                i,
+                i as f64,
+                0.5 + 2.0 * reference + noise,
+                reference,
+            ));
+            while let Some(event) = monitor.pop_event() {
+                if let EventKind::GainDrift { change, .. } = event.kind {
+                    raised = Some(change);
+                }
+            }
+        }
+        let change = raised.expect("gain_drift");
+        assert!((change - (2.0 / 1.9 - 1.0)).abs() < 1e-3, "{change}");
+        assert!(monitor.drift_status().unwrap().gain_signal());
     }
 }

@@ -166,13 +166,10 @@ mod tests {
         let signal = cusum.update(&config, -6.0).unwrap();
         assert_eq!(signal.direction, Direction::Down);
         assert!((signal.size - 6.0).abs() < 1e-6);
-        assert!(
-            CusumConfig::<f32> {
-                reference_value: 0.5,
-                decision_interval: 0.0
-            }
-            .is_valid()
-                == false
-        );
+        let no_interval = CusumConfig::<f32> {
+            reference_value: 0.5,
+            decision_interval: 0.0,
+        };
+        assert!(!no_interval.is_valid());
     }
 }

@@ -201,6 +201,7 @@ pub struct DriftDetector<R> {
 
 /// Solves `A y = b` for a symmetric positive-definite `n × n` block (Cholesky) and
 /// returns `bᵀ A⁻¹ b`; `None` when `A` is not positive definite.
+#[allow(clippy::needless_range_loop)] // index notation mirrors the textbook algorithm
 fn quadratic_form<R: Real>(a: &[[R; 4]; 4], b: &[R; 4], n: usize) -> Option<R> {
     let mut l = [[R::ZERO; 4]; 4];
     for i in 0..n {
@@ -365,6 +366,22 @@ mod tests {
         assert!(close(covariance[0][1], 4.0 / 100.0));
         assert!(close(covariance[3][3], 4.0 / 100.0));
         assert!(close(covariance[2][2], 4.0 / 1e8));
+    }
+
+    #[test]
+    fn layout_agrees_with_basis_physical() {
+        for (quadratic, temperature) in [(false, false), (true, false), (false, true), (true, true)]
+        {
+            let mut b = basis();
+            b.quadratic = quadratic;
+            b.temperature = temperature;
+            let scaled = [0.5, 123.0, -7.0, 2.5];
+            let ours = Layout::of(&b).physical(&scaled);
+            let theirs = b.physical(&scaled);
+            for (a, c) in ours.iter().zip(theirs) {
+                assert!((a - c).abs() <= 1e-15 * c.abs(), "{ours:?} {theirs:?}");
+            }
+        }
     }
 
     #[test]
