@@ -501,6 +501,9 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     }
 
     fn flag_alarms(&self, outcome: &mut Outcome<R>) {
+        if !self.detectors.alarms.any_raised() {
+            return;
+        }
         for severity in self
             .detectors
             .alarms

@@ -338,7 +338,12 @@ pub fn alarms_json<R: Real>(monitor: &Monitor<R>) -> Value {
                 json!({
                     "kind": kind.name(),
                     "severity": severity.name(),
-                    "times_raised": monitor.alarm_raises(kind),
+                    // Only the detector alarms keep a raise count.
+                    "times_raised": if kind == AlarmKind::SpreadTracksLevel {
+                        Value::Null
+                    } else {
+                        json!(monitor.alarm_raises(kind))
+                    },
                 })
             })
         })

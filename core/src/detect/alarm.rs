@@ -143,6 +143,7 @@ pub struct AlarmState {
 
 impl AlarmState {
     /// One observation under `rule`.
+    #[inline]
     pub fn observe(&mut self, rule: &AlarmRule, present: bool) -> Option<Transition> {
         if present {
             self.quiet = 0;
@@ -188,6 +189,7 @@ impl AlarmBoard {
     }
 
     /// One observation of `kind`; kinds without a rule are ignored.
+    #[inline]
     pub fn observe(
         &mut self,
         rules: &AlarmRules,
@@ -201,6 +203,12 @@ impl AlarmBoard {
             *count = count.saturating_add(1);
         }
         transition
+    }
+
+    /// True while any kind is raised.
+    #[inline]
+    pub fn any_raised(&self) -> bool {
+        self.states.iter().any(AlarmState::raised)
     }
 
     /// True while `kind` is raised.
