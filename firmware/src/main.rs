@@ -1,0 +1,149 @@
+//! Example firmware: one steadycal monitor on a Cortex-M4F board (QEMU `mps2-an386`).
+//!
+//! It pushes every sample of the feed image embedded in flash (see build.rs) through
+//! `Monitor<f32>` with the same configuration `steadycal replay --precision f32` uses by
+//! default, prints each event as one canonical line over semihosting (see [`lines`]), then
+//! instruction counts per push and a summary line, and exits with semihosting's exit
+//! status: 0 when the whole feed ran, 1 otherwise.
+//!
+//! Instruction counts come from SysTick on the core clock: under QEMU with
+//! `-icount shift=0` one instruction takes 1 ns of virtual time and the board's 25 MHz
+//! clock ticks once per 40 instructions, deterministically. The firmware checks that ratio
+//! itself on a loop of known length and prints it (`counter` line).
+#![no_std]
+#![no_main]
+
+mod counter;
+mod feed;
+mod lines;
+
+use core::fmt::Write;
+
+use cortex_m_rt::entry;
+use cortex_m_semihosting::{debug, hio};
+use heapless::String;
+use steadycal_core::monitor::{Monitor, MonitorConfig};
+use steadycal_core::sample::Flags;
+
+use crate::counter::{Counter, Tally};
+
+/// Working range of the default replay configuration (`steadycal replay` defaults
+/// `--level-low 1 --level-high 1000`).
+const LEVEL_LOW: f64 = 1.0;
+const LEVEL_HIGH: f64 = 1000.0;
+
+type Line = String<320>;
+
+/// Writes one line over semihosting (one host call per line).
+fn emit(line: &Line) {
+    if let Ok(mut out) = hio::hstdout() {
+        let _ = out.write_all(line.as_bytes());
+        let _ = out.write_all(b"\n");
+    }
+}
+
+fn say(args: core::fmt::Arguments) {
+    let mut line = Line::new();
+    let _ = line.write_fmt(args);
+    emit(&line);
+}
+
+fn run() -> Result<(), &'static str> {
+    let peripherals = cortex_m::Peripherals::take().ok_or("peripherals taken")?;
+    let counter = Counter::start(peripherals.SYST);
+    let (loop_instructions, loop_ticks) = counter.calibrate();
+    say(format_args!("counter instructions={loop_instructions} ticks={loop_ticks}"));
+
+    // The host builds its f32 configuration from the f64 one in the same way.
+    let config: MonitorConfig<f32> = MonitorConfig::<f64>::default_for_range(LEVEL_LOW, LEVEL_HIGH).convert();
+    let mut monitor: Monitor<f32> = Monitor::new(config).map_err(|error| error.parameter())?;
+    let feed = feed::FeedReader::new(feed::IMAGE).ok_or("feed image: bad magic")?;
+    let rows = feed.rows();
+
+    let mut warming_checks = Tally::default();
+    let mut live_checks = Tally::default();
+    let mut readings = Tally::default();
+    let mut rejected = Tally::default();
+    let mut events: u64 = 0;
+    let mut pushed: u32 = 0;
+    for sample in feed {
+        let before = counter.now();
+        let outcome = monitor.push(&sample);
+        let ticks = counter.since(before);
+        pushed += 1;
+        let tally = if outcome.flags.contains(Flags::REJECTED) {
+            &mut rejected
+        } else if sample.reference.is_none() {
+            &mut readings
+        } else if outcome.flags.contains(Flags::WARMING_UP) {
+            &mut warming_checks
+        } else {
+            &mut live_checks
+        };
+        tally.add(ticks);
+        while let Some(event) = monitor.pop_event() {
+            events += 1;
+            let mut line = Line::new();
+            let _ = lines::event_line(&mut line, &event, sample.t);
+            emit(&line);
+        }
+    }
+    if pushed != rows {
+        return Err("feed image truncated");
+    }
+
+    for (name, tally) in [("check_warming_up", &warming_checks), ("check_live", &live_checks), ("reading", &readings), ("rejected", &rejected)] {
+        say(format_args!(
+            "timing {name} pushes={} ticks={} max_ticks={} min_ticks={}",
+            tally.pushes, tally.ticks, tally.max, tally.min_or_zero()
+        ));
+    }
+    say(format_args!("memory monitor_bytes={}", core::mem::size_of::<Monitor<f32>>()));
+
+    let counters = monitor.counters();
+    let params = monitor.parameters();
+    let mut line = Line::new();
+    let _ = write!(
+        line,
+        "summary samples={} checks={} readings={} rejected={} below_origin={} rung={} events={} events_dropped={}",
+        counters.samples,
+        counters.checks,
+        counters.readings,
+        counters.rejected,
+        counters.below_origin,
+        monitor.rung().name(),
+        events,
+        monitor.events_dropped()
+    );
+    for (key, value) in ["offset", "gain", "quadratic", "temperature"].into_iter().zip(params) {
+        let _ = lines::put_f32(&mut line, key, value);
+    }
+    emit(&line);
+    Ok(())
+}
+
+#[entry]
+fn main() -> ! {
+    let status = match run() {
+        Ok(()) => debug::EXIT_SUCCESS,
+        Err(message) => {
+            say(format_args!("error {message}"));
+            debug::EXIT_FAILURE
+        }
+    };
+    debug::exit(status);
+    loop {
+        cortex_m::asm::wfi();
+    }
+}
+
+#[panic_handler]
+fn panic(info: &core::panic::PanicInfo) -> ! {
+    let mut line = Line::new();
+    let _ = write!(line, "panic {info}");
+    emit(&line);
+    debug::exit(debug::EXIT_FAILURE);
+    loop {
+        cortex_m::asm::wfi();
+    }
+}
