@@ -38,7 +38,9 @@ fn bench_type<R: Real>(c: &mut Criterion, name: &str) {
         b.iter(|| {
             let (raw, reference) = pairs[i & 4095];
             i += 1;
-            let outcome = monitor.push(black_box(&Sample::check(i as u64, i as f64, raw, reference)));
+            let outcome = monitor.push(black_box(&Sample::check(
+                i as u64, i as f64, raw, reference,
+            )));
             while monitor.pop_event().is_some() {}
             outcome
         })

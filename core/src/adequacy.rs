@@ -66,7 +66,12 @@ pub fn chi_square_quantile<R: Real>(dof: u32, z: R) -> R {
 impl<R: Real, const BINS: usize> MeanCheck<R, BINS> {
     /// An empty, disarmed check.
     pub fn new() -> Self {
-        MeanCheck { sums: [R::ZERO; BINS], counts: [0; BINS], since_reset: 0, armed: false }
+        MeanCheck {
+            sums: [R::ZERO; BINS],
+            counts: [0; BINS],
+            since_reset: 0,
+            armed: false,
+        }
     }
 
     /// Clears the sums and arms the check (called at a switch).

@@ -34,7 +34,9 @@ impl Severity {
 
     /// Parses a name written by [`Severity::name`].
     pub fn from_name(name: &str) -> Option<Severity> {
-        [Severity::Info, Severity::Warn, Severity::Alarm].into_iter().find(|s| s.name() == name)
+        [Severity::Info, Severity::Warn, Severity::Alarm]
+            .into_iter()
+            .find(|s| s.name() == name)
     }
 }
 
@@ -324,7 +326,10 @@ impl<R: Real, const Q: usize> Default for EventQueue<R, Q> {
 impl<R: Real, const Q: usize> EventQueue<R, Q> {
     /// An empty queue.
     pub const fn new() -> Self {
-        EventQueue { events: Deque::new(), dropped: 0 }
+        EventQueue {
+            events: Deque::new(),
+            dropped: 0,
+        }
     }
 
     /// Appends an event; returns `false` (and counts the drop) when the queue is full.

@@ -163,7 +163,9 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         let n = self.sample_weight;
         let mut out = [R::ZERO; RUNG_COUNT];
         for rung in Rung::ALL {
-            let sse = self.rungs[rung.index()].transformed_sse.max(R::MIN_POSITIVE);
+            let sse = self.rungs[rung.index()]
+                .transformed_sse
+                .max(R::MIN_POSITIVE);
             out[rung.index()] =
                 -(n * R::HALF) * (sse / n).ln() + rung.log_jacobian(self.log_level_sum);
         }
@@ -239,7 +241,13 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             }
             switch = self.decide(config);
         }
-        LadderStep { prediction, residual, standardized, below_origin, switch }
+        LadderStep {
+            prediction,
+            residual,
+            standardized,
+            below_origin,
+            switch,
+        }
     }
 
     fn decide(&mut self, config: &LadderConfig<R>) -> Option<Switch<R>> {
@@ -264,6 +272,10 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         self.active = best;
         self.candidate = None;
         self.lead = 0;
-        Some(Switch { from, to: best, gain: lead })
+        Some(Switch {
+            from,
+            to: best,
+            gain: lead,
+        })
     }
 }

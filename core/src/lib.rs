@@ -15,6 +15,8 @@
 #![no_std]
 #![forbid(unsafe_code)]
 #![deny(missing_docs)]
+// `!(a > b)` is used on purpose: it is true for NaN, which is how the core refuses NaN.
+#![allow(clippy::neg_cmp_op_on_partial_ord)]
 
 #[cfg(test)]
 extern crate std;

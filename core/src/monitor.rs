@@ -163,7 +163,9 @@ impl<R: Real> MonitorConfig<R> {
         if !self.level_origin.is_finite() {
             return Err(ConfigError::LevelOrigin);
         }
-        if !(positive(self.level_low) && positive(self.level_high) && self.level_low < self.level_high)
+        if !(positive(self.level_low)
+            && positive(self.level_high)
+            && self.level_low < self.level_high)
         {
             return Err(ConfigError::LevelRange);
         }
@@ -173,7 +175,10 @@ impl<R: Real> MonitorConfig<R> {
         if !positive(self.spread_threshold) {
             return Err(ConfigError::SpreadThreshold);
         }
-        if !(positive(self.coverage_factor) && positive(self.interval_z) && positive(self.mean_check_z)) {
+        if !(positive(self.coverage_factor)
+            && positive(self.interval_z)
+            && positive(self.mean_check_z))
+        {
             return Err(ConfigError::Quantile);
         }
         if self.spread_every == 0 {
@@ -224,7 +229,10 @@ impl<R: Real> MonitorConfig<R> {
     pub fn ladder(&self) -> LadderConfig<R> {
         let scale = (self.level_low * self.level_high).sqrt();
         LadderConfig {
-            fit: FitConfig { forgetting: self.forgetting, initial_variance: self.initial_variance },
+            fit: FitConfig {
+                forgetting: self.forgetting,
+                initial_variance: self.initial_variance,
+            },
             level_origin: self.level_origin,
             level_scale: scale,
             level_floor: R::HALF * self.level_low / scale,
@@ -339,7 +347,9 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
 
     /// The active calibration in physical units: `[offset, gain, quadratic, temperature]`.
     pub fn parameters(&self) -> [R; 4] {
-        self.config.basis.physical(&self.ladder.active_fit().parameters())
+        self.config
+            .basis
+            .physical(&self.ladder.active_fit().parameters())
     }
 
     /// Takes the oldest waiting event.
@@ -367,7 +377,11 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
 
     /// Processes one sample. Never panics, whatever the values.
     pub fn push(&mut self, sample: &Sample<R>) -> Outcome<R> {
-        let mut outcome = Outcome { reading: None, flags: Flags::empty(), new_events: 0 };
+        let mut outcome = Outcome {
+            reading: None,
+            flags: Flags::empty(),
+            new_events: 0,
+        };
         self.counters.samples += 1;
         if !sample.raw.is_finite() {
             self.reject(sample, RejectReason::NonFiniteRaw, &mut outcome);
@@ -392,7 +406,13 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         outcome
     }
 
-    fn check(&mut self, sample: &Sample<R>, reference: R, temperature: Option<R>, outcome: &mut Outcome<R>) {
+    fn check(
+        &mut self,
+        sample: &Sample<R>,
+        reference: R,
+        temperature: Option<R>,
+        outcome: &mut Outcome<R>,
+    ) {
         outcome.flags.insert(Flags::CHECK);
         let x: [R; P] = self.config.basis.regressors(reference, temperature);
         let warmed_up = self.ladder.warmed_up(&self.ladder_config);
@@ -402,7 +422,13 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             self.counters.below_origin += 1;
             outcome.flags.insert(Flags::BELOW_ORIGIN);
             if step.switch.is_none() && self.ladder.active().needs_positive() {
-                self.raise(sample.seq, EventKind::SampleRejected { reason: RejectReason::BelowOrigin }, outcome);
+                self.raise(
+                    sample.seq,
+                    EventKind::SampleRejected {
+                        reason: RejectReason::BelowOrigin,
+                    },
+                    outcome,
+                );
             }
         }
         let level = step.prediction - self.config.level_origin;
@@ -415,14 +441,22 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         if let Some(switch) = step.switch {
             self.raise(
                 sample.seq,
-                EventKind::TransformChanged { from: switch.from, to: switch.to, gain: switch.gain },
+                EventKind::TransformChanged {
+                    from: switch.from,
+                    to: switch.to,
+                    gain: switch.gain,
+                },
                 outcome,
             );
             self.mean_check.arm();
         }
-        if self.mean_check.armed() && self.mean_check.since_reset() >= self.config.mean_check_after {
+        if self.mean_check.armed() && self.mean_check.since_reset() >= self.config.mean_check_after
+        {
             let z = self.config.mean_check_z;
-            if let Some(result) = self.mean_check.evaluate(self.config.mean_check_min_per_bin, z) {
+            if let Some(result) = self
+                .mean_check
+                .evaluate(self.config.mean_check_min_per_bin, z)
+            {
                 if result.misfit {
                     let basis = self.config.basis;
                     let kind = EventKind::MeanMisfit {
@@ -449,13 +483,28 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         };
         let half_width = self.config.interval_z * exponent.standard_error;
         let (k_low, k_high) = (exponent.k - half_width, exponent.k + half_width);
-        let tracks = koenker.statistic > self.config.spread_threshold && (k_low > R::ZERO || k_high < R::ZERO);
+        let tracks = koenker.statistic > self.config.spread_threshold
+            && (k_low > R::ZERO || k_high < R::ZERO);
         if tracks && !self.spread_raised {
             self.spread_raised = true;
-            self.raise(seq, EventKind::SpreadTracksLevel { k: exponent.k, k_low, k_high }, outcome);
+            self.raise(
+                seq,
+                EventKind::SpreadTracksLevel {
+                    k: exponent.k,
+                    k_low,
+                    k_high,
+                },
+                outcome,
+            );
         } else if self.spread_raised && koenker.statistic < R::HALF * self.config.spread_threshold {
             self.spread_raised = false;
-            self.raise(seq, EventKind::Cleared { alarm: AlarmKind::SpreadTracksLevel }, outcome);
+            self.raise(
+                seq,
+                EventKind::Cleared {
+                    alarm: AlarmKind::SpreadTracksLevel,
+                },
+                outcome,
+            );
         }
     }
 
@@ -464,7 +513,8 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             Some(reading) => {
                 self.counters.readings += 1;
                 outcome.reading = Some(reading);
-                if self.ladder.active().needs_positive() && !(sample.raw > self.config.level_origin) {
+                if self.ladder.active().needs_positive() && !(sample.raw > self.config.level_origin)
+                {
                     outcome.flags.insert(Flags::BELOW_ORIGIN);
                 }
             }
@@ -487,7 +537,8 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         let slope = basis.slope(&theta, value);
         let rung = self.ladder.active();
         let weight = PowerLadder::<R, P>::weight(&self.ladder_config, rung, prediction);
-        let variance = fit.residual_variance() * (R::ONE / weight + fit.leverage(&x)) / (slope * slope);
+        let variance =
+            fit.residual_variance() * (R::ONE / weight + fit.leverage(&x)) / (slope * slope);
         let standard_uncertainty = variance.sqrt();
         if !(value.is_finite() && standard_uncertainty.is_finite()) {
             return None;
@@ -522,7 +573,10 @@ mod tests {
         assert_eq!(error.parameter(), "forgetting");
         let mut config = MonitorConfig::<f32>::default_for_range(100.0, 1.0);
         config.level_low = 100.0;
-        assert_eq!(Monitor::<f32>::new(config).unwrap_err(), ConfigError::LevelRange);
+        assert_eq!(
+            Monitor::<f32>::new(config).unwrap_err(),
+            ConfigError::LevelRange
+        );
     }
 
     #[test]

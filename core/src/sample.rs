@@ -35,12 +35,24 @@ pub struct Sample<R> {
 impl<R: Real> Sample<R> {
     /// A sample with a reference value (a check).
     pub fn check(seq: u64, t: f64, raw: R, reference: R) -> Self {
-        Sample { seq, t, raw, reference: Some(reference), temperature: None }
+        Sample {
+            seq,
+            t,
+            raw,
+            reference: Some(reference),
+            temperature: None,
+        }
     }
 
     /// A sample without reference, to be turned into a calibrated reading.
     pub fn reading(seq: u64, t: f64, raw: R) -> Self {
-        Sample { seq, t, raw, reference: None, temperature: None }
+        Sample {
+            seq,
+            t,
+            raw,
+            reference: None,
+            temperature: None,
+        }
     }
 
     /// The same sample with a temperature.
@@ -110,7 +122,9 @@ impl Flags {
             "below_origin",
             "events_dropped",
         ];
-        (0..NAMES.len()).filter(move |bit| self.0 & (1 << bit) != 0).map(|bit| NAMES[bit])
+        (0..NAMES.len())
+            .filter(move |bit| self.0 & (1 << bit) != 0)
+            .map(|bit| NAMES[bit])
     }
 }
 

@@ -88,7 +88,9 @@ impl FeedError {
     /// The line the error is on, if it is about one line.
     pub fn line(&self) -> Option<u64> {
         match self {
-            FeedError::BadCell { location, .. } | FeedError::BadRow { location, .. } => Some(location.line),
+            FeedError::BadCell { location, .. } | FeedError::BadRow { location, .. } => {
+                Some(location.line)
+            }
             _ => None,
         }
     }
@@ -157,7 +159,10 @@ impl CsvFeed<Box<dyn Read>> {
         let input: Box<dyn Read> = if file == "-" {
             Box::new(std::io::stdin().lock())
         } else {
-            let handle = std::fs::File::open(path).map_err(|source| FeedError::Io { file: file.clone(), source })?;
+            let handle = std::fs::File::open(path).map_err(|source| FeedError::Io {
+                file: file.clone(),
+                source,
+            })?;
             Box::new(std::io::BufReader::with_capacity(1 << 16, handle))
         };
         CsvFeed::new(file, input, names)
@@ -167,7 +172,10 @@ impl CsvFeed<Box<dyn Read>> {
 impl<R: Read> CsvFeed<R> {
     /// Reads the header of a feed from any reader.
     pub fn new(file: String, input: R, names: &ColumnNames) -> Result<Self, FeedError> {
-        let mut reader = csv::ReaderBuilder::new().has_headers(true).flexible(false).from_reader(input);
+        let mut reader = csv::ReaderBuilder::new()
+            .has_headers(true)
+            .flexible(false)
+            .from_reader(input);
         let header = match reader.byte_headers() {
             Ok(header) => header.clone(),
             Err(error) => return Err(csv_error(&file, error)),
@@ -175,8 +183,18 @@ impl<R: Read> CsvFeed<R> {
         if header.is_empty() || (header.len() == 1 && header[0].is_empty()) {
             return Err(FeedError::Empty { file });
         }
-        let find = |name: &str| header.iter().position(|h| std::str::from_utf8(h).map(|h| h.trim() == name).unwrap_or(false));
-        let found = header.iter().map(|h| shorten(h)).collect::<Vec<_>>().join(", ");
+        let find = |name: &str| {
+            header.iter().position(|h| {
+                std::str::from_utf8(h)
+                    .map(|h| h.trim() == name)
+                    .unwrap_or(false)
+            })
+        };
+        let found = header
+            .iter()
+            .map(|h| shorten(h))
+            .collect::<Vec<_>>()
+            .join(", ");
         let raw = find(&names.raw).ok_or_else(|| FeedError::MissingColumn {
             file: file.clone(),
             column: names.raw.clone(),
@@ -188,7 +206,13 @@ impl<R: Read> CsvFeed<R> {
             reference: find(&names.reference),
             temperature: find(&names.temperature),
         };
-        Ok(CsvFeed { file, reader, columns, record: csv::ByteRecord::new(), row: 0 })
+        Ok(CsvFeed {
+            file,
+            reader,
+            columns,
+            record: csv::ByteRecord::new(),
+            row: 0,
+        })
     }
 
     /// The file name as given.
@@ -202,11 +226,24 @@ impl<R: Read> CsvFeed<R> {
     }
 
     fn location(&self, column: usize) -> Location {
-        let line = self.record.position().map(|p| p.line()).unwrap_or(self.row + 1);
-        Location { file: self.file.clone(), line, column }
+        let line = self
+            .record
+            .position()
+            .map(|p| p.line())
+            .unwrap_or(self.row + 1);
+        Location {
+            file: self.file.clone(),
+            line,
+            column,
+        }
     }
 
-    fn cell<T: FromStr>(&self, index: usize, name: &str, optional: bool) -> Result<Option<T>, FeedError> {
+    fn cell<T: FromStr>(
+        &self,
+        index: usize,
+        name: &str,
+        optional: bool,
+    ) -> Result<Option<T>, FeedError> {
         let cell = self.record.get(index).unwrap_or(b"");
         if cell.iter().all(|b| b.is_ascii_whitespace()) {
             if optional {
@@ -260,24 +297,45 @@ impl<R: Read> CsvFeed<R> {
             Some(index) => self.cell::<T>(index, "temp", true)?,
             None => None,
         };
-        Ok(Sample { seq, t, raw, reference, temperature })
+        Ok(Sample {
+            seq,
+            t,
+            raw,
+            reference,
+            temperature,
+        })
     }
 }
 
 fn csv_error(file: &str, error: csv::Error) -> FeedError {
     let line = error.position().map(|p| p.line()).unwrap_or(0);
-    let location = Location { file: file.to_string(), line, column: 0 };
+    let location = Location {
+        file: file.to_string(),
+        line,
+        column: 0,
+    };
     match error.into_kind() {
-        csv::ErrorKind::Io(source) => FeedError::Io { file: file.to_string(), source },
+        csv::ErrorKind::Io(source) => FeedError::Io {
+            file: file.to_string(),
+            source,
+        },
         csv::ErrorKind::Utf8 { err, .. } => FeedError::BadRow {
-            location: Location { column: err.field() + 1, ..location },
+            location: Location {
+                column: err.field() + 1,
+                ..location
+            },
             message: "invalid UTF-8, expected text".into(),
         },
-        csv::ErrorKind::UnequalLengths { expected_len, len, .. } => FeedError::BadRow {
+        csv::ErrorKind::UnequalLengths {
+            expected_len, len, ..
+        } => FeedError::BadRow {
             location,
             message: format!("{len} fields, expected {expected_len} as in the header"),
         },
-        other => FeedError::BadRow { location, message: format!("malformed CSV: {other:?}") },
+        other => FeedError::BadRow {
+            location,
+            message: format!("malformed CSV: {other:?}"),
+        },
     }
 }
 
@@ -293,7 +351,10 @@ mod tests {
     fn reads_columns_by_name() {
         let mut feed = feed("raw,extra,ref,t\n1.5,x,2,10\n2.5,y,,11\nnan,z,3,12\n").unwrap();
         let first: Sample<f64> = feed.next_sample().unwrap().unwrap();
-        assert_eq!((first.seq, first.t, first.raw, first.reference), (0, 10.0, 1.5, Some(2.0)));
+        assert_eq!(
+            (first.seq, first.t, first.raw, first.reference),
+            (0, 10.0, 1.5, Some(2.0))
+        );
         let second: Sample<f64> = feed.next_sample().unwrap().unwrap();
         assert_eq!(second.reference, None);
         let third: Sample<f64> = feed.next_sample().unwrap().unwrap();
@@ -311,7 +372,10 @@ mod tests {
 
     #[test]
     fn missing_raw_and_empty() {
-        assert!(matches!(feed("t,ref\n1,2\n"), Err(FeedError::MissingColumn { .. })));
+        assert!(matches!(
+            feed("t,ref\n1,2\n"),
+            Err(FeedError::MissingColumn { .. })
+        ));
         assert!(matches!(feed(""), Err(FeedError::Empty { .. })));
     }
 
@@ -320,6 +384,11 @@ mod tests {
         let mut feed = feed("t,raw,ref\n0,1,1\n1,2\n").unwrap();
         assert!(feed.next_sample::<f32>().unwrap().is_ok());
         let error = feed.next_sample::<f32>().unwrap().unwrap_err();
-        assert!(error.to_string().starts_with("feed.csv:3: 2 fields, expected 3"), "{error}");
+        assert!(
+            error
+                .to_string()
+                .starts_with("feed.csv:3: 2 fields, expected 3"),
+            "{error}"
+        );
     }
 }

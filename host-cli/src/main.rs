@@ -51,8 +51,8 @@ fn run_simulate(args: SimulateArgs) -> anyhow::Result<ExitCode> {
     use anyhow::Context;
     let text = std::fs::read_to_string(&args.scenario)
         .with_context(|| format!("{}: cannot read", args.scenario.display()))?;
-    let scenario: steadycal_cli::simulate::Scenario =
-        toml::from_str(&text).map_err(|error| anyhow::anyhow!("{}: {error}", args.scenario.display()))?;
+    let scenario: steadycal_cli::simulate::Scenario = toml::from_str(&text)
+        .map_err(|error| anyhow::anyhow!("{}: {error}", args.scenario.display()))?;
     let (rows, truth) = steadycal_cli::simulate::generate(&scenario);
     let mut out = replay::create_output(&args.out)?;
     steadycal_cli::simulate::write_csv(&rows, out.as_mut())?;
@@ -113,7 +113,12 @@ fn run_replay(args: ReplayArgs) -> anyhow::Result<ExitCode> {
         let s = &result.summary;
         eprintln!(
             "{} samples, {} checks, {} rejected; rung {}; spread exponent {}; events {}",
-            s["samples"], s["checks"], s["rejected"], s["rung"].as_str().unwrap_or("?"), s["spread_exponent"], s["events"]
+            s["samples"],
+            s["checks"],
+            s["rejected"],
+            s["rung"].as_str().unwrap_or("?"),
+            s["spread_exponent"],
+            s["events"]
         );
     }
     Ok(ExitCode::SUCCESS)

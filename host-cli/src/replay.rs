@@ -88,7 +88,13 @@ pub fn event_json<R: Real + Display>(event: &Event<R>, t: f64) -> Value {
             put("to", json!(to.name()));
             put("gain", number(gain));
         }
-        EventKind::MeanMisfit { rung, statistic, dof, suggest_quadratic, suggest_temperature } => {
+        EventKind::MeanMisfit {
+            rung,
+            statistic,
+            dof,
+            suggest_quadratic,
+            suggest_temperature,
+        } => {
             put("rung", json!(rung.name()));
             put("statistic", number(statistic));
             put("dof", json!(dof));
@@ -96,13 +102,25 @@ pub fn event_json<R: Real + Display>(event: &Event<R>, t: f64) -> Value {
             put("suggest_temperature", json!(suggest_temperature));
         }
         EventKind::SampleRejected { reason } => put("reason", json!(reason.name())),
-        EventKind::BiasShift { direction, size, severity } => {
+        EventKind::BiasShift {
+            direction,
+            size,
+            severity,
+        } => {
             put("direction", json!(direction.name()));
             put("size", number(size));
             put("severity", json!(severity.name()));
         }
-        EventKind::GainDrift { change, uncertainty, severity }
-        | EventKind::OffsetDrift { change, uncertainty, severity } => {
+        EventKind::GainDrift {
+            change,
+            uncertainty,
+            severity,
+        }
+        | EventKind::OffsetDrift {
+            change,
+            uncertainty,
+            severity,
+        } => {
             put("change", number(change));
             put("uncertainty", number(uncertainty));
             put("severity", json!(severity.name()));
@@ -133,7 +151,8 @@ pub fn create_output(path: &Path) -> Result<Box<dyn Write>> {
     if path.as_os_str() == "-" {
         Ok(Box::new(BufWriter::new(std::io::stdout().lock())))
     } else {
-        let file = File::create(path).with_context(|| format!("{}: cannot create", path.display()))?;
+        let file =
+            File::create(path).with_context(|| format!("{}: cannot create", path.display()))?;
         Ok(Box::new(BufWriter::with_capacity(1 << 16, file)))
     }
 }
@@ -156,7 +175,12 @@ pub fn replay(options: &ReplayOptions) -> Result<ReplayResult> {
     }
 }
 
-fn write_reading<R: Real + Display>(out: &mut dyn Write, sample: &Sample<R>, outcome: &Outcome<R>, rung: Rung) -> std::io::Result<()> {
+fn write_reading<R: Real + Display>(
+    out: &mut dyn Write,
+    sample: &Sample<R>,
+    outcome: &Outcome<R>,
+    rung: Rung,
+) -> std::io::Result<()> {
     let flags: Vec<&str> = outcome.flags.names().collect();
     match outcome.reading {
         Some(reading) => writeln!(
@@ -171,7 +195,15 @@ fn write_reading<R: Real + Display>(out: &mut dyn Write, sample: &Sample<R>, out
             reading.rung.name(),
             flags.join("|")
         ),
-        None => writeln!(out, "{},{},{},,,,{},{}", sample.seq, sample.t, sample.raw, rung.name(), flags.join("|")),
+        None => writeln!(
+            out,
+            "{},{},{},,,,{},{}",
+            sample.seq,
+            sample.t,
+            sample.raw,
+            rung.name(),
+            flags.join("|")
+        ),
     }
 }
 
@@ -181,14 +213,21 @@ where
     I: Read,
 {
     let config: MonitorConfig<R> = options.config.convert();
-    let mut monitor: Monitor<R> = Monitor::new(config)
-        .map_err(|error| anyhow::anyhow!("configuration: `{}` is out of range", error.parameter()))?;
+    let mut monitor: Monitor<R> = Monitor::new(config).map_err(|error| {
+        anyhow::anyhow!("configuration: `{}` is out of range", error.parameter())
+    })?;
     let mut events_out = options.events.as_deref().map(create_output).transpose()?;
     let mut readings_out = options.readings.as_deref().map(create_output).transpose()?;
     if let Some(out) = readings_out.as_mut() {
-        writeln!(out, "seq,t,raw,value,standard_uncertainty,expanded_uncertainty,rung,flags")?;
+        writeln!(
+            out,
+            "seq,t,raw,value,standard_uncertainty,expanded_uncertainty,rung,flags"
+        )?;
     }
-    let mut counts: BTreeMap<&'static str, u64> = EventKind::<R>::NAMES.iter().map(|name| (*name, 0)).collect();
+    let mut counts: BTreeMap<&'static str, u64> = EventKind::<R>::NAMES
+        .iter()
+        .map(|name| (*name, 0))
+        .collect();
     let mut error = None;
     let mut last_t = f64::NAN;
     while let Some(next) = feed.next_sample::<R>() {
@@ -220,7 +259,14 @@ where
     if let Some(mut out) = readings_out {
         out.flush()?;
     }
-    let summary = summary_json(&monitor, feed.file(), options.precision, &counts, last_t, error.as_ref());
+    let summary = summary_json(
+        &monitor,
+        feed.file(),
+        options.precision,
+        &counts,
+        last_t,
+        error.as_ref(),
+    );
     if let Some(path) = &options.summary {
         let mut out = create_output(path)?;
         serde_json::to_writer_pretty(&mut out, &summary)?;

@@ -26,11 +26,19 @@ pub struct NoiseModel {
 impl NoiseModel {
     /// Constant scatter.
     pub fn constant(sd: f64) -> Self {
-        NoiseModel { sd, exponent: 0.0, at_level: 1.0 }
+        NoiseModel {
+            sd,
+            exponent: 0.0,
+            at_level: 1.0,
+        }
     }
     /// SD ∝ level^exponent, `sd` at `at_level`.
     pub fn power(sd: f64, exponent: f64, at_level: f64) -> Self {
-        NoiseModel { sd, exponent, at_level }
+        NoiseModel {
+            sd,
+            exponent,
+            at_level,
+        }
     }
     /// The SD at a level.
     pub fn sd_at(&self, level: f64) -> f64 {
@@ -164,7 +172,11 @@ pub fn sensor_at(scenario: &Scenario, row: u64) -> SensorModel {
         if row < drift.start {
             continue;
         }
-        let fraction = if drift.rows == 0 { 1.0 } else { ((row - drift.start) as f64 / drift.rows as f64).min(1.0) };
+        let fraction = if drift.rows == 0 {
+            1.0
+        } else {
+            ((row - drift.start) as f64 / drift.rows as f64).min(1.0)
+        };
         gain_factor *= 1.0 + drift.gain * fraction;
         sensor.offset += drift.offset * fraction;
     }
@@ -205,7 +217,9 @@ pub fn generate(scenario: &Scenario) -> (Vec<Row>, GroundTruth) {
     let last = sensor_at(scenario, scenario.rows.saturating_sub(1));
     let truth = GroundTruth {
         exponent: scenario.noise.exponent,
-        rung: steadycal_core::transform::Rung::nearest(1.0 - scenario.noise.exponent).name().into(),
+        rung: steadycal_core::transform::Rung::nearest(1.0 - scenario.noise.exponent)
+            .name()
+            .into(),
         final_gain: last.gain,
         final_offset: last.offset,
         onsets: scenario.drift.iter().map(|d| d.start).collect(),
@@ -235,10 +249,25 @@ mod tests {
             seed: 3,
             rows: 2000,
             interval: 1.0,
-            sensor: SensorModel { offset: 1.0, gain: 2.0, quadratic: 0.0 },
+            sensor: SensorModel {
+                offset: 1.0,
+                gain: 2.0,
+                quadratic: 0.0,
+            },
             noise: NoiseModel::power(0.05, 1.0, 100.0),
-            reference: ReferenceSchedule { low: 5.0, high: 500.0, log_uniform: true, levels: vec![], every: 1 },
-            drift: vec![Drift { start: 1000, rows: 0, gain: 0.02, offset: 0.0 }],
+            reference: ReferenceSchedule {
+                low: 5.0,
+                high: 500.0,
+                log_uniform: true,
+                levels: vec![],
+                every: 1,
+            },
+            drift: vec![Drift {
+                start: 1000,
+                rows: 0,
+                gain: 0.02,
+                offset: 0.0,
+            }],
         }
     }
 

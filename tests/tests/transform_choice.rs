@@ -35,9 +35,19 @@ fn scenario(seed: u64, rows: u64, offset: f64, noise: NoiseModel) -> Scenario {
         seed,
         rows,
         interval: 1.0,
-        sensor: SensorModel { offset, gain: 1.0, quadratic: 0.0 },
+        sensor: SensorModel {
+            offset,
+            gain: 1.0,
+            quadratic: 0.0,
+        },
         noise,
-        reference: ReferenceSchedule { low: 5.0, high: 500.0, log_uniform: true, levels: vec![], every: 1 },
+        reference: ReferenceSchedule {
+            low: 5.0,
+            high: 500.0,
+            log_uniform: true,
+            levels: vec![],
+            every: 1,
+        },
         drift: vec![],
     }
 }
@@ -48,7 +58,12 @@ fn run(scenario: &Scenario) -> RunResult {
     let (rows, _) = generate(scenario);
     let mut switches = 0;
     for (seq, row) in rows.iter().enumerate() {
-        let sample = Sample::check(seq as u64, row.t, row.raw as f32, row.reference.unwrap() as f32);
+        let sample = Sample::check(
+            seq as u64,
+            row.t,
+            row.raw as f32,
+            row.reference.unwrap() as f32,
+        );
         monitor.push(&sample);
         while let Some(event) = monitor.pop_event() {
             if matches!(event.kind, EventKind::TransformChanged { .. }) {
@@ -56,7 +71,11 @@ fn run(scenario: &Scenario) -> RunResult {
             }
         }
     }
-    RunResult { rung: monitor.rung(), k: monitor.spread_exponent().map(|e| e.k), switches }
+    RunResult {
+        rung: monitor.rung(),
+        k: monitor.spread_exponent().map(|e| e.k),
+        switches,
+    }
 }
 
 fn run_seeds(rows: u64, offset: f64, noise: NoiseModel) -> Vec<RunResult> {
@@ -66,11 +85,17 @@ fn run_seeds(rows: u64, offset: f64, noise: NoiseModel) -> Vec<RunResult> {
             .chunks(seeds.len().div_ceil(2))
             .map(|chunk| {
                 scope.spawn(move || {
-                    chunk.iter().map(|&seed| run(&scenario(seed, rows, offset, noise))).collect::<Vec<_>>()
+                    chunk
+                        .iter()
+                        .map(|&seed| run(&scenario(seed, rows, offset, noise)))
+                        .collect::<Vec<_>>()
                 })
             })
             .collect();
-        handles.into_iter().flat_map(|h| h.join().unwrap()).collect()
+        handles
+            .into_iter()
+            .flat_map(|h| h.join().unwrap())
+            .collect()
     })
 }
 
@@ -80,9 +105,16 @@ fn assert_choice(name: &str, offset: f64, noise: NoiseModel, expected: Rung) {
     let right = results.iter().filter(|r| r.rung == expected).count() as f64;
     let k_close = results
         .iter()
-        .filter(|r| r.k.is_some_and(|k| (k as f64 - noise.exponent).abs() <= 0.1))
+        .filter(|r| {
+            r.k.is_some_and(|k| (k as f64 - noise.exponent).abs() <= 0.1)
+        })
         .count() as f64;
-    let mean_k = results.iter().filter_map(|r| r.k).map(|k| k as f64).sum::<f64>() / n;
+    let mean_k = results
+        .iter()
+        .filter_map(|r| r.k)
+        .map(|k| k as f64)
+        .sum::<f64>()
+        / n;
     eprintln!(
         "{name}: rung {} in {:.0}% of {} seeds, k within 0.1 in {:.0}%, mean k {mean_k:.3} (truth {})",
         expected.name(),
@@ -91,8 +123,14 @@ fn assert_choice(name: &str, offset: f64, noise: NoiseModel, expected: Rung) {
         100.0 * k_close / n,
         noise.exponent
     );
-    assert!(right / n >= 0.95, "{name}: right rung in only {right} of {n} seeds");
-    assert!(k_close / n >= 0.95, "{name}: k within 0.1 in only {k_close} of {n} seeds");
+    assert!(
+        right / n >= 0.95,
+        "{name}: right rung in only {right} of {n} seeds"
+    );
+    assert!(
+        k_close / n >= 0.95,
+        "{name}: k within 0.1 in only {k_close} of {n} seeds"
+    );
 }
 
 #[test]
@@ -102,23 +140,43 @@ fn constant_scatter_stays_identity() {
 
 #[test]
 fn proportional_scatter_picks_log() {
-    assert_choice("proportional", 0.0, NoiseModel::power(2.0, 1.0, 100.0), Rung::Log);
+    assert_choice(
+        "proportional",
+        0.0,
+        NoiseModel::power(2.0, 1.0, 100.0),
+        Rung::Log,
+    );
 }
 
 #[test]
 fn counting_scatter_picks_sqrt() {
-    assert_choice("counting", 0.0, NoiseModel::power(1.0, 0.5, 100.0), Rung::Sqrt);
+    assert_choice(
+        "counting",
+        0.0,
+        NoiseModel::power(1.0, 0.5, 100.0),
+        Rung::Sqrt,
+    );
 }
 
 #[test]
 fn steeper_scatter_picks_inv_sqrt() {
-    assert_choice("power 1.5", 0.0, NoiseModel::power(2.0, 1.5, 100.0), Rung::InvSqrt);
+    assert_choice(
+        "power 1.5",
+        0.0,
+        NoiseModel::power(2.0, 1.5, 100.0),
+        Rung::InvSqrt,
+    );
 }
 
 #[test]
 fn proportional_scatter_with_offset_still_picks_log() {
     // Offset 1.0 raw units = 10 SDs at the lowest level (SD at level 5 is 0.1).
-    assert_choice("proportional + offset", 1.0, NoiseModel::power(2.0, 1.0, 100.0), Rung::Log);
+    assert_choice(
+        "proportional + offset",
+        1.0,
+        NoiseModel::power(2.0, 1.0, 100.0),
+        Rung::Log,
+    );
 }
 
 #[test]
@@ -126,6 +184,9 @@ fn constant_scatter_never_switches_in_long_runs() {
     let rows = if FULL { 100_000 } else { 20_000 };
     let results = run_seeds(rows, 0.0, NoiseModel::constant(1.0));
     let switched = results.iter().filter(|r| r.switches > 0).count();
-    eprintln!("constant, {} seeds × {rows} checks: {switched} runs switched", results.len());
+    eprintln!(
+        "constant, {} seeds × {rows} checks: {switched} runs switched",
+        results.len()
+    );
     assert_eq!(switched, 0);
 }
