@@ -65,6 +65,7 @@ fn run() -> Result<(), &'static str> {
     let mut readings = Tally::default();
     let mut rejected = Tally::default();
     let mut events: u64 = 0;
+    let mut digest = ReadingDigest::new();
     let mut pushed: u32 = 0;
     for sample in feed {
         let before = counter.now();
@@ -81,6 +82,9 @@ fn run() -> Result<(), &'static str> {
             &mut live_checks
         };
         tally.add(ticks);
+        if sample.reference.is_none() {
+            digest.add(sample.seq, outcome.reading.map(|r| [r.value, r.standard_uncertainty, r.expanded_uncertainty]));
+        }
         while let Some(event) = monitor.pop_event() {
             events += 1;
             let mut line = Line::new();
@@ -99,6 +103,7 @@ fn run() -> Result<(), &'static str> {
         ));
     }
     say(format_args!("memory monitor_bytes={}", core::mem::size_of::<Monitor<f32>>()));
+    say(format_args!("readings count={} digest={:016x}", digest.count, digest.state));
 
     let counters = monitor.counters();
     let params = monitor.parameters();
@@ -120,6 +125,35 @@ fn run() -> Result<(), &'static str> {
     }
     emit(&line);
     Ok(())
+}
+
+/// FNV-1a (64-bit) over every reading sample: seq, then the bits of value, standard and
+/// expanded uncertainty (or a single 0xff byte when no reading was made). The host computes
+/// the same over `steadycal replay --readings`.
+struct ReadingDigest {
+    state: u64,
+    count: u32,
+}
+
+impl ReadingDigest {
+    fn new() -> Self {
+        ReadingDigest { state: 0xcbf2_9ce4_8422_2325, count: 0 }
+    }
+
+    fn bytes(&mut self, bytes: &[u8]) {
+        for byte in bytes {
+            self.state = (self.state ^ u64::from(*byte)).wrapping_mul(0x0000_0100_0000_01b3);
+        }
+    }
+
+    fn add(&mut self, seq: u64, reading: Option<[f32; 3]>) {
+        self.count += 1;
+        self.bytes(&seq.to_le_bytes());
+        match reading {
+            Some(values) => values.iter().for_each(|v| self.bytes(&v.to_bits().to_le_bytes())),
+            None => self.bytes(&[0xff]),
+        }
+    }
 }
 
 #[entry]

@@ -146,6 +146,35 @@ fn host_f32_configuration_is_the_firmware_one() {
     assert_eq!(converted, MonitorConfig::<f32>::default_for_range(1.0, 1000.0));
 }
 
+/// The firmware's `readings` line from the replay's readings CSV: FNV-1a (64-bit) over
+/// every row, seq then the f32 bits of value, standard and expanded uncertainty (one 0xff
+/// byte for a row without a reading), as `firmware/src/main.rs` computes it.
+fn readings_digest(csv: &str) -> Result<String, String> {
+    let mut state: u64 = 0xcbf2_9ce4_8422_2325;
+    let mut hash = |bytes: &[u8]| {
+        for byte in bytes {
+            state = (state ^ u64::from(*byte)).wrapping_mul(0x0000_0100_0000_01b3);
+        }
+    };
+    let mut count = 0;
+    for (index, row) in csv.lines().skip(1).enumerate() {
+        let cells: Vec<&str> = row.split(',').collect();
+        let bad = |what: &str| format!("readings row {}: {what}", index + 2);
+        let seq: u64 = cells.first().and_then(|c| c.parse().ok()).ok_or_else(|| bad("seq"))?;
+        hash(&seq.to_le_bytes());
+        if cells.get(3).is_none_or(|c| c.is_empty()) {
+            hash(&[0xff]);
+        } else {
+            for column in 3..6 {
+                let value: f32 = cells.get(column).and_then(|c| c.parse().ok()).ok_or_else(|| bad("value"))?;
+                hash(&value.to_bits().to_le_bytes());
+            }
+        }
+        count += 1;
+    }
+    Ok(format!("readings count={count} digest={state:016x}"))
+}
+
 fn workspace_root() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).parent().expect("workspace root").to_path_buf()
 }
@@ -197,11 +226,12 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
     // Host replay of the same CSV, as `steadycal replay --precision f32 --events --summary`.
     let events_path = scratch.join("host-events.jsonl");
     let summary_path = scratch.join("host-summary.json");
+    let readings_path = scratch.join("host-readings.csv");
     let options = ReplayOptions {
         feed: root.join("simulated-feeds/gas-cell.csv"),
         events: Some(events_path.clone()),
         summary: Some(summary_path.clone()),
-        readings: None,
+        readings: Some(readings_path.clone()),
         precision: Precision::F32,
         columns: ColumnNames::default(),
         config: MonitorConfig::default_for_range(1.0, 1000.0),
@@ -224,11 +254,15 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
     let board_summary = printed.lines().find(|line| line.starts_with("summary ")).expect("summary line");
     assert_eq!(board_summary, canonical_summary(&summary).unwrap(), "summaries differ (board, host)");
 
+    let board_readings = printed.lines().find(|line| line.starts_with("readings ")).expect("readings line");
+    let host_readings = readings_digest(&std::fs::read_to_string(&readings_path).unwrap()).unwrap();
+    assert_eq!(board_readings, host_readings, "calibrated readings differ (board, host)");
+
     let mut kinds: BTreeMap<&str, usize> = BTreeMap::new();
     for line in &board_events {
         *kinds.entry(line.split(' ').nth(2).unwrap_or("?")).or_default() += 1;
     }
-    eprintln!("firmware and host agree on {} events {kinds:?}; {board_summary}", board_events.len());
+    eprintln!("firmware and host agree on {} events {kinds:?}; {board_readings}; {board_summary}", board_events.len());
 }
 
 fn tail(text: &str) -> String {
