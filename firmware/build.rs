@@ -22,14 +22,21 @@ fn main() {
     let manifest = PathBuf::from(env::var("CARGO_MANIFEST_DIR").expect("CARGO_MANIFEST_DIR"));
     let target = env::var("TARGET").unwrap_or_default();
 
-    let memory_file = if target.starts_with("thumbv6m") { "cortex-m0-generic.x" } else { "mps2-an386.x" };
+    let memory_file = if target.starts_with("thumbv6m") {
+        "cortex-m0-generic.x"
+    } else {
+        "mps2-an386.x"
+    };
     let memory = fs::read(manifest.join(memory_file)).expect("memory file");
     fs::write(out.join("memory.x"), memory).expect("write memory.x");
     println!("cargo:rustc-link-search={}", out.display());
     println!("cargo:rerun-if-changed={memory_file}");
     if target.starts_with("thumb") {
         println!("cargo:rustc-link-arg=-Tlink.x");
-        println!("cargo:rustc-link-arg=-Map={}", out.join("firmware.map").display());
+        println!(
+            "cargo:rustc-link-arg=-Map={}",
+            out.join("firmware.map").display()
+        );
     }
 
     println!("cargo:rerun-if-env-changed=STEADYCAL_FEED");
@@ -38,7 +45,10 @@ fn main() {
         .map(PathBuf::from)
         .unwrap_or_else(|| manifest.join("../simulated-feeds/gas-cell.csv"));
     println!("cargo:rerun-if-changed={}", feed.display());
-    let limit = env::var("STEADYCAL_FEED_ROWS").ok().map(|v| v.parse::<usize>().expect("STEADYCAL_FEED_ROWS: a row count"));
+    let limit = env::var("STEADYCAL_FEED_ROWS").ok().map(|v| {
+        v.parse::<usize>()
+            .expect("STEADYCAL_FEED_ROWS: a row count")
+    });
     let image = match feed_image(&feed, limit) {
         Ok(image) => image,
         Err(message) => panic!("{}: {message}", feed.display()),
@@ -52,7 +62,10 @@ fn feed_image(path: &PathBuf, limit: Option<usize>) -> Result<Vec<u8>, String> {
         .flexible(false)
         .from_path(path)
         .map_err(|e| format!("cannot open: {e}"))?;
-    let header = reader.headers().map_err(|e| format!("header: {e}"))?.clone();
+    let header = reader
+        .headers()
+        .map_err(|e| format!("header: {e}"))?
+        .clone();
     let find = |name: &str| header.iter().position(|h| h.trim() == name);
     let time = find("t");
     let raw = find("raw").ok_or("no `raw` column in the header")?;
@@ -75,14 +88,22 @@ fn feed_image(path: &PathBuf, limit: Option<usize>) -> Result<Vec<u8>, String> {
             } else if text.parse::<f64>().is_ok() {
                 Ok(Some(text))
             } else {
-                Err(format!("line {line}, column `{name}`: expected a number, found `{text}`"))
+                Err(format!(
+                    "line {line}, column `{name}`: expected a number, found `{text}`"
+                ))
             }
         };
         let t = match time {
-            Some(index) => number(index, "t")?.ok_or(format!("line {line}: empty `t`"))?.parse::<f64>().unwrap(),
+            Some(index) => number(index, "t")?
+                .ok_or(format!("line {line}: empty `t`"))?
+                .parse::<f64>()
+                .unwrap(),
             None => seq as f64,
         };
-        let raw = number(raw, "raw")?.ok_or(format!("line {line}: empty `raw`"))?.parse::<f32>().unwrap();
+        let raw = number(raw, "raw")?
+            .ok_or(format!("line {line}: empty `raw`"))?
+            .parse::<f32>()
+            .unwrap();
         let reference = match reference {
             Some(index) => number(index, "ref")?.map(|text| text.parse::<f32>().unwrap()),
             None => None,
@@ -91,7 +112,9 @@ fn feed_image(path: &PathBuf, limit: Option<usize>) -> Result<Vec<u8>, String> {
             Some(index) => number(index, "temp")?.map(|text| text.parse::<f32>().unwrap()),
             None => None,
         };
-        let flags = u8::from(reference.is_some()) | (u8::from(temperature.is_some()) << 1) | (u8::from(time.is_some()) << 2);
+        let flags = u8::from(reference.is_some())
+            | (u8::from(temperature.is_some()) << 1)
+            | (u8::from(time.is_some()) << 2);
         rows.push(flags);
         rows.extend_from_slice(&t.to_bits().to_le_bytes());
         rows.extend_from_slice(&raw.to_bits().to_le_bytes());

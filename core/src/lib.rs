@@ -25,9 +25,13 @@ pub mod adequacy;
 pub mod basis;
 pub mod event;
 pub mod fit;
+#[cfg(feature = "hal")]
+pub mod hal;
 pub mod ladder;
 pub mod monitor;
 pub mod real;
 pub mod sample;
 pub mod spread;
 pub mod transform;
+#[cfg(feature = "defmt")]
+mod defmt_format;

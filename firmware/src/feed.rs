@@ -24,7 +24,12 @@ impl FeedReader {
             return None;
         }
         let rows = u32::from_le_bytes([bytes[4], bytes[5], bytes[6], bytes[7]]);
-        Some(FeedReader { bytes, position: 8, seq: 0, rows })
+        Some(FeedReader {
+            bytes,
+            position: 8,
+            seq: 0,
+            rows,
+        })
     }
 
     /// Rows the image says it holds.
@@ -40,7 +45,8 @@ impl FeedReader {
     }
 
     fn take_f32(&mut self) -> Option<f32> {
-        self.take::<4>().map(|b| f32::from_bits(u32::from_le_bytes(b)))
+        self.take::<4>()
+            .map(|b| f32::from_bits(u32::from_le_bytes(b)))
     }
 }
 
@@ -54,9 +60,23 @@ impl Iterator for FeedReader {
         let [flags] = self.take::<1>()?;
         let t = f64::from_bits(u64::from_le_bytes(self.take::<8>()?));
         let raw = self.take_f32()?;
-        let reference = if flags & 1 != 0 { Some(self.take_f32()?) } else { None };
-        let temperature = if flags & 2 != 0 { Some(self.take_f32()?) } else { None };
-        let sample = Sample { seq: self.seq, t, raw, reference, temperature };
+        let reference = if flags & 1 != 0 {
+            Some(self.take_f32()?)
+        } else {
+            None
+        };
+        let temperature = if flags & 2 != 0 {
+            Some(self.take_f32()?)
+        } else {
+            None
+        };
+        let sample = Sample {
+            seq: self.seq,
+            t,
+            raw,
+            reference,
+            temperature,
+        };
         self.seq += 1;
         Some(sample)
     }

@@ -46,18 +46,37 @@ pub fn event_line(out: &mut impl Write, event: &Event<f32>, t: f64) -> fmt::Resu
             write!(out, " from={} to={}", from.name(), to.name())?;
             put_f32(out, "gain", gain)
         }
-        EventKind::MeanMisfit { rung, statistic, dof, suggest_quadratic, suggest_temperature } => {
+        EventKind::MeanMisfit {
+            rung,
+            statistic,
+            dof,
+            suggest_quadratic,
+            suggest_temperature,
+        } => {
             write!(out, " rung={}", rung.name())?;
             put_f32(out, "statistic", statistic)?;
             write!(out, " dof={dof} suggest_quadratic={suggest_quadratic} suggest_temperature={suggest_temperature}")
         }
         EventKind::SampleRejected { reason } => write!(out, " reason={}", reason.name()),
-        EventKind::BiasShift { direction, size, severity } => {
+        EventKind::BiasShift {
+            direction,
+            size,
+            severity,
+        } => {
             write!(out, " direction={}", direction.name())?;
             put_f32(out, "size", size)?;
             write!(out, " severity={}", severity.name())
         }
-        EventKind::GainDrift { change, uncertainty, severity } | EventKind::OffsetDrift { change, uncertainty, severity } => {
+        EventKind::GainDrift {
+            change,
+            uncertainty,
+            severity,
+        }
+        | EventKind::OffsetDrift {
+            change,
+            uncertainty,
+            severity,
+        } => {
             put_f32(out, "change", change)?;
             put_f32(out, "uncertainty", uncertainty)?;
             write!(out, " severity={}", severity.name())
@@ -66,7 +85,9 @@ pub fn event_line(out: &mut impl Write, event: &Event<f32>, t: f64) -> fmt::Resu
             put_f32(out, "ratio", ratio)?;
             write!(out, " severity={}", severity.name())
         }
-        EventKind::SignalStuck { run, severity } => write!(out, " run={run} severity={}", severity.name()),
+        EventKind::SignalStuck { run, severity } => {
+            write!(out, " run={run} severity={}", severity.name())
+        }
         EventKind::SignalOutOfRange { raw, severity } => {
             put_f32(out, "raw", raw)?;
             write!(out, " severity={}", severity.name())

@@ -52,10 +52,13 @@ fn run() -> Result<(), &'static str> {
     let peripherals = cortex_m::Peripherals::take().ok_or("peripherals taken")?;
     let counter = Counter::start(peripherals.SYST);
     let (loop_instructions, loop_ticks) = counter.calibrate();
-    say(format_args!("counter instructions={loop_instructions} ticks={loop_ticks}"));
+    say(format_args!(
+        "counter instructions={loop_instructions} ticks={loop_ticks}"
+    ));
 
     // The host builds its f32 configuration from the f64 one in the same way.
-    let config: MonitorConfig<f32> = MonitorConfig::<f64>::default_for_range(LEVEL_LOW, LEVEL_HIGH).convert();
+    let config: MonitorConfig<f32> =
+        MonitorConfig::<f64>::default_for_range(LEVEL_LOW, LEVEL_HIGH).convert();
     let mut monitor: Monitor<f32> = Monitor::new(config).map_err(|error| error.parameter())?;
     let feed = feed::FeedReader::new(feed::IMAGE).ok_or("feed image: bad magic")?;
     let rows = feed.rows();
@@ -83,7 +86,12 @@ fn run() -> Result<(), &'static str> {
         };
         tally.add(ticks);
         if sample.reference.is_none() {
-            digest.add(sample.seq, outcome.reading.map(|r| [r.value, r.standard_uncertainty, r.expanded_uncertainty]));
+            digest.add(
+                sample.seq,
+                outcome
+                    .reading
+                    .map(|r| [r.value, r.standard_uncertainty, r.expanded_uncertainty]),
+            );
         }
         while let Some(event) = monitor.pop_event() {
             events += 1;
@@ -96,14 +104,28 @@ fn run() -> Result<(), &'static str> {
         return Err("feed image truncated");
     }
 
-    for (name, tally) in [("check_warming_up", &warming_checks), ("check_live", &live_checks), ("reading", &readings), ("rejected", &rejected)] {
+    for (name, tally) in [
+        ("check_warming_up", &warming_checks),
+        ("check_live", &live_checks),
+        ("reading", &readings),
+        ("rejected", &rejected),
+    ] {
         say(format_args!(
             "timing {name} pushes={} ticks={} max_ticks={} min_ticks={}",
-            tally.pushes, tally.ticks, tally.max, tally.min_or_zero()
+            tally.pushes,
+            tally.ticks,
+            tally.max,
+            tally.min_or_zero()
         ));
     }
-    say(format_args!("memory monitor_bytes={}", core::mem::size_of::<Monitor<f32>>()));
-    say(format_args!("readings count={} digest={:016x}", digest.count, digest.state));
+    say(format_args!(
+        "memory monitor_bytes={}",
+        core::mem::size_of::<Monitor<f32>>()
+    ));
+    say(format_args!(
+        "readings count={} digest={:016x}",
+        digest.count, digest.state
+    ));
 
     let counters = monitor.counters();
     let params = monitor.parameters();
@@ -120,7 +142,10 @@ fn run() -> Result<(), &'static str> {
         events,
         monitor.events_dropped()
     );
-    for (key, value) in ["offset", "gain", "quadratic", "temperature"].into_iter().zip(params) {
+    for (key, value) in ["offset", "gain", "quadratic", "temperature"]
+        .into_iter()
+        .zip(params)
+    {
         let _ = lines::put_f32(&mut line, key, value);
     }
     emit(&line);
@@ -137,7 +162,10 @@ struct ReadingDigest {
 
 impl ReadingDigest {
     fn new() -> Self {
-        ReadingDigest { state: 0xcbf2_9ce4_8422_2325, count: 0 }
+        ReadingDigest {
+            state: 0xcbf2_9ce4_8422_2325,
+            count: 0,
+        }
     }
 
     fn bytes(&mut self, bytes: &[u8]) {
@@ -150,7 +178,9 @@ impl ReadingDigest {
         self.count += 1;
         self.bytes(&seq.to_le_bytes());
         match reading {
-            Some(values) => values.iter().for_each(|v| self.bytes(&v.to_bits().to_le_bytes())),
+            Some(values) => values
+                .iter()
+                .for_each(|v| self.bytes(&v.to_bits().to_le_bytes())),
             None => self.bytes(&[0xff]),
         }
     }

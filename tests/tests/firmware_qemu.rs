@@ -50,7 +50,9 @@ fn fields(kind: &str) -> Option<&'static [(&'static str, FieldType)]> {
         ],
         "sample_rejected" => &[("reason", Plain)],
         "bias_shift" => &[("direction", Plain), ("size", Core), ("severity", Plain)],
-        "gain_drift" | "offset_drift" => &[("change", Core), ("uncertainty", Core), ("severity", Plain)],
+        "gain_drift" | "offset_drift" => {
+            &[("change", Core), ("uncertainty", Core), ("severity", Plain)]
+        }
         "spread_jump" => &[("ratio", Core), ("severity", Plain)],
         "signal_stuck" => &[("run", Plain), ("severity", Plain)],
         "signal_out_of_range" => &[("raw", Core), ("severity", Plain)],
@@ -68,11 +70,15 @@ fn canonical_value(value: &Value, field: FieldType) -> Result<String, String> {
         (Value::Null, Core | Wide) => Ok("null".into()),
         (Value::Number(number), Core) => {
             let text = number.to_string();
-            text.parse::<f32>().map(|v| format!("{:08x}", v.to_bits())).map_err(|e| format!("`{text}`: {e}"))
+            text.parse::<f32>()
+                .map(|v| format!("{:08x}", v.to_bits()))
+                .map_err(|e| format!("`{text}`: {e}"))
         }
         (Value::Number(number), Wide) => {
             let text = number.to_string();
-            text.parse::<f64>().map(|v| format!("{:016x}", v.to_bits())).map_err(|e| format!("`{text}`: {e}"))
+            text.parse::<f64>()
+                .map(|v| format!("{:016x}", v.to_bits()))
+                .map_err(|e| format!("`{text}`: {e}"))
         }
         (Value::String(text), Plain) => Ok(text.clone()),
         (Value::Number(number), Plain) => Ok(number.to_string()),
@@ -84,7 +90,11 @@ fn canonical_value(value: &Value, field: FieldType) -> Result<String, String> {
 /// Converts one line of `steadycal replay --events` JSON into the canonical event line.
 fn canonical_event(json_line: &str) -> Result<String, String> {
     let object: Value = serde_json::from_str(json_line).map_err(|e| format!("not JSON: {e}"))?;
-    let get = |key: &str| object.get(key).ok_or_else(|| format!("no `{key}` in {json_line}"));
+    let get = |key: &str| {
+        object
+            .get(key)
+            .ok_or_else(|| format!("no `{key}` in {json_line}"))
+    };
     let seq = get("seq")?.as_u64().ok_or("`seq` is not an integer")?;
     let kind = get("kind")?.as_str().ok_or("`kind` is not a string")?;
     let mut line = format!("event {seq} {kind} t={}", canonical_value(get("t")?, Wide)?);
@@ -97,7 +107,11 @@ fn canonical_event(json_line: &str) -> Result<String, String> {
 /// The canonical summary line from the replay's summary JSON (same fields as the
 /// firmware's `summary` line).
 fn canonical_summary(summary: &Value) -> Result<String, String> {
-    let integer = |key: &str| summary[key].as_u64().ok_or_else(|| format!("summary: no integer `{key}`"));
+    let integer = |key: &str| {
+        summary[key]
+            .as_u64()
+            .ok_or_else(|| format!("summary: no integer `{key}`"))
+    };
     let events: u64 = summary["events"]
         .as_object()
         .ok_or("summary: no `events` object")?
@@ -116,7 +130,10 @@ fn canonical_summary(summary: &Value) -> Result<String, String> {
         integer("events_dropped")?,
     );
     for key in ["offset", "gain", "quadratic", "temperature"] {
-        line.push_str(&format!(" {key}={}", canonical_value(&summary["params"][key], Core)?));
+        line.push_str(&format!(
+            " {key}={}",
+            canonical_value(&summary["params"][key], Core)?
+        ));
     }
     Ok(line)
 }
@@ -130,7 +147,8 @@ fn converter_writes_bits_of_the_shortest_decimals() {
         canonical_event(line).unwrap(),
         "event 7 spread_tracks_level t=4004000000000000 k=3dcccccd k_low=null k_high=3f800000"
     );
-    let line = r#"{"seq":3,"t":1,"kind":"transform_changed","from":"identity","to":"log","gain":-0.5}"#;
+    let line =
+        r#"{"seq":3,"t":1,"kind":"transform_changed","from":"identity","to":"log","gain":-0.5}"#;
     assert_eq!(
         canonical_event(line).unwrap(),
         "event 3 transform_changed t=3ff0000000000000 from=identity to=log gain=bf000000"
@@ -142,8 +160,12 @@ fn converter_writes_bits_of_the_shortest_decimals() {
 fn host_f32_configuration_is_the_firmware_one() {
     // The firmware converts the f64 defaults as the host replay does; the f32 defaults
     // computed directly are the same values.
-    let converted: MonitorConfig<f32> = MonitorConfig::<f64>::default_for_range(1.0, 1000.0).convert();
-    assert_eq!(converted, MonitorConfig::<f32>::default_for_range(1.0, 1000.0));
+    let converted: MonitorConfig<f32> =
+        MonitorConfig::<f64>::default_for_range(1.0, 1000.0).convert();
+    assert_eq!(
+        converted,
+        MonitorConfig::<f32>::default_for_range(1.0, 1000.0)
+    );
 }
 
 /// The firmware's `readings` line from the replay's readings CSV: FNV-1a (64-bit) over
@@ -160,13 +182,19 @@ fn readings_digest(csv: &str) -> Result<String, String> {
     for (index, row) in csv.lines().skip(1).enumerate() {
         let cells: Vec<&str> = row.split(',').collect();
         let bad = |what: &str| format!("readings row {}: {what}", index + 2);
-        let seq: u64 = cells.first().and_then(|c| c.parse().ok()).ok_or_else(|| bad("seq"))?;
+        let seq: u64 = cells
+            .first()
+            .and_then(|c| c.parse().ok())
+            .ok_or_else(|| bad("seq"))?;
         hash(&seq.to_le_bytes());
         if cells.get(3).is_none_or(|c| c.is_empty()) {
             hash(&[0xff]);
         } else {
             for column in 3..6 {
-                let value: f32 = cells.get(column).and_then(|c| c.parse().ok()).ok_or_else(|| bad("value"))?;
+                let value: f32 = cells
+                    .get(column)
+                    .and_then(|c| c.parse().ok())
+                    .ok_or_else(|| bad("value"))?;
                 hash(&value.to_bits().to_le_bytes());
             }
         }
@@ -176,11 +204,18 @@ fn readings_digest(csv: &str) -> Result<String, String> {
 }
 
 fn workspace_root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).parent().expect("workspace root").to_path_buf()
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .parent()
+        .expect("workspace root")
+        .to_path_buf()
 }
 
 fn qemu_present() -> bool {
-    Command::new("qemu-system-arm").arg("--version").output().map(|o| o.status.success()).unwrap_or(false)
+    Command::new("qemu-system-arm")
+        .arg("--version")
+        .output()
+        .map(|o| o.status.success())
+        .unwrap_or(false)
 }
 
 #[test]
@@ -221,7 +256,11 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
         .status()
         .expect("run-qemu.sh runs");
     let printed = std::fs::read_to_string(&output).expect("QEMU output");
-    assert!(status.success(), "firmware exit status {status}; output:\n{}", tail(&printed));
+    assert!(
+        status.success(),
+        "firmware exit status {status}; output:\n{}",
+        tail(&printed)
+    );
 
     // Host replay of the same CSV, as `steadycal replay --precision f32 --events --summary`.
     let events_path = scratch.join("host-events.jsonl");
@@ -237,32 +276,65 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
         config: MonitorConfig::default_for_range(1.0, 1000.0),
     };
     let result = replay(&options).expect("host replay");
-    assert!(result.error.is_none(), "host replay stopped: {:?}", result.error);
+    assert!(
+        result.error.is_none(),
+        "host replay stopped: {:?}",
+        result.error
+    );
 
     let host_events: Vec<String> = std::fs::read_to_string(&events_path)
         .unwrap()
         .lines()
         .map(|line| canonical_event(line).unwrap_or_else(|e| panic!("host event line: {e}")))
         .collect();
-    let board_events: Vec<&str> = printed.lines().filter(|line| line.starts_with("event ")).collect();
+    let board_events: Vec<&str> = printed
+        .lines()
+        .filter(|line| line.starts_with("event "))
+        .collect();
     for (index, (board, host)) in board_events.iter().zip(&host_events).enumerate() {
-        assert_eq!(board, host, "event {index} differs (board first, host second)");
+        assert_eq!(
+            board, host,
+            "event {index} differs (board first, host second)"
+        );
     }
-    assert_eq!(board_events.len(), host_events.len(), "event counts differ (board, host)");
+    assert_eq!(
+        board_events.len(),
+        host_events.len(),
+        "event counts differ (board, host)"
+    );
 
-    let summary: Value = serde_json::from_str(&std::fs::read_to_string(&summary_path).unwrap()).unwrap();
-    let board_summary = printed.lines().find(|line| line.starts_with("summary ")).expect("summary line");
-    assert_eq!(board_summary, canonical_summary(&summary).unwrap(), "summaries differ (board, host)");
+    let summary: Value =
+        serde_json::from_str(&std::fs::read_to_string(&summary_path).unwrap()).unwrap();
+    let board_summary = printed
+        .lines()
+        .find(|line| line.starts_with("summary "))
+        .expect("summary line");
+    assert_eq!(
+        board_summary,
+        canonical_summary(&summary).unwrap(),
+        "summaries differ (board, host)"
+    );
 
-    let board_readings = printed.lines().find(|line| line.starts_with("readings ")).expect("readings line");
+    let board_readings = printed
+        .lines()
+        .find(|line| line.starts_with("readings "))
+        .expect("readings line");
     let host_readings = readings_digest(&std::fs::read_to_string(&readings_path).unwrap()).unwrap();
-    assert_eq!(board_readings, host_readings, "calibrated readings differ (board, host)");
+    assert_eq!(
+        board_readings, host_readings,
+        "calibrated readings differ (board, host)"
+    );
 
     let mut kinds: BTreeMap<&str, usize> = BTreeMap::new();
     for line in &board_events {
-        *kinds.entry(line.split(' ').nth(2).unwrap_or("?")).or_default() += 1;
+        *kinds
+            .entry(line.split(' ').nth(2).unwrap_or("?"))
+            .or_default() += 1;
     }
-    eprintln!("firmware and host agree on {} events {kinds:?}; {board_readings}; {board_summary}", board_events.len());
+    eprintln!(
+        "firmware and host agree on {} events {kinds:?}; {board_readings}; {board_summary}",
+        board_events.len()
+    );
 }
 
 fn tail(text: &str) -> String {
