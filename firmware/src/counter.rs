@@ -42,6 +42,7 @@ impl Counter {
     ///
     /// The loop body is 100 `nop`s, a `subs` and a `bne`: 102 instructions per pass, 200
     /// passes, plus the `movs` that sets the counter: 20,401 instructions.
+    #[inline(never)]
     pub fn calibrate(&self) -> (u32, u32) {
         const PASSES: u32 = 200;
         let before = self.now();

@@ -13,6 +13,8 @@
 #![no_std]
 #![no_main]
 
+mod board;
+mod channel;
 mod counter;
 mod feed;
 mod lines;
@@ -22,9 +24,11 @@ use core::fmt::Write;
 use cortex_m_rt::entry;
 use cortex_m_semihosting::{debug, hio};
 use heapless::String;
-use steadycal_core::monitor::{Monitor, MonitorConfig};
+use steadycal_core::event::Severity;
+use steadycal_core::hal::{ActiveLevel, AlarmOutput};
 use steadycal_core::sample::Flags;
 
+use crate::channel::Channel;
 use crate::counter::{Counter, Tally};
 
 /// Working range of the default replay configuration (`steadycal replay` defaults
@@ -56,10 +60,11 @@ fn run() -> Result<(), &'static str> {
         "counter instructions={loop_instructions} ticks={loop_ticks}"
     ));
 
-    // The host builds its f32 configuration from the f64 one in the same way.
-    let config: MonitorConfig<f32> =
-        MonitorConfig::<f64>::default_for_range(LEVEL_LOW, LEVEL_HIGH).convert();
-    let mut monitor: Monitor<f32> = Monitor::new(config).map_err(|error| error.parameter())?;
+    let mut monitor = Channel::new(LEVEL_LOW, LEVEL_HIGH)?;
+    // User LED 0 lit while a warning or an alarm is raised.
+    let mut alarm_led = AlarmOutput::new(board::UserLed0::new(), ActiveLevel::High, Severity::Warn)
+        .map_err(|_| "alarm output")?;
+    let mut lit_pushes: u32 = 0;
     let feed = feed::FeedReader::new(feed::IMAGE).ok_or("feed image: bad magic")?;
     let rows = feed.rows();
 
@@ -85,6 +90,10 @@ fn run() -> Result<(), &'static str> {
             &mut live_checks
         };
         tally.add(ticks);
+        let _ = alarm_led.update(&outcome);
+        if alarm_led.pin().is_lit() {
+            lit_pushes += 1;
+        }
         if sample.reference.is_none() {
             digest.add(
                 sample.seq,
@@ -120,7 +129,10 @@ fn run() -> Result<(), &'static str> {
     }
     say(format_args!(
         "memory monitor_bytes={}",
-        core::mem::size_of::<Monitor<f32>>()
+        Channel::MONITOR_BYTES
+    ));
+    say(format_args!(
+        "alarm_output severity=warn lit_pushes={lit_pushes}"
     ));
     say(format_args!(
         "readings count={} digest={:016x}",
@@ -188,6 +200,7 @@ impl ReadingDigest {
 
 #[entry]
 fn main() -> ! {
+    board::paint_stack();
     let status = match run() {
         Ok(()) => debug::EXIT_SUCCESS,
         Err(message) => {
@@ -195,6 +208,11 @@ fn main() -> ! {
             debug::EXIT_FAILURE
         }
     };
+    say(format_args!(
+        "memory stack_peak_bytes={} (painted {})",
+        board::stack_used(),
+        board::PAINTED
+    ));
     debug::exit(status);
     loop {
         cortex_m::asm::wfi();
