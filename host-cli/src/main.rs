@@ -33,6 +33,58 @@ enum Command {
     ///
     /// Example: steadycal simulate simulated-feeds/gas-cell.toml --out gas-cell.csv --truth gas-cell.truth.json
     Simulate(SimulateArgs),
+    /// Assess a lab calibration run: fits, scatter tests, power transform, limits, inverse table.
+    ///
+    /// Example: steadycal assess simulated-feeds/lab/co_gas_cell.csv --json --out co.json
+    Assess(AssessArgs),
+}
+
+/// Calibration mean of `assess`.
+#[derive(clap::ValueEnum, Clone, Copy, Debug)]
+enum BasisArg {
+    /// offset + gain·ref
+    Linear,
+    /// offset + gain·ref + quadratic·ref²
+    Quadratic,
+}
+
+#[derive(Args, Debug)]
+struct AssessArgs {
+    /// Lab run: CSV with a header naming `raw` (response) and `ref` (reference); rows without
+    /// `ref` are ignored.
+    feed: PathBuf,
+    /// Calibration mean.
+    #[arg(long, value_enum, default_value = "linear")]
+    basis: BasisArg,
+    /// Write the JSON document instead of the text report.
+    #[arg(long)]
+    json: bool,
+    /// Where to write (`-` = stdout).
+    #[arg(long, value_name = "FILE", default_value = "-")]
+    out: PathBuf,
+}
+
+fn run_assess(args: AssessArgs) -> anyhow::Result<ExitCode> {
+    use steadycal_cli::assess::{self, AssessOptions, Basis};
+    let data = assess::run_file::read_calibration_run(&args.feed)?;
+    let options = AssessOptions {
+        basis: match args.basis {
+            BasisArg::Linear => Basis::Linear,
+            BasisArg::Quadratic => Basis::Quadratic,
+        },
+        ..AssessOptions::default()
+    };
+    let assessment = assess::assess(&data, &options)
+        .map_err(|error| anyhow::anyhow!("{}: {error}", args.feed.display()))?;
+    let mut out = replay::create_output(&args.out)?;
+    if args.json {
+        serde_json::to_writer_pretty(&mut out, &assessment)?;
+        out.write_all(b"\n")?;
+    } else {
+        out.write_all(assess::render_text(&assessment).as_bytes())?;
+    }
+    out.flush()?;
+    Ok(ExitCode::SUCCESS)
 }
 
 #[derive(Args, Debug)]
@@ -136,6 +188,7 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Replay(args) => run_replay(args),
         Command::Simulate(args) => run_simulate(args),
+        Command::Assess(args) => run_assess(args),
     };
     match result {
         Ok(code) => code,
