@@ -23,6 +23,8 @@ extern crate std;
 
 pub mod adequacy;
 pub mod basis;
+#[cfg(feature = "defmt")]
+mod defmt_format;
 pub mod event;
 pub mod fit;
 #[cfg(feature = "hal")]
@@ -33,5 +35,3 @@ pub mod real;
 pub mod sample;
 pub mod spread;
 pub mod transform;
-#[cfg(feature = "defmt")]
-mod defmt_format;
