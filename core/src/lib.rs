@@ -23,8 +23,12 @@ extern crate std;
 
 pub mod adequacy;
 pub mod basis;
+#[cfg(feature = "defmt")]
+mod defmt_format;
 pub mod event;
 pub mod fit;
+#[cfg(feature = "hal")]
+pub mod hal;
 pub mod ladder;
 pub mod monitor;
 pub mod real;
