@@ -100,11 +100,11 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         self.dim as usize
     }
 
-    /// xᵀθ for a regressor vector (entries past `dim` ignored).
+    /// xᵀθ for a regressor vector (entries past `dim` meet zero parameters).
     #[inline]
     pub fn predict(&self, x: &[R; P]) -> R {
         let mut sum = R::ZERO;
-        for (xi, ti) in x.iter().zip(self.theta.iter()).take(self.dim()) {
+        for (xi, ti) in x.iter().zip(self.theta.iter()) {
             sum += *xi * *ti;
         }
         sum
@@ -116,9 +116,19 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
 
     /// One update with response `y` and weight `weight` (1/relative variance). Returns the a
     /// priori residual `y − xᵀθ`. On error nothing changes.
+    ///
+    /// Regressor entries past `dim` must be zero (as [`crate::basis::Basis::regressors`]
+    /// pads them); the loops run over the full capacity `P` so the compiler can unroll them,
+    /// and the zero padding keeps the unused parameters untouched.
     pub fn update(&mut self, x: &[R; P], y: R, weight: R) -> Result<R, FitError> {
         let n = self.dim();
-        if !y.is_finite() || !weight.is_finite() || x.iter().take(n).any(|v| !v.is_finite()) {
+        // NaN-or-infinity probe: v·0 is 0 for every finite v and NaN otherwise, and a sum
+        // of zeros cannot overflow.
+        let mut probe = y * R::ZERO + weight * R::ZERO;
+        for value in x.iter() {
+            probe += *value * R::ZERO;
+        }
+        if !probe.is_finite() {
             return Err(FitError::NonFinite);
         }
         if !(weight > R::ZERO) {
@@ -130,7 +140,7 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         // f = Uᵀx, g = D f.
         let mut f = [R::ZERO; P];
         let mut g = [R::ZERO; P];
-        for j in 0..n {
+        for j in 0..P {
             let mut value = x[j];
             for i in 0..j {
                 value += self.u[i][j] * x[i];
@@ -144,11 +154,11 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         let mut d = self.d;
         let mut gain = [R::ZERO; P];
         let mut alpha = beta / weight;
-        for j in 0..n {
+        for j in 0..P {
             let alpha_previous = alpha;
             alpha += f[j] * g[j];
             let p = -f[j] / alpha_previous;
-            d[j] = d[j] * alpha_previous / alpha;
+            d[j] = d[j] * (alpha_previous / alpha);
             for i in 0..j {
                 let u_old = u[i][j];
                 u[i][j] = u_old + gain[i] * p;
@@ -158,23 +168,25 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         }
         let correction = residual / alpha;
         let mut theta = self.theta;
-        for j in 0..n {
+        let mut probe = R::ZERO;
+        for j in 0..P {
             theta[j] += gain[j] * correction;
+            probe += theta[j] * R::ZERO;
         }
-        // Forgetting, with the wind-up ceiling and the positivity floor.
+        // Forgetting, with the wind-up ceiling and the positivity floor (parameters in use).
         let ceiling = self.config.initial_variance;
         let floor = Self::floor();
+        let inverse_beta = R::ONE / beta;
         for value in d.iter_mut().take(n) {
-            *value = (*value / beta).clamp_to(floor, ceiling);
+            *value = (*value * inverse_beta).clamp_to(floor, ceiling);
         }
-        let sse = beta * self.weighted_sse + beta * residual * residual / alpha;
-
-        let finite = theta.iter().take(n).all(|v| v.is_finite())
-            && u.iter()
-                .take(n)
-                .all(|row| row.iter().take(n).all(|v| v.is_finite()))
-            && sse.is_finite();
-        if !finite {
+        let sse = beta * (self.weighted_sse + residual * residual / alpha);
+        for row in u.iter() {
+            for value in row.iter() {
+                probe += *value * R::ZERO;
+            }
+        }
+        if !(probe + sse * R::ZERO).is_finite() {
             return Err(FitError::NonFinite);
         }
         self.theta = theta;
@@ -237,9 +249,8 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     /// xᵀ P x, computed from `f = Uᵀx` as `Σ D_j f_j²`.
     #[inline]
     pub fn leverage(&self, x: &[R; P]) -> R {
-        let n = self.dim();
         let mut sum = R::ZERO;
-        for j in 0..n {
+        for j in 0..P {
             let mut f = x[j];
             for i in 0..j {
                 f += self.u[i][j] * x[i];

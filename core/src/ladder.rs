@@ -19,8 +19,9 @@
 //!   switch hands over a warmed-up fit and causes no transient.
 //! - The likelihood sums only take samples that every rung could use (level above the
 //!   origin, prediction above the origin), so the rungs are compared on the same data.
-//! - A rung only becomes active after it has led the active rung by `switch_margin` for
-//!   `switch_hold` consecutive checks.
+//! - A rung only becomes active after it has led the active rung by `switch_margin` at
+//!   every comparison (one each `decide_every` checks) over `switch_hold` checks; that is,
+//!   for `switch_hold` checks in a row.
 
 use serde::{Deserialize, Serialize};
 
@@ -44,8 +45,10 @@ pub struct LadderConfig<R> {
     pub warm_up: u32,
     /// Log-likelihood lead a rung needs over the active one to count as winning.
     pub switch_margin: R,
-    /// Consecutive winning checks needed for a switch.
+    /// Checks a rung must keep winning (compared every `decide_every` checks) for a switch.
     pub switch_hold: u32,
+    /// The rungs are compared every this many checks (a comparison costs five logarithms).
+    pub decide_every: u32,
 }
 
 /// The state of one rung.
@@ -109,6 +112,7 @@ pub struct PowerLadder<R, const P: usize> {
     candidate: Option<Rung>,
     lead: u32,
     checks: u32,
+    since_decision: u32,
 }
 
 impl<R: Real, const P: usize> PowerLadder<R, P> {
@@ -126,6 +130,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             candidate: None,
             lead: 0,
             checks: 0,
+            since_decision: 0,
         }
     }
 
@@ -186,14 +191,17 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
 
     /// The rung with the highest profile log-likelihood, and that log-likelihood.
     pub fn best(&self) -> Option<(Rung, R)> {
-        let likelihoods = self.log_likelihoods()?;
-        let mut best = (self.active, likelihoods[self.active.index()]);
+        Some(Self::best_of(self.active, &self.log_likelihoods()?))
+    }
+
+    fn best_of(active: Rung, likelihoods: &[R; RUNG_COUNT]) -> (Rung, R) {
+        let mut best = (active, likelihoods[active.index()]);
         for rung in Rung::ALL {
             if likelihoods[rung.index()] > best.1 {
                 best = (rung, likelihoods[rung.index()]);
             }
         }
-        Some(best)
+        best
     }
 
     /// The active rung's view of a check before any fit changes: its a-priori prediction,
@@ -285,7 +293,8 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         // Power rungs need the value above the origin; a rung whose own prediction is not
         // (yet) above it still learns, with its weight taken at the floor, but the sample
         // cannot enter the likelihood comparison.
-        let below_origin = !(raw_level > R::ZERO);
+        let raw_transforms = Rung::apply_every(raw_level);
+        let below_origin = raw_transforms.is_none();
         let mut comparable = !below_origin;
         let mut transformed = [R::ZERO; RUNG_COUNT];
         for rung in Rung::ALL {
@@ -296,8 +305,10 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             let level = Self::scaled_level(config, state.fit.predict(x));
             if counting && comparable {
                 // Transformed residual against the a-priori prediction of this rung.
-                match (rung.apply(raw_level), rung.apply(level)) {
-                    (Some(g_raw), Some(g_fit)) => transformed[rung.index()] = g_raw - g_fit,
+                match (raw_transforms, rung.apply(level)) {
+                    (Some((g_raw, _)), Some(g_fit)) => {
+                        transformed[rung.index()] = g_raw[rung.index()] - g_fit
+                    }
                     _ => comparable = false,
                 }
             }
@@ -313,16 +324,19 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         self.checks = self.checks.saturating_add(1);
 
         let mut switch = None;
-        if counting && comparable {
+        if let (true, true, Some((_, ln_raw))) = (counting, comparable, raw_transforms) {
             let beta = config.fit.forgetting;
             self.sample_weight = beta * self.sample_weight + R::ONE;
-            self.log_level_sum = beta * self.log_level_sum + raw_level.ln();
+            self.log_level_sum = beta * self.log_level_sum + ln_raw;
             for rung in Rung::ALL {
                 let state = &mut self.rungs[rung.index()];
                 let e = transformed[rung.index()];
                 state.transformed_sse = beta * state.transformed_sse + e * e;
             }
-            switch = self.decide(config);
+            self.since_decision = self.since_decision.saturating_add(1);
+            if self.since_decision >= config.decide_every.max(1) {
+                switch = self.decide(config);
+            }
         }
         LadderStep {
             prediction,
@@ -334,8 +348,9 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
     }
 
     fn decide(&mut self, config: &LadderConfig<R>) -> Option<Switch<R>> {
+        let elapsed = core::mem::take(&mut self.since_decision);
         let likelihoods = self.log_likelihoods()?;
-        let (best, best_likelihood) = self.best()?;
+        let (best, best_likelihood) = Self::best_of(self.active, &likelihoods);
         let lead = best_likelihood - likelihoods[self.active.index()];
         if best == self.active || !(lead >= config.switch_margin) {
             self.candidate = None;
@@ -343,10 +358,10 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             return None;
         }
         if self.candidate == Some(best) {
-            self.lead = self.lead.saturating_add(1);
+            self.lead = self.lead.saturating_add(elapsed);
         } else {
             self.candidate = Some(best);
-            self.lead = 1;
+            self.lead = elapsed;
         }
         if self.lead < config.switch_hold {
             return None;

@@ -24,9 +24,13 @@ extern crate std;
 
 pub mod adequacy;
 pub mod basis;
+#[cfg(feature = "defmt")]
+mod defmt_format;
 pub mod detect;
 pub mod event;
 pub mod fit;
+#[cfg(feature = "hal")]
+pub mod hal;
 pub mod ladder;
 pub mod monitor;
 pub mod real;

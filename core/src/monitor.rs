@@ -252,6 +252,7 @@ impl<R: Real> MonitorConfig<R> {
             warm_up: self.warm_up,
             switch_margin: self.switch_margin,
             switch_hold: self.switch_hold,
+            decide_every: 8,
         }
     }
 

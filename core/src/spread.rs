@@ -224,6 +224,11 @@ pub struct SpreadProfile<R, const BINS: usize = 16> {
     /// False when the configuration is invalid: nothing is accepted then.
     accepting: bool,
     koenker: KoenkerSums<R>,
+    /// Bin weights and co-moments are stored inflated: true value = stored × `scale`.
+    /// Forgetting multiplies `scale` by β instead of touching every bin on every push.
+    scale: R,
+    /// `1 / scale`: the stored weight of a new residual.
+    sample_weight: R,
     #[serde(with = "serde_big_array::BigArray")]
     bins: [BinAccumulator<R>; BINS],
 }
@@ -249,6 +254,8 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
             bins_per_log_unit,
             accepting,
             koenker: KoenkerSums::EMPTY,
+            scale: R::ONE,
+            sample_weight: R::ONE,
             bins: [BinAccumulator::EMPTY; BINS],
         }
     }
@@ -275,6 +282,8 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
     /// Forgets everything (for example at the end of a warm-up); keeps the configuration.
     pub fn clear(&mut self) {
         self.koenker = KoenkerSums::EMPTY;
+        self.scale = R::ONE;
+        self.sample_weight = R::ONE;
         self.bins = [BinAccumulator::EMPTY; BINS];
     }
 
@@ -309,13 +318,21 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         let index = self.bin_of_log(log_level);
         let beta = self.config.forgetting;
 
+        // Lazy forgetting: the new residual's stored weight grows as 1/β per push, which is
+        // the same as shrinking every older weight by β (exact up to rounding).
+        let (scale, sample_weight) = if beta < R::ONE {
+            (self.scale * beta, self.sample_weight / beta)
+        } else {
+            (self.scale, self.sample_weight)
+        };
         // The target bin, computed aside so a rejected update leaves the state untouched.
         let old = self.bins[index];
-        let weight = beta * old.weight + R::ONE;
+        let weight = old.weight + sample_weight;
+        let share = sample_weight / weight;
         let delta = residual - old.mean;
-        let mean = old.mean + delta / weight;
-        let comoment = beta * old.comoment + delta * (residual - mean);
-        let mean_log_level = old.mean_log_level + (log_level - old.mean_log_level) / weight;
+        let mean = old.mean + delta * share;
+        let comoment = old.comoment + sample_weight * delta * (residual - mean);
+        let mean_log_level = old.mean_log_level + (log_level - old.mean_log_level) * share;
 
         // Koenker co-moments of (level, e²).
         let square = residual * residual;
@@ -351,21 +368,28 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
             return false;
         }
 
-        if beta < R::ONE {
-            for bin in self.bins.iter_mut() {
-                bin.weight *= beta;
-                bin.comoment *= beta;
-                if bin.weight < R::EPSILON {
-                    *bin = BinAccumulator::EMPTY;
-                }
-            }
-        }
         self.bins[index] = BinAccumulator {
             weight,
             mean,
             comoment,
             mean_log_level,
         };
+        self.scale = scale;
+        self.sample_weight = sample_weight;
+        // Renormalize long before the inflated weights could overflow (about every
+        // 35,000 pushes at β = 0.999); bins whose true weight has decayed below machine
+        // epsilon are emptied so that no weight ever becomes denormal.
+        if sample_weight > R::from_f64(1e12) {
+            for bin in self.bins.iter_mut() {
+                bin.weight *= scale;
+                bin.comoment *= scale;
+                if bin.weight < R::EPSILON {
+                    *bin = BinAccumulator::EMPTY;
+                }
+            }
+            self.scale = R::ONE;
+            self.sample_weight = R::ONE;
+        }
         self.koenker = KoenkerSums {
             weight: k_weight,
             weight_squares: k_weight_squares,
@@ -378,8 +402,18 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         true
     }
 
+    /// A bin with its true (deflated) weight and co-moment.
+    fn actual(&self, bin: &BinAccumulator<R>) -> BinAccumulator<R> {
+        BinAccumulator {
+            weight: bin.weight * self.scale,
+            comoment: bin.comoment * self.scale,
+            ..*bin
+        }
+    }
+
     /// `(abscissa ln level, ordinate ln SD, weight n − 1)` of a bin usable for the exponent.
-    fn exponent_point(bin: &BinAccumulator<R>) -> Option<(R, R, R)> {
+    fn exponent_point(&self, stored: &BinAccumulator<R>) -> Option<(R, R, R)> {
+        let bin = &self.actual(stored);
         if !(bin.weight >= R::TWO && bin.comoment > R::ZERO) {
             return None;
         }
@@ -399,7 +433,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         let mut weight_sum = R::ZERO;
         let mut mean_x = R::ZERO;
         let mut mean_y = R::ZERO;
-        for (x, y, w) in self.bins.iter().filter_map(Self::exponent_point) {
+        for (x, y, w) in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
             bins_used = bins_used.saturating_add(1);
             weight_sum += w;
             mean_x += w * (x - mean_x) / weight_sum;
@@ -411,7 +445,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         // Second pass: centred sums.
         let mut sxx = R::ZERO;
         let mut sxy = R::ZERO;
-        for (x, y, w) in self.bins.iter().filter_map(Self::exponent_point) {
+        for (x, y, w) in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
             sxx += w * (x - mean_x).squared();
             sxy += w * (x - mean_x) * (y - mean_y);
         }
@@ -421,7 +455,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         let k = sxy / sxx;
         // Third pass: weighted residual sum of squares.
         let mut rss = R::ZERO;
-        for (x, y, w) in self.bins.iter().filter_map(Self::exponent_point) {
+        for (x, y, w) in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
             rss += w * (y - mean_y - k * (x - mean_x)).squared();
         }
         let model_variance = R::ONE / (R::TWO * sxx);
@@ -460,7 +494,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
 
     /// Summary of bin `index`.
     pub fn bin(&self, index: usize) -> Option<BinSummary<R>> {
-        let bin = self.bins.get(index)?;
+        let bin = &self.actual(self.bins.get(index)?);
         let sd = if bin.weight > R::ONE && bin.comoment > R::ZERO {
             (bin.comoment / (bin.weight - R::ONE)).sqrt()
         } else {
@@ -746,7 +780,8 @@ mod tests {
     fn compact_state() {
         // Four floats per bin, as the module documentation promises.
         assert_eq!(core::mem::size_of::<BinAccumulator<f32>>(), 16);
-        assert!(core::mem::size_of::<SpreadProfile<f32, 16>>() <= 16 * 16 + 12 * 4 + 4);
+        // Bins, 12 floats of configuration and Koenker sums, the lazy-forgetting scale pair.
+        assert!(core::mem::size_of::<SpreadProfile<f32, 16>>() <= 16 * 16 + 14 * 4 + 4);
     }
 
     fn any_f64() -> impl Strategy<Value = f64> {

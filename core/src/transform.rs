@@ -148,6 +148,30 @@ impl Rung {
         }
     }
 
+    /// `g_λ(u)` on every rung at once, with one square root and one logarithm; `None` when
+    /// `u` is not finite and positive. Also returns `ln u`.
+    #[inline]
+    pub fn apply_every<R: Real>(u: R) -> Option<([R; RUNG_COUNT], R)> {
+        if !(u.is_finite() && u > R::ZERO) {
+            return None;
+        }
+        let root = u.sqrt();
+        let ln_u = u.ln();
+        let two = R::TWO;
+        let values = [
+            u - R::ONE,
+            two * (root - R::ONE),
+            ln_u,
+            two * (R::ONE - R::ONE / root),
+            R::ONE - R::ONE / u,
+        ];
+        if values.iter().all(|v| v.is_finite()) {
+            Some((values, ln_u))
+        } else {
+            None
+        }
+    }
+
     /// The inverse transform: the scaled level `u` with `g_λ(u) = z`. `None` when no
     /// positive level maps to `z` (for example `z ≥ 1` on `inverse`) or `z` is not finite.
     #[inline]
@@ -264,6 +288,19 @@ mod tests {
         }
         assert_eq!(Rung::Inverse.invert(1.5f64), None);
         assert_eq!(Rung::Sqrt.invert(-3.0f64), None);
+    }
+
+    #[test]
+    fn apply_every_matches_apply() {
+        for &u in &[1e-3f64, 0.3, 1.0, 2.5, 1e3] {
+            let (values, ln_u) = Rung::apply_every(u).unwrap();
+            assert_eq!(ln_u, u.ln());
+            for rung in Rung::ALL {
+                assert_eq!(values[rung.index()], rung.apply(u).unwrap());
+            }
+        }
+        assert!(Rung::apply_every(0.0f32).is_none());
+        assert!(Rung::apply_every(f32::NAN).is_none());
     }
 
     #[test]

@@ -1,0 +1,95 @@
+//! The monitored channel: `Monitor<f32>` with the replay's default configuration, or (with
+//! the `footprint-baseline` feature) an opaque stand-in with the same interface, so that the
+//! size difference of the two builds is the core's share of flash.
+
+use steadycal_core::event::Event;
+use steadycal_core::sample::{Outcome, Sample};
+
+#[cfg(not(feature = "footprint-baseline"))]
+mod real {
+    use super::*;
+    use steadycal_core::monitor::{Counters, Monitor, MonitorConfig};
+    use steadycal_core::transform::Rung;
+
+    /// One monitor.
+    pub struct Channel {
+        monitor: Monitor<f32>,
+    }
+
+    impl Channel {
+        /// `size_of::<Monitor<f32>>()`.
+        pub const MONITOR_BYTES: usize = core::mem::size_of::<Monitor<f32>>();
+
+        /// The host's f32 configuration is built from the f64 one in the same way
+        /// (`MonitorConfig::<f64>::default_for_range(low, high).convert()`).
+        pub fn new(low: f64, high: f64) -> Result<Channel, &'static str> {
+            let config: MonitorConfig<f32> =
+                MonitorConfig::<f64>::default_for_range(low, high).convert();
+            Monitor::new(config)
+                .map(|monitor| Channel { monitor })
+                .map_err(|error| error.parameter())
+        }
+        pub fn push(&mut self, sample: &Sample<f32>) -> Outcome<f32> {
+            self.monitor.push(sample)
+        }
+        pub fn pop_event(&mut self) -> Option<Event<f32>> {
+            self.monitor.pop_event()
+        }
+        pub fn counters(&self) -> Counters {
+            self.monitor.counters()
+        }
+        pub fn parameters(&self) -> [f32; 4] {
+            self.monitor.parameters()
+        }
+        pub fn rung(&self) -> Rung {
+            self.monitor.rung()
+        }
+        pub fn events_dropped(&self) -> u32 {
+            self.monitor.events_dropped()
+        }
+    }
+}
+
+#[cfg(feature = "footprint-baseline")]
+mod real {
+    use super::*;
+    use core::hint::black_box;
+    use steadycal_core::monitor::Counters;
+    use steadycal_core::transform::Rung;
+
+    /// Opaque stand-in: every value comes through `black_box`, so the firmware around it
+    /// (feed reading, event lines, summary) stays in the build.
+    pub struct Channel;
+
+    impl Channel {
+        pub const MONITOR_BYTES: usize = 0;
+        pub fn new(_low: f64, _high: f64) -> Result<Channel, &'static str> {
+            Ok(Channel)
+        }
+        pub fn push(&mut self, sample: &Sample<f32>) -> Outcome<f32> {
+            black_box(sample);
+            black_box(Outcome {
+                reading: None,
+                flags: Default::default(),
+                new_events: 0,
+            })
+        }
+        pub fn pop_event(&mut self) -> Option<Event<f32>> {
+            black_box(None)
+        }
+        pub fn counters(&self) -> Counters {
+            black_box(Counters::default())
+        }
+        pub fn parameters(&self) -> [f32; 4] {
+            black_box([0.0; 4])
+        }
+        pub fn rung(&self) -> Rung {
+            black_box(Rung::Identity)
+        }
+        pub fn events_dropped(&self) -> u32 {
+            black_box(0)
+        }
+    }
+}
+
+pub use real::Channel;

@@ -1,0 +1,343 @@
+//! The board and the desktop agree bit for bit (issue 8, item 1).
+//!
+//! Builds the example firmware (`firmware/`, thumbv7em-none-eabihf), runs it under QEMU's
+//! `mps2-an386` (Cortex-M4 with FPU) on the feed image it embeds
+//! (`simulated-feeds/gas-cell.csv`), and compares every event it prints with the events of
+//! `steadycal replay --precision f32` on the same CSV, converted into the same canonical
+//! line format (`firmware/src/lines.rs` defines it): every float compared as its bit
+//! pattern. The final summary line (counters, rung, parameters) is compared too.
+//!
+//! The expected values are the host's own replay of the same feed (no published reference:
+//! the claim under test is that the two builds of the core agree exactly).
+//!
+//! When `qemu-system-arm` is not installed the test says so and passes, unless
+//! `STEADYCAL_REQUIRE_QEMU=1` is set (as `.ci/run` does, after `firmware/install-qemu.sh`).
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use serde_json::Value;
+use steadycal_cli::feed::ColumnNames;
+use steadycal_cli::replay::{replay, Precision, ReplayOptions};
+use steadycal_core::monitor::MonitorConfig;
+
+/// How a field of an event is written in the canonical line.
+#[derive(Clone, Copy)]
+enum FieldType {
+    /// A float of the core's type (f32): 8 hex digits of its bits.
+    Core,
+    /// An f64: 16 hex digits of its bits.
+    Wide,
+    /// A name, an integer or a boolean: as JSON prints it, strings unquoted.
+    Plain,
+}
+
+use FieldType::{Core, Plain, Wide};
+
+/// Fields of each event kind, in the order of `EventKind`'s declaration (the order
+/// `firmware/src/lines.rs` writes them).
+fn fields(kind: &str) -> Option<&'static [(&'static str, FieldType)]> {
+    Some(match kind {
+        "spread_tracks_level" => &[("k", Core), ("k_low", Core), ("k_high", Core)],
+        "transform_changed" => &[("from", Plain), ("to", Plain), ("gain", Core)],
+        "mean_misfit" => &[
+            ("rung", Plain),
+            ("statistic", Core),
+            ("dof", Plain),
+            ("suggest_quadratic", Plain),
+            ("suggest_temperature", Plain),
+        ],
+        "sample_rejected" => &[("reason", Plain)],
+        "bias_shift" => &[("direction", Plain), ("size", Core), ("severity", Plain)],
+        "gain_drift" | "offset_drift" => {
+            &[("change", Core), ("uncertainty", Core), ("severity", Plain)]
+        }
+        "spread_jump" => &[("ratio", Core), ("severity", Plain)],
+        "signal_stuck" => &[("run", Plain), ("severity", Plain)],
+        "signal_out_of_range" => &[("raw", Core), ("severity", Plain)],
+        "reference_gap" => &[("seconds", Wide), ("severity", Plain)],
+        "cleared" => &[("alarm", Plain)],
+        _ => return None,
+    })
+}
+
+/// One JSON value in the canonical format. Numbers are parsed from their decimal text
+/// straight into the float type (the host prints the shortest decimal that round-trips in
+/// that type); `null` (a non-finite value) stays `null`.
+fn canonical_value(value: &Value, field: FieldType) -> Result<String, String> {
+    match (value, field) {
+        (Value::Null, Core | Wide) => Ok("null".into()),
+        (Value::Number(number), Core) => {
+            let text = number.to_string();
+            text.parse::<f32>()
+                .map(|v| format!("{:08x}", v.to_bits()))
+                .map_err(|e| format!("`{text}`: {e}"))
+        }
+        (Value::Number(number), Wide) => {
+            let text = number.to_string();
+            text.parse::<f64>()
+                .map(|v| format!("{:016x}", v.to_bits()))
+                .map_err(|e| format!("`{text}`: {e}"))
+        }
+        (Value::String(text), Plain) => Ok(text.clone()),
+        (Value::Number(number), Plain) => Ok(number.to_string()),
+        (Value::Bool(flag), Plain) => Ok(flag.to_string()),
+        (other, _) => Err(format!("unexpected value {other}")),
+    }
+}
+
+/// Converts one line of `steadycal replay --events` JSON into the canonical event line.
+fn canonical_event(json_line: &str) -> Result<String, String> {
+    let object: Value = serde_json::from_str(json_line).map_err(|e| format!("not JSON: {e}"))?;
+    let get = |key: &str| {
+        object
+            .get(key)
+            .ok_or_else(|| format!("no `{key}` in {json_line}"))
+    };
+    let seq = get("seq")?.as_u64().ok_or("`seq` is not an integer")?;
+    let kind = get("kind")?.as_str().ok_or("`kind` is not a string")?;
+    let mut line = format!("event {seq} {kind} t={}", canonical_value(get("t")?, Wide)?);
+    for (key, field) in fields(kind).ok_or_else(|| format!("unknown event kind `{kind}`"))? {
+        line.push_str(&format!(" {key}={}", canonical_value(get(key)?, *field)?));
+    }
+    Ok(line)
+}
+
+/// The canonical summary line from the replay's summary JSON (same fields as the
+/// firmware's `summary` line).
+fn canonical_summary(summary: &Value) -> Result<String, String> {
+    let integer = |key: &str| {
+        summary[key]
+            .as_u64()
+            .ok_or_else(|| format!("summary: no integer `{key}`"))
+    };
+    let events: u64 = summary["events"]
+        .as_object()
+        .ok_or("summary: no `events` object")?
+        .values()
+        .map(|count| count.as_u64().unwrap_or(0))
+        .sum();
+    let mut line = format!(
+        "summary samples={} checks={} readings={} rejected={} below_origin={} rung={} events={} events_dropped={}",
+        integer("samples")?,
+        integer("checks")?,
+        integer("readings")?,
+        integer("rejected")?,
+        integer("below_origin")?,
+        summary["rung"].as_str().ok_or("summary: no `rung`")?,
+        events,
+        integer("events_dropped")?,
+    );
+    for key in ["offset", "gain", "quadratic", "temperature"] {
+        line.push_str(&format!(
+            " {key}={}",
+            canonical_value(&summary["params"][key], Core)?
+        ));
+    }
+    Ok(line)
+}
+
+#[test]
+fn converter_writes_bits_of_the_shortest_decimals() {
+    // Invented event, for the converter only; 0.1f32 = 0x3dcccccd (IEEE 754 binary32, from
+    // memory), 2.5f64 = 0x4004000000000000.
+    let line = r#"{"seq":7,"t":2.5,"kind":"spread_tracks_level","k":0.1,"k_low":null,"k_high":1}"#;
+    assert_eq!(
+        canonical_event(line).unwrap(),
+        "event 7 spread_tracks_level t=4004000000000000 k=3dcccccd k_low=null k_high=3f800000"
+    );
+    let line =
+        r#"{"seq":3,"t":1,"kind":"transform_changed","from":"identity","to":"log","gain":-0.5}"#;
+    assert_eq!(
+        canonical_event(line).unwrap(),
+        "event 3 transform_changed t=3ff0000000000000 from=identity to=log gain=bf000000"
+    );
+    assert!(canonical_event(r#"{"seq":1,"t":1,"kind":"no_such_event"}"#).is_err());
+}
+
+#[test]
+fn host_f32_configuration_is_the_firmware_one() {
+    // The firmware converts the f64 defaults as the host replay does; the f32 defaults
+    // computed directly are the same values.
+    let converted: MonitorConfig<f32> =
+        MonitorConfig::<f64>::default_for_range(1.0, 1000.0).convert();
+    assert_eq!(
+        converted,
+        MonitorConfig::<f32>::default_for_range(1.0, 1000.0)
+    );
+}
+
+/// The firmware's `readings` line from the replay's readings CSV: FNV-1a (64-bit) over
+/// every row, seq then the f32 bits of value, standard and expanded uncertainty (one 0xff
+/// byte for a row without a reading), as `firmware/src/main.rs` computes it.
+fn readings_digest(csv: &str) -> Result<String, String> {
+    let mut state: u64 = 0xcbf2_9ce4_8422_2325;
+    let mut hash = |bytes: &[u8]| {
+        for byte in bytes {
+            state = (state ^ u64::from(*byte)).wrapping_mul(0x0000_0100_0000_01b3);
+        }
+    };
+    let mut count = 0;
+    for (index, row) in csv.lines().skip(1).enumerate() {
+        let cells: Vec<&str> = row.split(',').collect();
+        let bad = |what: &str| format!("readings row {}: {what}", index + 2);
+        let seq: u64 = cells
+            .first()
+            .and_then(|c| c.parse().ok())
+            .ok_or_else(|| bad("seq"))?;
+        hash(&seq.to_le_bytes());
+        if cells.get(3).is_none_or(|c| c.is_empty()) {
+            hash(&[0xff]);
+        } else {
+            for column in 3..6 {
+                let value: f32 = cells
+                    .get(column)
+                    .and_then(|c| c.parse().ok())
+                    .ok_or_else(|| bad("value"))?;
+                hash(&value.to_bits().to_le_bytes());
+            }
+        }
+        count += 1;
+    }
+    Ok(format!("readings count={count} digest={state:016x}"))
+}
+
+fn workspace_root() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .parent()
+        .expect("workspace root")
+        .to_path_buf()
+}
+
+fn qemu_present() -> bool {
+    Command::new("qemu-system-arm")
+        .arg("--version")
+        .output()
+        .map(|o| o.status.success())
+        .unwrap_or(false)
+}
+
+#[test]
+fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
+    if !qemu_present() {
+        assert!(
+            std::env::var("STEADYCAL_REQUIRE_QEMU").as_deref() != Ok("1"),
+            "qemu-system-arm is required (STEADYCAL_REQUIRE_QEMU=1): run firmware/install-qemu.sh"
+        );
+        eprintln!("SKIPPED firmware_under_qemu_matches_host_replay_bit_for_bit: qemu-system-arm not installed (firmware/install-qemu.sh installs it)");
+        return;
+    }
+    let root = workspace_root();
+    let firmware = root.join("firmware");
+    let scratch = Path::new(env!("CARGO_TARGET_TMPDIR")).join("firmware-qemu");
+    std::fs::create_dir_all(&scratch).unwrap();
+
+    // Build the firmware in its own workspace (its .cargo/config.toml and target dir).
+    let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".into());
+    let build = Command::new(&cargo)
+        .current_dir(&firmware)
+        .args(["build", "--release", "--target", "thumbv7em-none-eabihf"])
+        .env_remove("CARGO_TARGET_DIR")
+        .env_remove("RUSTFLAGS")
+        .env_remove("CARGO_ENCODED_RUSTFLAGS")
+        .status()
+        .expect("cargo runs");
+    assert!(build.success(), "firmware build failed");
+    let elf = firmware.join("target/thumbv7em-none-eabihf/release/steadycal-firmware");
+
+    // Run it under QEMU, bounded, output to a file.
+    let output = scratch.join("qemu.out");
+    let status = Command::new("bash")
+        .arg(firmware.join("run-qemu.sh"))
+        .arg(&elf)
+        .arg(&output)
+        .arg("600")
+        .status()
+        .expect("run-qemu.sh runs");
+    let printed = std::fs::read_to_string(&output).expect("QEMU output");
+    assert!(
+        status.success(),
+        "firmware exit status {status}; output:\n{}",
+        tail(&printed)
+    );
+
+    // Host replay of the same CSV, as `steadycal replay --precision f32 --events --summary`.
+    let events_path = scratch.join("host-events.jsonl");
+    let summary_path = scratch.join("host-summary.json");
+    let readings_path = scratch.join("host-readings.csv");
+    let options = ReplayOptions {
+        feed: root.join("simulated-feeds/gas-cell.csv"),
+        events: Some(events_path.clone()),
+        summary: Some(summary_path.clone()),
+        readings: Some(readings_path.clone()),
+        precision: Precision::F32,
+        columns: ColumnNames::default(),
+        config: MonitorConfig::default_for_range(1.0, 1000.0),
+    };
+    let result = replay(&options).expect("host replay");
+    assert!(
+        result.error.is_none(),
+        "host replay stopped: {:?}",
+        result.error
+    );
+
+    let host_events: Vec<String> = std::fs::read_to_string(&events_path)
+        .unwrap()
+        .lines()
+        .map(|line| canonical_event(line).unwrap_or_else(|e| panic!("host event line: {e}")))
+        .collect();
+    let board_events: Vec<&str> = printed
+        .lines()
+        .filter(|line| line.starts_with("event "))
+        .collect();
+    for (index, (board, host)) in board_events.iter().zip(&host_events).enumerate() {
+        assert_eq!(
+            board, host,
+            "event {index} differs (board first, host second)"
+        );
+    }
+    assert_eq!(
+        board_events.len(),
+        host_events.len(),
+        "event counts differ (board, host)"
+    );
+
+    let summary: Value =
+        serde_json::from_str(&std::fs::read_to_string(&summary_path).unwrap()).unwrap();
+    let board_summary = printed
+        .lines()
+        .find(|line| line.starts_with("summary "))
+        .expect("summary line");
+    assert_eq!(
+        board_summary,
+        canonical_summary(&summary).unwrap(),
+        "summaries differ (board, host)"
+    );
+
+    let board_readings = printed
+        .lines()
+        .find(|line| line.starts_with("readings "))
+        .expect("readings line");
+    let host_readings = readings_digest(&std::fs::read_to_string(&readings_path).unwrap()).unwrap();
+    assert_eq!(
+        board_readings, host_readings,
+        "calibrated readings differ (board, host)"
+    );
+
+    let mut kinds: BTreeMap<&str, usize> = BTreeMap::new();
+    for line in &board_events {
+        *kinds
+            .entry(line.split(' ').nth(2).unwrap_or("?"))
+            .or_default() += 1;
+    }
+    eprintln!(
+        "firmware and host agree on {} events {kinds:?}; {board_readings}; {board_summary}",
+        board_events.len()
+    );
+}
+
+fn tail(text: &str) -> String {
+    let lines: Vec<&str> = text.lines().collect();
+    lines[lines.len().saturating_sub(20)..].join("\n")
+}
