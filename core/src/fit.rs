@@ -158,7 +158,7 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
             let alpha_previous = alpha;
             alpha += f[j] * g[j];
             let p = -f[j] / alpha_previous;
-            d[j] = d[j] * (alpha_previous / alpha);
+            d[j] *= alpha_previous / alpha;
             for i in 0..j {
                 let u_old = u[i][j];
                 u[i][j] = u_old + gain[i] * p;

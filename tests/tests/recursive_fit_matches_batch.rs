@@ -32,6 +32,7 @@ fn batch(p: usize, rows: &[(Vec<f64>, f64, f64)]) -> Option<(Vec<f64>, f64)> {
     // Well-conditioned only: condition number of √W·X at most 50.
     let singular = a.clone().svd(false, false).singular_values;
     let condition = singular.max() / singular.min();
+    #[allow(clippy::neg_cmp_op_on_partial_ord)]
     if !(condition <= 50.0) {
         return None;
     }
