@@ -1,7 +1,12 @@
 //! steadycal-cli: the host side of steadycal, as a library the `steadycal` binary is a thin
-//! layer over: feed reading ([`feed`]) and replay ([`replay`]).
+//! layer over: feed reading ([`feed`]), the configuration file ([`config`]), replay and the
+//! engine shared by every command ([`replay`]), the simulator ([`simulate`]), terminal
+//! conventions ([`terminal`]) and the subcommands with their arguments ([`commands`]).
 #![forbid(unsafe_code)]
 
+pub mod commands;
+pub mod config;
 pub mod feed;
 pub mod replay;
 pub mod simulate;
+pub mod terminal;
