@@ -78,7 +78,8 @@ impl<R: Real> Basis<R> {
     pub fn validate(&self, capacity: usize) -> Result<(), BasisError> {
         let good = |scale: R| scale.is_finite() && scale > R::ZERO;
         if !good(self.reference_scale)
-            || (self.temperature && (!good(self.temperature_scale) || !self.temperature_reference.is_finite()))
+            || (self.temperature
+                && (!good(self.temperature_scale) || !self.temperature_reference.is_finite()))
         {
             return Err(BasisError::BadScale);
         }
@@ -105,7 +106,8 @@ impl<R: Real> Basis<R> {
             put(2, r * r);
         }
         if let Some(index) = self.temperature_index() {
-            let delta = temperature.map(|t| (t - self.temperature_reference) / self.temperature_scale);
+            let delta =
+                temperature.map(|t| (t - self.temperature_reference) / self.temperature_scale);
             put(index, delta.unwrap_or(R::ZERO));
         }
         x
@@ -136,7 +138,13 @@ impl<R: Real> Basis<R> {
     /// (absent terms are zero) in raw units per reference unit (per degree).
     pub fn physical<const P: usize>(&self, scaled: &[R; P]) -> [R; 4] {
         let factors: [R; P] = self.physical_factors();
-        let term = |index: usize| if index < P { scaled[index] * factors[index] } else { R::ZERO };
+        let term = |index: usize| {
+            if index < P {
+                scaled[index] * factors[index]
+            } else {
+                R::ZERO
+            }
+        };
         [
             term(0),
             term(1),
@@ -156,7 +164,12 @@ impl<R: Real> Basis<R> {
     ///
     /// With a quadratic term the root nearest the straight-line solution is taken, computed
     /// with the cancellation-free form `2q / (−b ∓ √(b² − 4cq))`.
-    pub fn invert<const P: usize>(&self, scaled: &[R; P], raw: R, temperature: Option<R>) -> Option<R> {
+    pub fn invert<const P: usize>(
+        &self,
+        scaled: &[R; P],
+        raw: R,
+        temperature: Option<R>,
+    ) -> Option<R> {
         let [offset, gain, quadratic, temperature_gain] = self.physical(scaled);
         let delta = match (self.temperature, temperature) {
             (true, Some(t)) => t - self.temperature_reference,
@@ -176,7 +189,11 @@ impl<R: Real> Basis<R> {
             }
             let root = discriminant.sqrt();
             // The root nearest −q/gain (the linear solution) is 2q / (−gain − sign(gain)·√D).
-            let denominator = if gain >= R::ZERO { -gain - root } else { -gain + root };
+            let denominator = if gain >= R::ZERO {
+                -gain - root
+            } else {
+                -gain + root
+            };
             if denominator == R::ZERO {
                 return None;
             }

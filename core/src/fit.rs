@@ -17,6 +17,9 @@
 //!   residual and `α = β/w + xᵀPx` (the a-priori × a-posteriori residual identity of RLS).
 //!   With `β = 1` and a large `P₀`, `J/(n − p)` equals the batch residual variance.
 
+// Index loops mirror the published algorithm's notation (U[i][j], D[j], f[j]).
+#![allow(clippy::needless_range_loop)]
+
 use serde::{Deserialize, Serialize};
 use serde_big_array::{Array, BigArray};
 
@@ -167,7 +170,9 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         let sse = beta * self.weighted_sse + beta * residual * residual / alpha;
 
         let finite = theta.iter().take(n).all(|v| v.is_finite())
-            && u.iter().take(n).all(|row| row.iter().take(n).all(|v| v.is_finite()))
+            && u.iter()
+                .take(n)
+                .all(|row| row.iter().take(n).all(|v| v.is_finite()))
             && sse.is_finite();
         if !finite {
             return Err(FitError::NonFinite);
@@ -271,7 +276,10 @@ mod tests {
     use super::*;
 
     fn config<R: Real>(forgetting: f64, initial: f64) -> FitConfig<R> {
-        FitConfig { forgetting: R::from_f64(forgetting), initial_variance: R::from_f64(initial) }
+        FitConfig {
+            forgetting: R::from_f64(forgetting),
+            initial_variance: R::from_f64(initial),
+        }
     }
 
     #[test]
@@ -287,7 +295,10 @@ mod tests {
         let theta = fit.parameters();
         assert!((theta[1] - slope).abs() < 1e-9);
         assert!((theta[0] - intercept).abs() < 1e-9);
-        let sse: f64 = data.iter().map(|&(x, y)| (y - intercept - slope * x).powi(2)).sum();
+        let sse: f64 = data
+            .iter()
+            .map(|&(x, y)| (y - intercept - slope * x).powi(2))
+            .sum();
         assert!((fit.residual_variance() - sse / 3.0).abs() < 1e-9);
     }
 
@@ -296,11 +307,26 @@ mod tests {
         let mut fit: RecursiveFit<f32, 2> = RecursiveFit::new(2, config(0.999, 1e6));
         fit.update(&[1.0, 2.0], 3.0, 1.0).unwrap();
         let before = fit.clone();
-        assert_eq!(fit.update(&[1.0, f32::NAN], 3.0, 1.0), Err(FitError::NonFinite));
-        assert_eq!(fit.update(&[1.0, 2.0], f32::INFINITY, 1.0), Err(FitError::NonFinite));
-        assert_eq!(fit.update(&[1.0, 2.0], 3.0, 0.0), Err(FitError::NonPositiveWeight));
-        assert_eq!(fit.update(&[1.0, 2.0], 3.0, f32::NAN), Err(FitError::NonFinite));
-        assert_eq!(fit.update(&[1.0, 1e30], 1e38, 1e30), Err(FitError::NonFinite));
+        assert_eq!(
+            fit.update(&[1.0, f32::NAN], 3.0, 1.0),
+            Err(FitError::NonFinite)
+        );
+        assert_eq!(
+            fit.update(&[1.0, 2.0], f32::INFINITY, 1.0),
+            Err(FitError::NonFinite)
+        );
+        assert_eq!(
+            fit.update(&[1.0, 2.0], 3.0, 0.0),
+            Err(FitError::NonPositiveWeight)
+        );
+        assert_eq!(
+            fit.update(&[1.0, 2.0], 3.0, f32::NAN),
+            Err(FitError::NonFinite)
+        );
+        assert_eq!(
+            fit.update(&[1.0, 1e30], 1e38, 1e30),
+            Err(FitError::NonFinite)
+        );
         assert_eq!(fit.parameters(), before.parameters());
         assert_eq!(fit.diagonal(), before.diagonal());
         assert_eq!(fit.updates(), 1);
@@ -312,8 +338,13 @@ mod tests {
         let mut noise = 0.0f32;
         for i in 0..100_000u32 {
             noise = (noise * 1.618 + 0.37) % 1.0;
-            let x = if i < 1000 { (i % 10) as f32 / 10.0 } else { 0.5 };
-            fit.update(&[1.0, x], 1.0 + 2.0 * x + 0.01 * (noise - 0.5), 1.0).unwrap();
+            let x = if i < 1000 {
+                (i % 10) as f32 / 10.0
+            } else {
+                0.5
+            };
+            fit.update(&[1.0, x], 1.0 + 2.0 * x + 0.01 * (noise - 0.5), 1.0)
+                .unwrap();
         }
         for value in fit.diagonal() {
             assert!(value.is_finite() && value > 0.0 && value <= 1e6);
@@ -343,6 +374,8 @@ mod tests {
         let p = fit.covariance();
         assert!((p[0][0] - 5.0 / det).abs() < 1e-6);
         assert!((p[0][1] + 4.5 / det).abs() < 1e-6);
-        assert!((fit.leverage(&[1.0, 1.5]) - (5.0 - 2.0 * 4.5 * 1.5 + 4.25 * 2.25) / det).abs() < 1e-6);
+        assert!(
+            (fit.leverage(&[1.0, 1.5]) - (5.0 - 2.0 * 4.5 * 1.5 + 4.25 * 2.25) / det).abs() < 1e-6
+        );
     }
 }

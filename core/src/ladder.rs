@@ -204,33 +204,38 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
 
         let raw_level = Self::scaled_level(config, raw);
         let counting = self.checks >= config.warm_up;
-        let mut levels = [R::ZERO; RUNG_COUNT];
-        let mut below_origin = !(raw_level > R::ZERO);
-        for rung in Rung::ALL {
-            let level = Self::scaled_level(config, self.rungs[rung.index()].fit.predict(x));
-            levels[rung.index()] = level;
-            below_origin |= rung.needs_positive() && !(level > R::ZERO);
-        }
+        // Power rungs need the value above the origin; a rung whose own prediction is not
+        // (yet) above it still learns, with its weight taken at the floor, but the sample
+        // cannot enter the likelihood comparison.
+        let below_origin = !(raw_level > R::ZERO);
+        let mut comparable = !below_origin;
         let mut transformed = [R::ZERO; RUNG_COUNT];
         for rung in Rung::ALL {
             if rung.needs_positive() && below_origin {
                 continue;
             }
-            let level = levels[rung.index()];
-            if counting {
+            let state = &mut self.rungs[rung.index()];
+            let level = Self::scaled_level(config, state.fit.predict(x));
+            if counting && comparable {
                 // Transformed residual against the a-priori prediction of this rung.
-                if let (Some(g_raw), Some(g_fit)) = (rung.apply(raw_level), rung.apply(level)) {
-                    transformed[rung.index()] = g_raw - g_fit;
+                match (rung.apply(raw_level), rung.apply(level)) {
+                    (Some(g_raw), Some(g_fit)) => transformed[rung.index()] = g_raw - g_fit,
+                    _ => comparable = false,
                 }
             }
-            let weight = rung.weight(level.max(config.level_floor));
+            // During warm-up a rung's own prediction can be far off (even negative after
+            // two checks), and a weight taken there would dominate the fit for thousands of
+            // checks; the observed level is the safe start (iteratively reweighted least
+            // squares starts the same way).
+            let weight_level = if counting { level } else { raw_level };
+            let weight = rung.weight(weight_level.max(config.level_floor));
             // A refused update (non-finite weight) leaves the rung as it was.
-            let _ = self.rungs[rung.index()].fit.update(x, raw, weight);
+            let _ = state.fit.update(x, raw, weight);
         }
         self.checks = self.checks.saturating_add(1);
 
         let mut switch = None;
-        if counting && !below_origin {
+        if counting && comparable {
             let beta = config.fit.forgetting;
             self.sample_weight = beta * self.sample_weight + R::ONE;
             self.log_level_sum = beta * self.log_level_sum + raw_level.ln();

@@ -235,7 +235,7 @@ impl<R: Real> MonitorConfig<R> {
             },
             level_origin: self.level_origin,
             level_scale: scale,
-            level_floor: R::HALF * self.level_low / scale,
+            level_floor: self.level_low / scale,
             warm_up: self.warm_up,
             switch_margin: self.switch_margin,
             switch_hold: self.switch_hold,
@@ -470,7 +470,12 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 }
             }
         }
-        if warmed_up && self.counters.checks % self.config.spread_every as u64 == 0 {
+        if warmed_up
+            && self
+                .counters
+                .checks
+                .is_multiple_of(self.config.spread_every as u64)
+        {
             self.evaluate_spread(sample.seq, outcome);
         }
     }

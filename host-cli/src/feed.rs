@@ -200,11 +200,7 @@ impl<R: Read> CsvFeed<R> {
                     .unwrap_or(false)
             })
         };
-        let found = header
-            .iter()
-            .map(|h| shorten(h))
-            .collect::<Vec<_>>()
-            .join(", ");
+        let found = header.iter().map(shorten).collect::<Vec<_>>().join(", ");
         let raw = find(&names.raw).ok_or_else(|| FeedError::MissingColumn {
             file: file.clone(),
             column: names.raw.clone(),

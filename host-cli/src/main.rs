@@ -6,10 +6,11 @@
 use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
-use steadycal_cli::commands::{self, fleet, replay, simulate, watch};
+use steadycal_cli::commands::{self, assess, fleet, replay, simulate, watch};
 
 /// Keeps a sensor's calibration honest: replays recorded feeds through the same monitor a
-/// board runs, watches live streams, checks fleets of channels, simulates feeds.
+/// board runs, watches live streams, checks fleets of channels, assesses lab calibration runs,
+/// simulates feeds.
 ///
 /// steadycal supports, and does not replace, calibration under the applicable standards,
 /// local codes and licensed practice.
@@ -30,6 +31,10 @@ enum Command {
     ///
     /// Example: steadycal simulate simulated-feeds/gas-cell.toml --out gas-cell.csv --truth gas-cell.truth.json
     Simulate(simulate::SimulateArgs),
+    /// Assess a lab calibration run: fits, scatter tests, power transform, limits, inverse table.
+    ///
+    /// Example: steadycal assess simulated-feeds/lab/co_gas_cell.csv --json --out co.json
+    Assess(assess::AssessArgs),
     /// Run the monitor on a live line stream (serial port, pipe), printing events as they happen.
     ///
     /// Example: tail -f -n +1 logger.csv | steadycal watch -
@@ -52,6 +57,7 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Replay(args) => replay::run(args),
         Command::Simulate(args) => simulate::run(args),
+        Command::Assess(args) => assess::run(args),
         Command::Watch(args) => watch::run(args),
         Command::Fleet(args) => fleet::run(args),
     };

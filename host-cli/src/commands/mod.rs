@@ -20,6 +20,7 @@ use crate::config::ConfigFile;
 use crate::feed::ColumnNames;
 use crate::replay::Precision;
 
+pub mod assess;
 pub mod fleet;
 pub mod replay;
 pub mod simulate;

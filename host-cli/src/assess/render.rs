@@ -1,0 +1,269 @@
+//! The human-readable rendering of an [`Assessment`] for the screen.
+//!
+//! Plain text, one section per analysis, numbers to six significant digits (the JSON document
+//! carries full precision). Always ends with the safety caution.
+
+use std::fmt::Write;
+
+use super::Assessment;
+
+fn number(value: f64) -> String {
+    if value.is_finite() {
+        format!("{value:.6}")
+            .trim_end_matches('0')
+            .trim_end_matches('.')
+            .to_string()
+    } else {
+        "n/a".into()
+    }
+}
+
+fn significant(value: f64) -> String {
+    if !value.is_finite() {
+        return "n/a".into();
+    }
+    if value == 0.0 {
+        return "0".into();
+    }
+    let magnitude = value.abs().log10().floor();
+    if (-4.0..6.0).contains(&magnitude) {
+        let decimals = (5.0 - magnitude).max(0.0) as usize;
+        format!("{value:.decimals$}")
+    } else {
+        format!("{value:.5e}")
+    }
+}
+
+fn optional(value: Option<f64>) -> String {
+    value.map_or("n/a".into(), significant)
+}
+
+/// Renders the assessment as plain text.
+pub fn render_text(assessment: &Assessment) -> String {
+    let mut out = String::new();
+    let a = assessment;
+    let _ = writeln!(out, "Calibration assessment");
+    let _ = writeln!(
+        out,
+        "  {} observations at {} reference levels ({}), model: {} [{}]",
+        a.observations,
+        a.reference_levels,
+        if a.replicates {
+            "with replicates"
+        } else {
+            "no replicates"
+        },
+        a.model.basis.name(),
+        a.model.parameter_names.join(", ")
+    );
+    let fit_lines = |out: &mut String, title: &str, fit: &super::FitReport| {
+        let _ = writeln!(out, "\n{title}");
+        for ((name, value), se) in a
+            .model
+            .parameter_names
+            .iter()
+            .zip(&fit.fit.params)
+            .zip(&fit.fit.param_se)
+        {
+            let _ = writeln!(
+                out,
+                "  {name:<12} {:>14}  (SE {})",
+                significant(*value),
+                significant(*se)
+            );
+        }
+        let _ = writeln!(
+            out,
+            "  residual SD  {}  (df {}), R² {}",
+            significant(fit.fit.residual_sd),
+            fit.fit.df_resid,
+            number(fit.fit.r_squared)
+        );
+        match &fit.lack_of_fit {
+            Some(test) => {
+                let _ = writeln!(
+                    out,
+                    "  lack of fit  F = {} on ({}, {}) df, p = {} -> {}",
+                    significant(test.statistic),
+                    test.lack_of_fit_df,
+                    test.pure_error_df,
+                    significant(test.p_value),
+                    if test.adequate {
+                        "mean adequate"
+                    } else {
+                        "mean misfits"
+                    }
+                );
+            }
+            None => {
+                let _ = writeln!(out, "  lack of fit  not testable (no replicates)");
+            }
+        }
+    };
+    fit_lines(&mut out, "Ordinary least squares", &a.ols);
+    if let Some(wls) = &a.wls {
+        fit_lines(
+            &mut out,
+            &format!(
+                "Weighted least squares (weights level^(-2k), k = {})",
+                significant(wls.exponent)
+            ),
+            &wls.report,
+        );
+    }
+
+    let _ = writeln!(out, "\nScatter against level");
+    if let Some(spread) = &a.spread {
+        let _ = writeln!(
+            out,
+            "  spread exponent k = {} (SE {}), CI [{}, {}] from {} points ({})",
+            significant(spread.k),
+            significant(spread.k_se),
+            significant(spread.k_ci[0]),
+            significant(spread.k_ci[1]),
+            spread.points.len(),
+            match spread.source {
+                super::spread_model::SpreadSource::ReplicateGroups => "replicate groups",
+                super::spread_model::SpreadSource::BinnedResiduals => "binned residuals",
+            }
+        );
+    }
+    let _ = writeln!(
+        out,
+        "  Koenker            LM = {}, p = {}",
+        significant(a.koenker.statistic),
+        significant(a.koenker.p_value)
+    );
+    let _ = writeln!(
+        out,
+        "  Breusch-Pagan      LM = {}, p = {}",
+        significant(a.breusch_pagan.statistic),
+        significant(a.breusch_pagan.p_value)
+    );
+    if let Some(gq) = &a.goldfeld_quandt {
+        let _ = writeln!(
+            out,
+            "  Goldfeld-Quandt    F = {} on ({}, {}) df, p = {}",
+            significant(gq.statistic),
+            gq.df_high,
+            gq.df_low,
+            significant(gq.p_value)
+        );
+    }
+    if let Some(test) = &a.ends_of_range {
+        let _ = writeln!(
+            out,
+            "  ends of range      F = s²(high)/s²(low) = {} on ({}, {}) df, accept [{}, {}] at alpha {} -> {}",
+            significant(test.statistic),
+            test.df_high,
+            test.df_low,
+            significant(test.critical_lower),
+            significant(test.critical_upper),
+            test.alpha,
+            if test.homogeneous { "homogeneous" } else { "not homogeneous" }
+        );
+    }
+
+    let _ = writeln!(
+        out,
+        "\nPower transform (Box-Cox, both sides through the mean)"
+    );
+    if let Some(boxcox) = &a.boxcox {
+        let _ = writeln!(
+            out,
+            "  lambda = {}, {}% CI [{}, {}]",
+            significant(boxcox.lambda),
+            number(100.0 * boxcox.confidence),
+            optional(boxcox.ci[0]),
+            optional(boxcox.ci[1])
+        );
+        for rung in &boxcox.rungs {
+            let _ = writeln!(
+                out,
+                "    {:<9} lambda {:>4}  log-likelihood {}",
+                rung.name,
+                number(rung.lambda),
+                significant(rung.log_likelihood)
+            );
+        }
+        if let Some(test) = &boxcox.mean_adequacy {
+            let _ = writeln!(
+                out,
+                "  mean on the {} scale: lack-of-fit F = {}, p = {} -> {}",
+                boxcox.recommended,
+                significant(test.statistic),
+                significant(test.p_value),
+                if test.adequate { "adequate" } else { "misfits" }
+            );
+        }
+    }
+    let _ = writeln!(
+        out,
+        "  recommended rung: {}; weighting preferable: {}",
+        a.recommended,
+        if a.weighting_preferred { "yes" } else { "no" }
+    );
+
+    let _ = writeln!(out, "\nLimits ({})", a.limits.convention);
+    let _ = writeln!(
+        out,
+        "  constant sigma: sigma {} -> LOD {}, LOQ {}",
+        significant(a.limits.constant_sigma.sigma),
+        significant(a.limits.constant_sigma.lod),
+        significant(a.limits.constant_sigma.loq)
+    );
+    if let Some(spread) = &a.limits.spread_model {
+        let _ = writeln!(
+            out,
+            "  spread model (sigma at the lowest standard): sigma {} -> LOD {}, LOQ {}",
+            significant(spread.sigma),
+            significant(spread.lod),
+            significant(spread.loq)
+        );
+    }
+    let _ = writeln!(
+        out,
+        "  reported: LOD {}, LOQ {}; working range {} to {}",
+        significant(a.lod),
+        significant(a.loq),
+        significant(a.limits.working_range[0]),
+        significant(a.limits.working_range[1])
+    );
+
+    let table = &a.inverse_prediction;
+    let _ = writeln!(
+        out,
+        "\nInverse prediction ({} fit, mean of {} reading(s), expanded with k = {})",
+        table.fit,
+        table.readings_averaged,
+        number(table.coverage_factor)
+    );
+    let _ = writeln!(
+        out,
+        "  {:>14} {:>14} {:>14} {:>14}",
+        "raw", "value", "u", "U"
+    );
+    for row in &table.rows {
+        let _ = writeln!(
+            out,
+            "  {:>14} {:>14} {:>14} {:>14}{}",
+            significant(row.raw),
+            optional(row.value),
+            optional(row.standard_uncertainty),
+            optional(row.expanded_uncertainty),
+            if row.within_range {
+                ""
+            } else {
+                "  (outside the calibrated range)"
+            }
+        );
+    }
+    if !a.notes.is_empty() {
+        let _ = writeln!(out, "\nNotes");
+        for note in &a.notes {
+            let _ = writeln!(out, "  - {note}");
+        }
+    }
+    let _ = writeln!(out, "\nCaution: {}", a.caution);
+    out
+}
