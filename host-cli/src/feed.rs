@@ -53,6 +53,12 @@ pub enum FeedError {
         /// File name.
         file: String,
     },
+    /// The header is there but no data row follows.
+    #[error("{file}:2: no data rows after the header, expected at least one")]
+    NoRows {
+        /// File name.
+        file: String,
+    },
     /// A required column is missing from the header.
     #[error("{file}:1: no `{column}` column in the header, expected one (found: {found})")]
     MissingColumn {

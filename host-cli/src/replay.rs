@@ -519,6 +519,11 @@ where
     if let Some(bar) = bar {
         bar.finish_and_clear();
     }
+    if rows == 0 && error.is_none() {
+        error = Some(FeedError::NoRows {
+            file: feed.file().to_string(),
+        });
+    }
     if let Some(mut out) = events_out {
         out.flush()?;
     }

@@ -289,12 +289,6 @@ pub struct Expectations {
     /// Event kinds that must not be raised.
     #[serde(default)]
     pub absent: Vec<String>,
-    /// Raw units range for the replay (`--level-low`, `--level-high`), if not 1..1000.
-    #[serde(default)]
-    pub level_low: Option<f64>,
-    /// Upper end of the range.
-    #[serde(default)]
-    pub level_high: Option<f64>,
 }
 
 /// Everything that defines a synthetic feed.

@@ -29,7 +29,7 @@ use crate::replay::{self, create_output, ReplayOptions};
     "Exit codes:\n",
     "  0  every feed replayed (and nothing reached the --fail-on level, when given)\n",
     "  1  an event at or above the --fail-on level was raised on some channel\n",
-    "  2  a feed or config could not be read, or bad usage"
+    "  2  bad input or usage (a feed or config could not be read, bad arguments)"
 ))]
 pub struct FleetArgs {
     /// Directory of feeds (`*.csv`).

@@ -19,7 +19,7 @@ use crate::simulate::{write_feed, Scenario};
     "  steadycal simulate scenario.toml | steadycal replay - --summary -\n\n",
     "Exit codes:\n",
     "  0  the feed was written\n",
-    "  2  bad scenario file or usage"
+    "  2  bad input or usage (bad scenario file, bad arguments)"
 ))]
 pub struct SimulateArgs {
     /// Scenario file (TOML; see simulated-feeds/README.md for the keys).
