@@ -168,12 +168,12 @@ pub fn parse_rfc3339(cell: &[u8]) -> Option<f64> {
     Some(time.unix_timestamp_nanos() as f64 * 1e-9)
 }
 
-impl CsvFeed<Box<dyn Read>> {
+impl CsvFeed<Box<dyn Read + Send>> {
     /// Opens a feed file, or standard input for `-`.
     pub fn open(path: &Path, names: &ColumnNames) -> Result<Self, FeedError> {
         let file = path.display().to_string();
-        let input: Box<dyn Read> = if file == "-" {
-            Box::new(std::io::stdin().lock())
+        let input: Box<dyn Read + Send> = if file == "-" {
+            Box::new(std::io::BufReader::with_capacity(1 << 16, std::io::stdin()))
         } else {
             let handle = std::fs::File::open(path).map_err(|source| FeedError::Io {
                 file: file.clone(),

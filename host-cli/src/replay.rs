@@ -369,12 +369,66 @@ impl<R: Real + Display> Engine<R> {
 }
 
 /// Runs a replay with the options' float type.
+///
+/// The CSV is parsed on a second thread and handed to the engine in batches of
+/// [`BATCH_ROWS`] over a bounded channel (at most [`BATCHES_IN_FLIGHT`] waiting), so
+/// parsing and the core overlap on two cores while memory stays flat in the feed length.
+/// The core still sees the samples one by one, in feed order: results are identical to a
+/// single-threaded run.
 pub fn replay(options: &ReplayOptions) -> Result<ReplayResult> {
     let feed = CsvFeed::open(&options.feed, &options.columns)?;
     match options.precision {
-        Precision::F32 => replay_with::<f32, _>(feed, options),
-        Precision::F64 => replay_with::<f64, _>(feed, options),
+        Precision::F32 => replay_pipelined::<f32>(feed, options),
+        Precision::F64 => replay_pipelined::<f64>(feed, options),
     }
+}
+
+/// Rows per batch handed from the parsing thread to the engine.
+pub const BATCH_ROWS: usize = 4096;
+/// Batches waiting at most between the parsing thread and the engine.
+pub const BATCHES_IN_FLIGHT: usize = 8;
+
+/// One parsed row: the sample or why it is bad, its line, and the bytes read so far.
+pub struct ParsedRow<R> {
+    /// The sample, or the error for this row.
+    pub next: std::result::Result<Sample<R>, FeedError>,
+    /// 1-based line of the row.
+    pub line: u64,
+    /// Bytes of input read so far.
+    pub bytes: u64,
+}
+
+fn replay_pipelined<R>(
+    mut feed: CsvFeed<Box<dyn Read + Send>>,
+    options: &ReplayOptions,
+) -> Result<ReplayResult>
+where
+    R: Real + FromStr + Display + Send,
+{
+    let file = feed.file().to_string();
+    let (sender, receiver) = std::sync::mpsc::sync_channel::<Vec<ParsedRow<R>>>(BATCHES_IN_FLIGHT);
+    std::thread::scope(|scope| {
+        scope.spawn(move || {
+            let mut batch = Vec::with_capacity(BATCH_ROWS);
+            while let Some(next) = feed.next_sample::<R>() {
+                let stop = next.is_err() && !options.skip_bad_rows;
+                batch.push(ParsedRow {
+                    next,
+                    line: feed.line(),
+                    bytes: feed.bytes_read(),
+                });
+                if batch.len() == BATCH_ROWS || stop {
+                    let full = std::mem::replace(&mut batch, Vec::with_capacity(BATCH_ROWS));
+                    if sender.send(full).is_err() || stop {
+                        return;
+                    }
+                }
+            }
+            let _ = sender.send(batch);
+        });
+        let rows = receiver.into_iter().flatten();
+        replay_rows::<R>(rows, &file, options)
+    })
 }
 
 fn write_reading<R: Real + Display>(
@@ -435,10 +489,15 @@ fn progress_bar(options: &ReplayOptions) -> Option<indicatif::ProgressBar> {
 /// Feeds smaller than this get no progress bar (they take well under a second).
 pub const PROGRESS_MIN_BYTES: u64 = 32 << 20;
 
-fn replay_with<R, I>(mut feed: CsvFeed<I>, options: &ReplayOptions) -> Result<ReplayResult>
+/// Runs parsed rows through the engine and writes the outputs (the engine side of
+/// [`replay`]).
+pub fn replay_rows<R>(
+    rows_in: impl Iterator<Item = ParsedRow<R>>,
+    file: &str,
+    options: &ReplayOptions,
+) -> Result<ReplayResult>
 where
     R: Real + FromStr + Display,
-    I: Read,
 {
     let mut engine = Engine::<R>::new(&options.config)?;
     let mut events_out = options.events.as_deref().map(create_output).transpose()?;
@@ -454,11 +513,11 @@ where
     let mut skipped: Vec<SkippedRow> = Vec::new();
     let mut skipped_count: u64 = 0;
     let mut rows: u64 = 0;
-    while let Some(next) = feed.next_sample::<R>() {
+    for ParsedRow { next, line, bytes } in rows_in {
         rows += 1;
-        if rows % 65_536 == 0 {
+        if rows.is_multiple_of(65_536) {
             if let Some(bar) = &bar {
-                bar.set_position(feed.bytes_read());
+                bar.set_position(bytes);
             }
         }
         let sample = match next {
@@ -483,7 +542,7 @@ where
         };
         // `seq` stays the 0-based data-row index, skipped rows included, so an event points
         // at its line (line = seq + 2 for a one-line header).
-        let step = engine.time_order.check(sample.t, feed.line());
+        let step = engine.time_order.check(sample.t, line);
         if step != TimeStep::Forward && options.warnings {
             let order = &engine.time_order;
             if (step == TimeStep::Repeated && order.repeated == 1)
@@ -495,9 +554,7 @@ where
                     "is before the previous row's time"
                 };
                 eprintln!(
-                    "steadycal: warning: {}:{}: time {} {what}; every such row is counted in the summary (`time_order`)",
-                    feed.file(),
-                    feed.line(),
+                    "steadycal: warning: {file}:{line}: time {} {what}; every such row is counted in the summary (`time_order`)",
                     sample.t
                 );
             }
@@ -521,7 +578,7 @@ where
     }
     if rows == 0 && error.is_none() {
         error = Some(FeedError::NoRows {
-            file: feed.file().to_string(),
+            file: file.to_string(),
         });
     }
     if let Some(mut out) = events_out {
@@ -530,7 +587,7 @@ where
     if let Some(mut out) = readings_out {
         out.flush()?;
     }
-    let mut summary = engine.summary(feed.file(), options.precision, error.as_ref());
+    let mut summary = engine.summary(file, options.precision, error.as_ref());
     if let Value::Object(map) = &mut summary {
         map.insert("rows_skipped".into(), json!(skipped_count));
         map.insert("skipped_rows".into(), json!(skipped));
@@ -539,10 +596,8 @@ where
         let order = &engine.time_order;
         if order.repeated + order.backwards > 0 {
             eprintln!(
-                "steadycal: warning: {}: {} rows repeat the previous time, {} go backwards",
-                feed.file(),
-                order.repeated,
-                order.backwards
+                "steadycal: warning: {file}: {} rows repeat the previous time, {} go backwards",
+                order.repeated, order.backwards
             );
         }
     }

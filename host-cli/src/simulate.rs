@@ -412,7 +412,10 @@ impl Scenario {
                 "must be finite and at most `reference.high`",
             );
         }
-        if schedule.log_uniform && schedule.levels.is_empty() && !(schedule.low > 0.0) {
+        if schedule.log_uniform
+            && schedule.levels.is_empty()
+            && schedule.low.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater)
+        {
             return fail(
                 "reference.low",
                 "must be positive for log-uniform references",
@@ -696,7 +699,7 @@ impl Iterator for Simulation<'_> {
         }
         self.row += 1;
         let schedule = &scenario.reference;
-        let is_check = (schedule.every <= 1 || row % schedule.every == 0)
+        let is_check = (schedule.every <= 1 || row.is_multiple_of(schedule.every))
             && !scenario.gaps.iter().any(|gap| gap.contains(row));
         // Fixed levels: every row when every row is a check (the original behaviour), else
         // only the check rows (check standards), the others seeing the process.
