@@ -1,9 +1,14 @@
 //! steadycal-cli: the host side of steadycal, as a library the `steadycal` binary is a thin
-//! layer over: feed reading ([`feed`]), replay ([`replay`]), simulation ([`simulate`]) and the
-//! batch assessment of a lab calibration run ([`assess`]).
+//! layer over: feed reading ([`feed`]), the configuration file ([`config`]), replay and the
+//! engine shared by every command ([`replay`]), the simulator ([`simulate`]), the batch
+//! assessment of a lab calibration run ([`assess`]), terminal conventions ([`terminal`]) and
+//! the subcommands with their arguments ([`commands`]).
 #![forbid(unsafe_code)]
 
 pub mod assess;
+pub mod commands;
+pub mod config;
 pub mod feed;
 pub mod replay;
 pub mod simulate;
+pub mod terminal;

@@ -14,7 +14,7 @@ use std::str::FromStr;
 use anyhow::{Context, Result};
 use serde::Serialize;
 use serde_json::{json, Map, Value};
-use steadycal_core::event::{AlarmKind, Event, EventKind};
+use steadycal_core::event::{AlarmKind, Event, EventKind, Severity};
 use steadycal_core::monitor::{Monitor, MonitorConfig};
 use steadycal_core::real::Real;
 use steadycal_core::sample::{Outcome, Sample};
@@ -52,6 +52,31 @@ pub struct ReplayOptions {
     pub columns: ColumnNames,
     /// Monitor configuration (f64 values; rounded for f32 runs).
     pub config: MonitorConfig<f64>,
+    /// Skip malformed rows (listing each in the summary) instead of stopping.
+    pub skip_bad_rows: bool,
+    /// Show a progress bar on standard error for long feed files.
+    pub progress: bool,
+    /// Print warnings (time order, skipped rows) on standard error.
+    pub warnings: bool,
+}
+
+impl ReplayOptions {
+    /// Options with the defaults: no outputs, f32, default columns, stop at bad rows, no
+    /// progress bar, warnings on.
+    pub fn new(feed: PathBuf, config: MonitorConfig<f64>) -> Self {
+        ReplayOptions {
+            feed,
+            events: None,
+            summary: None,
+            readings: None,
+            precision: Precision::F32,
+            columns: ColumnNames::default(),
+            config,
+            skip_bad_rows: false,
+            progress: false,
+            warnings: true,
+        }
+    }
 }
 
 /// A JSON number that prints the shortest decimal that round-trips in the float type used
@@ -164,15 +189,246 @@ pub struct ReplayResult {
     pub summary: Value,
     /// The feed error that stopped the run, if any (outputs up to it are written).
     pub error: Option<FeedError>,
+    /// Events raised, by severity: `[info, warn, alarm]` (see [`event_severity`]).
+    pub raised: [u64; 3],
+}
+
+impl ReplayResult {
+    /// True when at least one event of `level` or above was raised.
+    pub fn raised_at_least(&self, level: Severity) -> bool {
+        self.raised[level as usize..].iter().any(|&n| n > 0)
+    }
+}
+
+/// How serious an event is, for `--fail-on`: the severity the detectors attach, and for
+/// the calibration events: `transform_changed`, `spread_tracks_level` and
+/// `sample_rejected` are `info`, `mean_misfit` is `warn`. `cleared` has none.
+pub fn event_severity<R>(kind: &EventKind<R>) -> Option<Severity> {
+    match kind {
+        EventKind::SpreadTracksLevel { .. }
+        | EventKind::TransformChanged { .. }
+        | EventKind::SampleRejected { .. } => Some(Severity::Info),
+        EventKind::MeanMisfit { .. } => Some(Severity::Warn),
+        EventKind::BiasShift { severity, .. }
+        | EventKind::GainDrift { severity, .. }
+        | EventKind::OffsetDrift { severity, .. }
+        | EventKind::SpreadJump { severity, .. }
+        | EventKind::SignalStuck { severity, .. }
+        | EventKind::SignalOutOfRange { severity, .. }
+        | EventKind::ReferenceGap { severity, .. } => Some(*severity),
+        EventKind::Cleared { .. } => None,
+    }
+}
+
+/// Most lines listed per kind of time-order problem and of skipped row (the counts are
+/// always complete).
+pub const LIST_LIMIT: usize = 10_000;
+
+/// Timestamps that go backwards or repeat.
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct TimeOrder {
+    /// Rows whose time is before the previous row's.
+    pub backwards: u64,
+    /// Rows whose time equals the previous row's.
+    pub repeated: u64,
+    /// Lines of the rows going backwards (first [`LIST_LIMIT`]).
+    pub backwards_lines: Vec<u64>,
+    /// Lines of the repeated rows (first [`LIST_LIMIT`]).
+    pub repeated_lines: Vec<u64>,
+    #[serde(skip)]
+    last: Option<f64>,
+}
+
+/// What a time-order check found about one row.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum TimeStep {
+    /// Later than the previous row (or the first row, or no time).
+    Forward,
+    /// Equal to the previous row's time.
+    Repeated,
+    /// Before the previous row's time.
+    Backwards,
+}
+
+impl TimeOrder {
+    /// Checks one row's time against the previous row's.
+    pub fn check(&mut self, t: f64, line: u64) -> TimeStep {
+        let step = match self.last {
+            Some(last) if t == last => {
+                self.repeated += 1;
+                if self.repeated_lines.len() < LIST_LIMIT {
+                    self.repeated_lines.push(line);
+                }
+                TimeStep::Repeated
+            }
+            Some(last) if t < last => {
+                self.backwards += 1;
+                if self.backwards_lines.len() < LIST_LIMIT {
+                    self.backwards_lines.push(line);
+                }
+                TimeStep::Backwards
+            }
+            _ => TimeStep::Forward,
+        };
+        if t.is_finite() {
+            self.last = Some(t);
+        }
+        step
+    }
+}
+
+/// A row skipped by `--skip-bad-rows`.
+#[derive(Clone, Debug, Serialize)]
+pub struct SkippedRow {
+    /// 1-based line.
+    pub line: u64,
+    /// Why it was skipped.
+    pub error: String,
+}
+
+/// The monitor with the bookkeeping every command around it needs: event counts by kind
+/// and severity, time order, last time. `replay`, `watch` and `fleet` all drive this.
+pub struct Engine<R: Real> {
+    /// The monitor.
+    pub monitor: Monitor<R>,
+    /// Events by kind.
+    pub counts: BTreeMap<&'static str, u64>,
+    /// Events by severity `[info, warn, alarm]`.
+    pub raised: [u64; 3],
+    /// Time order of the rows.
+    pub time_order: TimeOrder,
+    /// Time of the last sample.
+    pub last_t: f64,
+}
+
+impl<R: Real + Display> Engine<R> {
+    /// A fresh engine; a configuration the core refuses is an error naming the parameter.
+    pub fn new(config: &MonitorConfig<f64>) -> Result<Self> {
+        let config: MonitorConfig<R> = config.convert();
+        let monitor: Monitor<R> = Monitor::new(config).map_err(|error| {
+            anyhow::anyhow!("configuration: `{}` is out of range", error.parameter())
+        })?;
+        Ok(Self::with_monitor(monitor))
+    }
+
+    /// An engine around an existing monitor (for example one resumed from a snapshot).
+    pub fn with_monitor(monitor: Monitor<R>) -> Self {
+        Engine {
+            monitor,
+            counts: EventKind::<R>::NAMES
+                .iter()
+                .map(|name| (*name, 0))
+                .collect(),
+            raised: [0; 3],
+            time_order: TimeOrder::default(),
+            last_t: f64::NAN,
+        }
+    }
+
+    /// Pushes one sample; `on_event` sees every event it raised, in order.
+    #[inline]
+    pub fn push(
+        &mut self,
+        sample: &Sample<R>,
+        mut on_event: impl FnMut(&Event<R>) -> std::io::Result<()>,
+    ) -> std::io::Result<Outcome<R>> {
+        self.last_t = sample.t;
+        let outcome = self.monitor.push(sample);
+        if outcome.new_events > 0 {
+            while let Some(event) = self.monitor.pop_event() {
+                *self.counts.entry(event.kind.name()).or_insert(0) += 1;
+                if let Some(severity) = event_severity(&event.kind) {
+                    self.raised[severity as usize] += 1;
+                }
+                on_event(&event)?;
+            }
+        }
+        Ok(outcome)
+    }
+
+    /// The summary document: [`summary_json`] plus `raised` (events by severity) and
+    /// `time_order`.
+    pub fn summary(&self, file: &str, precision: Precision, error: Option<&FeedError>) -> Value {
+        let mut summary = summary_json(
+            &self.monitor,
+            file,
+            precision,
+            &self.counts,
+            self.last_t,
+            error,
+        );
+        if let Value::Object(map) = &mut summary {
+            map.insert(
+                "raised".into(),
+                json!({"info": self.raised[0], "warn": self.raised[1], "alarm": self.raised[2]}),
+            );
+            map.insert("time_order".into(), json!(self.time_order));
+        }
+        summary
+    }
 }
 
 /// Runs a replay with the options' float type.
+///
+/// The CSV is parsed on a second thread and handed to the engine in batches of
+/// [`BATCH_ROWS`] over a bounded channel (at most [`BATCHES_IN_FLIGHT`] waiting), so
+/// parsing and the core overlap on two cores while memory stays flat in the feed length.
+/// The core still sees the samples one by one, in feed order: results are identical to a
+/// single-threaded run.
 pub fn replay(options: &ReplayOptions) -> Result<ReplayResult> {
     let feed = CsvFeed::open(&options.feed, &options.columns)?;
     match options.precision {
-        Precision::F32 => replay_with::<f32, _>(feed, options),
-        Precision::F64 => replay_with::<f64, _>(feed, options),
+        Precision::F32 => replay_pipelined::<f32>(feed, options),
+        Precision::F64 => replay_pipelined::<f64>(feed, options),
     }
+}
+
+/// Rows per batch handed from the parsing thread to the engine.
+pub const BATCH_ROWS: usize = 4096;
+/// Batches waiting at most between the parsing thread and the engine.
+pub const BATCHES_IN_FLIGHT: usize = 8;
+
+/// One parsed row: the sample or why it is bad, its line, and the bytes read so far.
+pub struct ParsedRow<R> {
+    /// The sample, or the error for this row.
+    pub next: std::result::Result<Sample<R>, FeedError>,
+    /// 1-based line of the row.
+    pub line: u64,
+    /// Bytes of input read so far.
+    pub bytes: u64,
+}
+
+fn replay_pipelined<R>(
+    mut feed: CsvFeed<Box<dyn Read + Send>>,
+    options: &ReplayOptions,
+) -> Result<ReplayResult>
+where
+    R: Real + FromStr + Display + Send,
+{
+    let file = feed.file().to_string();
+    let (sender, receiver) = std::sync::mpsc::sync_channel::<Vec<ParsedRow<R>>>(BATCHES_IN_FLIGHT);
+    std::thread::scope(|scope| {
+        scope.spawn(move || {
+            let mut batch = Vec::with_capacity(BATCH_ROWS);
+            while let Some(next) = feed.next_sample::<R>() {
+                let stop = next.is_err() && !options.skip_bad_rows;
+                batch.push(ParsedRow {
+                    next,
+                    line: feed.line(),
+                    bytes: feed.bytes_read(),
+                });
+                if batch.len() == BATCH_ROWS || stop {
+                    let full = std::mem::replace(&mut batch, Vec::with_capacity(BATCH_ROWS));
+                    if sender.send(full).is_err() || stop {
+                        return;
+                    }
+                }
+            }
+            let _ = sender.send(batch);
+        });
+        let rows = receiver.into_iter().flatten();
+        replay_rows::<R>(rows, &file, options)
+    })
 }
 
 fn write_reading<R: Real + Display>(
@@ -207,15 +463,43 @@ fn write_reading<R: Real + Display>(
     }
 }
 
-fn replay_with<R, I>(mut feed: CsvFeed<I>, options: &ReplayOptions) -> Result<ReplayResult>
+fn progress_bar(options: &ReplayOptions) -> Option<indicatif::ProgressBar> {
+    if !options.progress || options.feed.as_os_str() == "-" {
+        return None;
+    }
+    let length = std::fs::metadata(&options.feed).ok()?.len();
+    if length < PROGRESS_MIN_BYTES {
+        return None;
+    }
+    let bar = indicatif::ProgressBar::with_draw_target(
+        Some(length),
+        indicatif::ProgressDrawTarget::stderr_with_hz(8),
+    );
+    let template = if crate::terminal::colour_enabled() {
+        "{spinner:.green} {bytes}/{total_bytes} [{bar:40.cyan/blue}] {bytes_per_sec}, {eta} left"
+    } else {
+        "{spinner} {bytes}/{total_bytes} [{bar:40}] {bytes_per_sec}, {eta} left"
+    };
+    if let Ok(style) = indicatif::ProgressStyle::with_template(template) {
+        bar.set_style(style.progress_chars("=> "));
+    }
+    Some(bar)
+}
+
+/// Feeds smaller than this get no progress bar (they take well under a second).
+pub const PROGRESS_MIN_BYTES: u64 = 32 << 20;
+
+/// Runs parsed rows through the engine and writes the outputs (the engine side of
+/// [`replay`]).
+pub fn replay_rows<R>(
+    rows_in: impl Iterator<Item = ParsedRow<R>>,
+    file: &str,
+    options: &ReplayOptions,
+) -> Result<ReplayResult>
 where
     R: Real + FromStr + Display,
-    I: Read,
 {
-    let config: MonitorConfig<R> = options.config.convert();
-    let mut monitor: Monitor<R> = Monitor::new(config).map_err(|error| {
-        anyhow::anyhow!("configuration: `{}` is out of range", error.parameter())
-    })?;
+    let mut engine = Engine::<R>::new(&options.config)?;
     let mut events_out = options.events.as_deref().map(create_output).transpose()?;
     let mut readings_out = options.readings.as_deref().map(create_output).transpose()?;
     if let Some(out) = readings_out.as_mut() {
@@ -224,34 +508,78 @@ where
             "seq,t,raw,value,standard_uncertainty,expanded_uncertainty,rung,flags"
         )?;
     }
-    let mut counts: BTreeMap<&'static str, u64> = EventKind::<R>::NAMES
-        .iter()
-        .map(|name| (*name, 0))
-        .collect();
+    let bar = progress_bar(options);
     let mut error = None;
-    let mut last_t = f64::NAN;
-    while let Some(next) = feed.next_sample::<R>() {
+    let mut skipped: Vec<SkippedRow> = Vec::new();
+    let mut skipped_count: u64 = 0;
+    let mut rows: u64 = 0;
+    for ParsedRow { next, line, bytes } in rows_in {
+        rows += 1;
+        if rows.is_multiple_of(65_536) {
+            if let Some(bar) = &bar {
+                bar.set_position(bytes);
+            }
+        }
         let sample = match next {
             Ok(sample) => sample,
             Err(feed_error) => {
+                if options.skip_bad_rows && feed_error.line().is_some() {
+                    if options.warnings && skipped_count == 0 {
+                        eprintln!("steadycal: warning: skipping bad row: {feed_error} (every skipped line is listed in the summary)");
+                    }
+                    skipped_count += 1;
+                    if skipped.len() < LIST_LIMIT {
+                        skipped.push(SkippedRow {
+                            line: feed_error.line().unwrap_or(0),
+                            error: feed_error.to_string(),
+                        });
+                    }
+                    continue;
+                }
                 error = Some(feed_error);
                 break;
             }
         };
-        last_t = sample.t;
-        let outcome = monitor.push(&sample);
+        // `seq` stays the 0-based data-row index, skipped rows included, so an event points
+        // at its line (line = seq + 2 for a one-line header).
+        let step = engine.time_order.check(sample.t, line);
+        if step != TimeStep::Forward && options.warnings {
+            let order = &engine.time_order;
+            if (step == TimeStep::Repeated && order.repeated == 1)
+                || (step == TimeStep::Backwards && order.backwards == 1)
+            {
+                let what = if step == TimeStep::Repeated {
+                    "repeats the previous row's time"
+                } else {
+                    "is before the previous row's time"
+                };
+                eprintln!(
+                    "steadycal: warning: {file}:{line}: time {} {what}; every such row is counted in the summary (`time_order`)",
+                    sample.t
+                );
+            }
+        }
+        let t = sample.t;
+        let outcome = engine.push(&sample, |event| match events_out.as_mut() {
+            Some(out) => {
+                serde_json::to_writer(&mut *out, &event_json(event, t))?;
+                out.write_all(b"\n")
+            }
+            None => Ok(()),
+        })?;
         if let Some(out) = readings_out.as_mut() {
             if sample.reference.is_none() {
-                write_reading(out.as_mut(), &sample, &outcome, monitor.rung())?;
+                write_reading(out.as_mut(), &sample, &outcome, engine.monitor.rung())?;
             }
         }
-        while let Some(event) = monitor.pop_event() {
-            *counts.entry(event.kind.name()).or_insert(0) += 1;
-            if let Some(out) = events_out.as_mut() {
-                serde_json::to_writer(&mut *out, &event_json(&event, sample.t))?;
-                out.write_all(b"\n")?;
-            }
-        }
+    }
+    if let Some(bar) = bar {
+        bar.finish_and_clear();
+    }
+    if rows == 0 && error.is_none() {
+        error = Some(FeedError::NoRows {
+            file: file.to_string(),
+        });
     }
     if let Some(mut out) = events_out {
         out.flush()?;
@@ -259,21 +587,31 @@ where
     if let Some(mut out) = readings_out {
         out.flush()?;
     }
-    let summary = summary_json(
-        &monitor,
-        feed.file(),
-        options.precision,
-        &counts,
-        last_t,
-        error.as_ref(),
-    );
+    let mut summary = engine.summary(file, options.precision, error.as_ref());
+    if let Value::Object(map) = &mut summary {
+        map.insert("rows_skipped".into(), json!(skipped_count));
+        map.insert("skipped_rows".into(), json!(skipped));
+    }
+    if options.warnings {
+        let order = &engine.time_order;
+        if order.repeated + order.backwards > 0 {
+            eprintln!(
+                "steadycal: warning: {file}: {} rows repeat the previous time, {} go backwards",
+                order.repeated, order.backwards
+            );
+        }
+    }
     if let Some(path) = &options.summary {
         let mut out = create_output(path)?;
         serde_json::to_writer_pretty(&mut out, &summary)?;
         out.write_all(b"\n")?;
         out.flush()?;
     }
-    Ok(ReplayResult { summary, error })
+    Ok(ReplayResult {
+        summary,
+        error,
+        raised: engine.raised,
+    })
 }
 
 /// The summary document of a monitor after a run.

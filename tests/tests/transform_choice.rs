@@ -49,6 +49,7 @@ fn scenario(seed: u64, rows: u64, offset: f64, noise: NoiseModel) -> Scenario {
             every: 1,
         },
         drift: vec![],
+        ..Scenario::default()
     }
 }
 

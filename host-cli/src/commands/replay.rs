@@ -1,0 +1,92 @@
+//! `steadycal replay FEED`: run a recorded feed through the monitor exactly as a board would.
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::Args;
+
+use super::{
+    exit_alarms, exit_bad_input, human_summary, reaches, resolve, ChatterArgs, ColumnArgs, FailOn,
+    MonitorArgs,
+};
+use crate::replay::{self, ReplayOptions};
+
+/// Arguments of `replay`.
+#[derive(Args, Debug)]
+#[command(after_help = concat!(
+    "Examples:\n",
+    "  steadycal replay simulated-feeds/gas-cell.csv --events events.jsonl --summary summary.json\n",
+    "  steadycal replay feed.csv --config monitor.toml --readings readings.csv --fail-on warn\n",
+    "  cat feed.csv | steadycal replay - --summary - | jq .rung\n",
+    "  steadycal replay logger.csv --raw-column counts --ref-column cal_gas --skip-bad-rows\n\n",
+    "Exit codes:\n",
+    "  0  the run completed (and nothing reached the --fail-on level, when given)\n",
+    "  1  the run completed and an event at or above the --fail-on level was raised\n",
+    "  2  bad input or usage (unreadable or malformed feed, bad config file, bad arguments)"
+))]
+pub struct ReplayArgs {
+    /// Feed to replay: CSV with a header naming `raw` and optionally `t` (seconds or RFC
+    /// 3339), `ref`, `temp` (`-` = stdin).
+    pub feed: PathBuf,
+    /// Write events as JSON lines here (`-` = stdout).
+    #[arg(long, value_name = "FILE")]
+    pub events: Option<PathBuf>,
+    /// Write the run summary as JSON here (`-` = stdout).
+    #[arg(long, value_name = "FILE")]
+    pub summary: Option<PathBuf>,
+    /// Write calibrated readings (rows without reference) as CSV here (`-` = stdout):
+    /// seq, t, raw, value, standard and expanded uncertainty, rung, flags.
+    #[arg(long, value_name = "FILE")]
+    pub readings: Option<PathBuf>,
+    /// Skip malformed rows (each is listed in the summary's `skipped_rows`) instead of
+    /// stopping with exit code 2.
+    #[arg(long)]
+    pub skip_bad_rows: bool,
+    /// Exit with code 1 when an event at or above this severity was raised.
+    #[arg(long, value_enum, value_name = "LEVEL")]
+    pub fail_on: Option<FailOn>,
+    #[command(flatten)]
+    pub monitor: MonitorArgs,
+    #[command(flatten)]
+    pub columns: ColumnArgs,
+    #[command(flatten)]
+    pub chatter: ChatterArgs,
+}
+
+impl ReplayArgs {
+    /// The library's options for these arguments.
+    pub fn options(&self) -> anyhow::Result<ReplayOptions> {
+        let resolved = resolve(&self.monitor, &self.columns, None)?;
+        let mut options = ReplayOptions::new(self.feed.clone(), resolved.config);
+        options.events = self.events.clone();
+        options.summary = self.summary.clone();
+        options.readings = self.readings.clone();
+        options.precision = self.monitor.precision;
+        options.columns = resolved.columns;
+        options.skip_bad_rows = self.skip_bad_rows;
+        options.progress = self.chatter.progress();
+        options.warnings = !self.chatter.quiet;
+        Ok(options)
+    }
+}
+
+/// Runs `replay`.
+pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
+    let options = args.options()?;
+    let result = replay::replay(&options)?;
+    if let Some(error) = result.error {
+        eprintln!("steadycal: {error}");
+        eprintln!("steadycal: outputs up to the previous row were written");
+        return Ok(exit_bad_input());
+    }
+    if args.chatter.human() {
+        eprintln!(
+            "{}",
+            human_summary(&result.summary, crate::terminal::colour_enabled())
+        );
+    }
+    if reaches(&result.raised, args.fail_on) {
+        return Ok(exit_alarms());
+    }
+    Ok(ExitCode::SUCCESS)
+}
