@@ -45,6 +45,7 @@ fn scenario(seed: u64, rows: u64, noise: NoiseModel, drift: Vec<Drift>) -> Scena
             every: 1,
         },
         drift,
+        ..Scenario::default()
     }
 }
 
