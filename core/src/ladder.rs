@@ -242,9 +242,11 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         (prediction, standardized)
     }
 
-    /// True when the check is beyond `bound` standardized units under every rung's spread
-    /// model that has one (an outlier whatever the scatter model, not evidence for another
-    /// rung). Only the active rung is computed unless its residual is beyond the bound.
+    /// True when the check is beyond `bound` standardized units under every credible rung's
+    /// spread model that has one (an outlier whatever the scatter model, not evidence for
+    /// another rung). A rung is credible while its profile log-likelihood is within
+    /// `switch_margin` of the best (a likelihood-ratio confidence set for λ). Only the active
+    /// rung is computed unless its residual is beyond the bound.
     pub fn beyond_on_every_rung(
         &self,
         config: &LadderConfig<R>,
@@ -257,9 +259,19 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         if !beyond(active) {
             return false;
         }
+        // Only rungs still credible as the scatter model may veto: those within
+        // `switch_margin` of the best profile log-likelihood. A rung far behind (say
+        // `inverse` on constant scatter, which expects huge scatter at the top of the range)
+        // would otherwise excuse any spike there.
+        let likelihoods = self.log_likelihoods();
+        let best = likelihoods.map(|l| Self::best_of(self.active, &l).1);
+        let credible = |rung: Rung| match (likelihoods, best) {
+            (Some(l), Some(best)) => !(l[rung.index()] < best - config.switch_margin),
+            _ => true,
+        };
         Rung::ALL
             .into_iter()
-            .filter(|&rung| rung != self.active)
+            .filter(|&rung| rung != self.active && credible(rung))
             .all(|rung| {
                 let (_, z) = self.standardized_on(config, rung, x, raw);
                 z.is_none() || beyond(z)

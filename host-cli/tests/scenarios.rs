@@ -68,12 +68,7 @@ fn replay_matches_the_ground_truth_of_every_scenario() {
         );
         let summary = json(&output.stdout);
         let expected = &truth["expected"];
-        // Known problem, left open: the values of a stuck run reach the fits until the stuck
-        // rule fires (50 identical values), and on `pressure-stuck` that moves the ladder to
-        // `sqrt`. The rung is not asserted for scenarios with a stuck span until it is fixed.
-        if !has_stuck_span(&truth) {
-            assert_eq!(summary["rung"], expected["rung"], "{name}: rung");
-        }
+        assert_eq!(summary["rung"], expected["rung"], "{name}: rung");
         for kind in expected["events"].as_array().unwrap() {
             let kind = kind.as_str().unwrap();
             assert!(
@@ -84,9 +79,6 @@ fn replay_matches_the_ground_truth_of_every_scenario() {
         }
         for kind in expected["absent"].as_array().unwrap() {
             let kind = kind.as_str().unwrap();
-            if kind == "transform_changed" && has_stuck_span(&truth) {
-                continue; // the known problem above
-            }
             assert_eq!(
                 summary["events"][kind].as_u64().unwrap(),
                 0,
@@ -204,9 +196,7 @@ fn fleet_table_csv_and_json() {
         let file = row["file"].as_str().unwrap();
         let truth =
             json(&std::fs::read(feeds().join(file.replace(".csv", ".truth.json"))).unwrap());
-        if !has_stuck_span(&truth) {
-            assert_eq!(row["rung"], truth["expected"]["rung"], "{file}");
-        }
+        assert_eq!(row["rung"], truth["expected"]["rung"], "{file}");
         assert_eq!(row["status"], "ok");
     }
     let text = std::fs::read_to_string(&csv).unwrap();
@@ -271,10 +261,3 @@ fn human_summary_only_when_asked_in_a_pipe() {
 }
 
 use predicates::prelude::PredicateBooleanExt;
-
-/// True when the scenario's ground truth has a stuck fault span (see the known problem above).
-fn has_stuck_span(truth: &serde_json::Value) -> bool {
-    truth["spans"]
-        .as_array()
-        .is_some_and(|spans| spans.iter().any(|span| span["kind"] == "stuck"))
-}

@@ -7,7 +7,7 @@
 //!   `stuck_window` checks, a raw range below `stuck_response` times the range of the
 //!   predictions while the reference moves (a sensor that no longer responds).
 //! - Spikes: a check whose standardized residual (by the spread model at its level, before
-//!   any fit sees it) is beyond `spike_bound` under every rung's spread model is rejected
+//!   any fit sees it) is beyond `spike_bound` under every credible rung's spread model is rejected
 //!   (`spike`) and excluded from every fit. (Under the active rung alone, the scatter at the
 //!   top of the range of a still-wrong rung would be cut away, hiding the evidence the
 //!   ladder needs to move to the right rung; measured.) After `spike_run_limit` spikes in
@@ -112,7 +112,10 @@ impl<R: Real> Screen<R> {
 
     /// Whether a check that is `beyond` the spike bound (under every rung's spread model,
     /// see `PowerLadder::beyond_on_every_rung`) is a spike to reject. Isolated spikes are
-    /// rejected; from the `spike_run_limit`-th in a row on they are accepted.
+    /// rejected; from the `spike_run_limit`-th in a row on they are accepted, unless the raw
+    /// value is bit-identical to the previous sample's ([`Screen::observe_raw`]): a frozen
+    /// output beyond the bound is not a change of calibration and stays out of the fits
+    /// while the stuck-run rule counts up.
     #[inline]
     pub fn is_spike(&mut self, config: &ScreenConfig<R>, beyond: bool) -> bool {
         if !beyond {
@@ -120,7 +123,7 @@ impl<R: Real> Screen<R> {
             return false;
         }
         self.spikes_in_a_row = self.spikes_in_a_row.saturating_add(1);
-        self.spikes_in_a_row < config.spike_run_limit
+        self.identical_run >= 2 || self.spikes_in_a_row < config.spike_run_limit
     }
 
     /// Adds an accepted check to the no-response window. At the end of a window returns
@@ -228,6 +231,19 @@ mod tests {
         assert!(screen.is_spike(&config, true));
         assert!(screen.is_spike(&config, true));
         assert!(!screen.is_spike(&config, true)); // third in a row: a change
+        assert!(!screen.is_spike(&config, true));
+    }
+
+    #[test]
+    fn spikes_of_a_frozen_output_stay_rejected() {
+        let config = config();
+        let mut screen = Screen::<f32>::new();
+        for _ in 0..10 {
+            screen.observe_raw(42.0);
+            assert!(screen.is_spike(&config, true));
+        }
+        // The output moves again: spikes that persist are now a change, accepted.
+        screen.observe_raw(43.0);
         assert!(!screen.is_spike(&config, true));
     }
 
