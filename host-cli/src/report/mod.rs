@@ -149,7 +149,7 @@ pub fn spread_bins(levels: &[f64], residuals: &[f64], low: f64, high: f64, bins:
 /// Scatter cells of the residual plots: time slices × level bins.
 pub const SCATTER_SLICES: usize = 8;
 /// Level bins of the residual plots' thinning grid.
-pub const SCATTER_BINS: usize = 100;
+pub const SCATTER_BINS: usize = 60;
 /// Time buckets of the parameter plots' thinning.
 pub const SERIES_BUCKETS: usize = 600;
 /// Most rows listed in the events table.
@@ -194,11 +194,12 @@ pub fn run_report(run: &RunData) -> Result<String> {
     );
     if drawn.len() < checks.len() {
         cautions.push(format!(
-            "Plots of checks are thinned: {} of {} checks after the warm-up are drawn (in each of {}×{} time-and-level cells the extremes of the residuals, plus every check next to an event); statistics and bins use every check.",
+            "Plots of checks are thinned: {} of {} checks after the warm-up are drawn (in each of {}×{} time-and-level cells the extremes of the residuals, an even stride of {} checks, and every check next to an event); statistics and bins use every check.",
             drawn.len(),
             checks.len(),
             SCATTER_SLICES,
-            SCATTER_BINS
+            SCATTER_BINS,
+            thin::STRIDE_POINTS
         ));
     }
     let (t_first, t_last) = plot::span(checks.iter().map(|c| c.t));
@@ -413,10 +414,11 @@ pub fn run_report(run: &RunData) -> Result<String> {
             "raw units",
         ),
     ] {
-        let points = kept
+        let points: Vec<(f64, f64, f64)> = kept
             .iter()
             .map(|&i| (time.at(all_t[i]), values[i], uncertainty[i]))
             .collect();
+        let settled_from = kept.partition_point(|&i| i < warm_up);
         let baseline_note = if baseline.is_some() {
             "The baseline is the commissioned or frozen calibration the drift test compares with.".to_string()
         } else {
@@ -429,11 +431,12 @@ pub fn run_report(run: &RunData) -> Result<String> {
                 y_label: format!("{} ({unit})", name.to_lowercase()),
                 x_label: time.label.clone(),
                 points,
+                settled_from,
                 baseline,
                 tolerance,
                 alarms: spans(kind),
                 note: format!(
-                    "{name} of the active calibration after each check (every check, thinned to the first, last, lowest and highest of {SERIES_BUCKETS} time buckets and the checks next to every alarm), with ±2 standard uncertainties. {baseline_note} A drift alarm needs a significant Wald test and a change beyond the tolerance; shaded intervals are the {kind} alarms."
+                    "{name} of the active calibration after each check (every check, thinned to the first, last, lowest and highest of {SERIES_BUCKETS} time buckets and the checks next to every alarm), with ±2 standard uncertainties; the vertical range is set by the checks after the warm-up (earlier values are drawn clamped to it). {baseline_note} A drift alarm needs a significant Wald test and a change beyond the tolerance; shaded intervals are the {kind} alarms."
                 ),
             })?,
             false,

@@ -2,7 +2,9 @@
 //! every extreme and every point near an event or alarm is still drawn.
 //!
 //! - [`scatter`]: a grid of cells (time slices × horizontal bins); in each cell the points
-//!   with the smallest and largest value of every key are kept, plus every point in `keep`.
+//!   with the smallest and largest value of every key are kept, plus an even stride of
+//!   [`STRIDE_POINTS`] points through the whole input (so the body of the cloud is drawn,
+//!   not only its edges), plus every point in `keep`.
 //! - [`series`]: time buckets; in each the first, last, lowest and highest point of every
 //!   key are kept, plus every point in `keep`.
 //! - [`near`]: the indices of the points at or just after given data-row indices (the check
@@ -17,6 +19,9 @@ use std::collections::BTreeSet;
 
 /// Below this many points nothing is thinned.
 pub const LIMIT: usize = 4000;
+
+/// Points taken at an even stride by [`scatter`], besides the extremes.
+pub const STRIDE_POINTS: usize = 1500;
 
 /// Keeps, in each (time slice, x bin) cell, the points with the extreme values of each key.
 ///
@@ -65,6 +70,8 @@ pub fn scatter(
         out.insert(lo);
         out.insert(hi);
     }
+    let stride = n.div_ceil(STRIDE_POINTS).max(1);
+    out.extend((0..n).step_by(stride).filter(|&i| x[i].is_finite()));
     out.into_iter().collect()
 }
 
@@ -152,7 +159,7 @@ mod tests {
         y[54_321] = 1e9; // the global maximum
         let keep: BTreeSet<usize> = [77_777].into_iter().collect();
         let kept = scatter(&x, &[&y], 8, 100, &keep);
-        assert!(kept.len() < 2 * 8 * 100 + 1 + 1, "{}", kept.len());
+        assert!(kept.len() <= 2 * 8 * 100 + 1 + STRIDE_POINTS, "{}", kept.len());
         assert!(kept.contains(&54_321));
         assert!(kept.contains(&77_777));
         assert!(kept.windows(2).all(|w| w[0] < w[1]));

@@ -60,6 +60,7 @@ pub fn plot(spec: &CalibrationPlot) -> Result<Figure> {
         caption: "Calibration curve with expanded-uncertainty band".into(),
         x: Axis::linear(spec.x_label.clone(), xs),
         y: Axis::linear(spec.y_label.clone(), ys),
+        y_label_area: super::Y_LABEL_AREA,
     };
     let (fx, fy) = (frame.x.clone(), frame.y.clone());
     let mut layers = Vec::new();
@@ -126,7 +127,8 @@ pub fn plot(spec: &CalibrationPlot) -> Result<Figure> {
                 continue;
             }
             let line = vec![(value, fy.range.0), (value, fy.range.1)];
-            let label_y = fy.range.1 - 0.06 * (fy.range.1 - fy.range.0);
+            let drop = if name == "LOD" { 0.06 } else { 0.12 };
+            let label_y = fy.range.1 - drop * (fy.range.1 - fy.range.0);
             layers.push(Layer {
                 name: name.into(),
                 points: 1,

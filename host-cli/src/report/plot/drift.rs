@@ -21,6 +21,9 @@ pub struct DriftPlot {
     pub x_label: String,
     /// Points `(time, value, standard uncertainty)` (time already in display units).
     pub points: Vec<(f64, f64, f64)>,
+    /// Points before this index (the warm-up) do not set the vertical range (they are
+    /// drawn clamped to it).
+    pub settled_from: usize,
     /// Baseline value.
     pub baseline: Option<f64>,
     /// Tolerance band `(low, high)` around the baseline, and its description.
@@ -33,8 +36,12 @@ pub struct DriftPlot {
 
 /// Renders the plot.
 pub fn plot(spec: &DriftPlot) -> Result<Figure> {
-    let values = spec
-        .points
+    let settled = if spec.settled_from < spec.points.len() {
+        &spec.points[spec.settled_from..]
+    } else {
+        &spec.points[..]
+    };
+    let values = settled
         .iter()
         .flat_map(|p| [p.1, p.1 - 2.0 * p.2, p.1 + 2.0 * p.2])
         .chain(spec.baseline)
@@ -50,6 +57,7 @@ pub fn plot(spec: &DriftPlot) -> Result<Figure> {
         caption: format!("{} over time", spec.name),
         x: Axis::linear(spec.x_label.clone(), times),
         y: Axis::linear(spec.y_label.clone(), values),
+        y_label_area: super::Y_LABEL_AREA,
     };
     let _ = HEIGHT;
     let (fx, fy) = (frame.x.clone(), frame.y.clone());
@@ -147,8 +155,8 @@ pub fn plot(spec: &DriftPlot) -> Result<Figure> {
         name: "±2u".into(),
         points: upper.len(),
         legend: Legend {
-            swatch: Swatch::Line(Dash::Dotted),
-            text: "value ± 2 standard uncertainties".into(),
+            swatch: Swatch::Line(Dash::Solid),
+            text: "thin grey lines: value ± 2 standard uncertainties".into(),
         },
         draw: Box::new(move |chart| {
             draw_line(chart, &upper, GREY, 1, Dash::Solid)?;

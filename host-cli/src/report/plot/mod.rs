@@ -130,7 +130,12 @@ pub struct Frame {
     pub x: Axis,
     /// Vertical axis.
     pub y: Axis,
+    /// Width of the vertical axis' label area, pixels.
+    pub y_label_area: u32,
 }
+
+/// Default width of the vertical axis' label area.
+pub const Y_LABEL_AREA: u32 = 78;
 
 /// Default plot size: fits a laptop screen (and an A4 page at 96 dpi with margins).
 pub const WIDTH: u32 = 960;
@@ -383,7 +388,7 @@ fn build<'a, 'b>(
         .margin(12)
         .caption(&frame.caption, caption_style)
         .x_label_area_size(48)
-        .y_label_area_size(78)
+        .y_label_area_size(frame.y_label_area)
         .build_cartesian_2d(frame.x.range.0..frame.x.range.1, frame.y.range.0..frame.y.range.1)
         .map_err(|e| anyhow!("building a chart: {e:?}"))
 }

@@ -54,6 +54,7 @@ pub fn plot(spec: &ResidualPlot<'_>) -> Result<Figure> {
         caption: spec.caption.clone(),
         x,
         y,
+        y_label_area: super::Y_LABEL_AREA,
     };
     let guides = spec.guides.clone();
     let (x0, x1) = frame.x.range;

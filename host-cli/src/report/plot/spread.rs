@@ -69,6 +69,7 @@ pub fn plot(spec: &SpreadPlot) -> Result<Figure> {
         caption: "Spread against level".into(),
         x,
         y,
+        y_label_area: super::Y_LABEL_AREA,
     };
     let mut layers = Vec::new();
     {

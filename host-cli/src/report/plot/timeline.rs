@@ -46,6 +46,7 @@ pub fn plot(spec: &TimelinePlot) -> Result<Figure> {
             log: false,
             categories: Some(names),
         },
+        y_label_area: 150,
     };
     let fx = frame.x.clone();
     let mut layers = Vec::new();
