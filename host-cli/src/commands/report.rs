@@ -119,7 +119,8 @@ impl SideFiles {
     /// Makes sure the replay writes a summary, events and checks to files.
     pub fn prepare(options: &mut crate::replay::ReplayOptions) -> Result<SideFiles> {
         let is_file = |p: &Option<PathBuf>| p.as_ref().is_some_and(|p| p.as_os_str() != "-");
-        let needs_dir = !(is_file(&options.summary) && is_file(&options.events) && is_file(&options.checks));
+        let needs_dir =
+            !(is_file(&options.summary) && is_file(&options.events) && is_file(&options.checks));
         let dir = if needs_dir {
             let dir = std::env::temp_dir().join(format!(
                 "steadycal-report-{}-{}",
@@ -164,12 +165,17 @@ impl SideFiles {
         monitor: &MonitorArgs,
         path: &Path,
     ) -> Result<()> {
-        let config = run_config(monitor.config.as_deref(), monitor.level_low, monitor.level_high)?;
+        let config = run_config(
+            monitor.config.as_deref(),
+            monitor.level_low,
+            monitor.level_high,
+        )?;
         let mut run = model::read_run(&self.files, config)?;
         run.title = options.feed.display().to_string();
         if self.dir.is_some() {
             run.inputs.retain(|(key, _)| key == "config");
-            run.inputs.insert(0, ("feed".into(), options.feed.display().to_string()));
+            run.inputs
+                .insert(0, ("feed".into(), options.feed.display().to_string()));
         }
         let page = crate::report::run_report(&run)?;
         write_page(path, &page)

@@ -81,9 +81,7 @@ pub fn before<R: Real>(monitor: &Monitor<R>, sample: &Sample<R>) -> Option<Befor
     let reference = sample.reference.filter(|r| r.is_finite())?;
     let config = monitor.config();
     let x: [R; 3] = config.basis.regressors(reference, sample.temperature);
-    let assessment = monitor
-        .ladder()
-        .assess(&config.ladder(), &x, sample.raw);
+    let assessment = monitor.ladder().assess(&config.ladder(), &x, sample.raw);
     Some(Before {
         prediction: assessment.prediction,
         standardized: assessment.standardized,

@@ -32,7 +32,9 @@ pre { background: #f4f4f4; border: 1px solid #ccc; padding: 0.6em; overflow-x: a
 /// A small SVG swatch for a legend entry.
 fn swatch(swatch: Swatch) -> String {
     let shape = match swatch {
-        Swatch::Marker(Marker::Dot) => "<circle cx=\"9\" cy=\"9\" r=\"4\" fill=\"#000\"/>".to_string(),
+        Swatch::Marker(Marker::Dot) => {
+            "<circle cx=\"9\" cy=\"9\" r=\"4\" fill=\"#000\"/>".to_string()
+        }
         Swatch::Marker(Marker::Ring) => {
             "<circle cx=\"9\" cy=\"9\" r=\"4\" fill=\"none\" stroke=\"#000\"/>".to_string()
         }
@@ -43,7 +45,8 @@ fn swatch(swatch: Swatch) -> String {
             "<path d=\"M4 4 L14 14 M14 4 L4 14\" stroke=\"#000\"/>".to_string()
         }
         Swatch::Marker(Marker::Square) => {
-            "<rect x=\"5\" y=\"5\" width=\"8\" height=\"8\" fill=\"none\" stroke=\"#000\"/>".to_string()
+            "<rect x=\"5\" y=\"5\" width=\"8\" height=\"8\" fill=\"none\" stroke=\"#000\"/>"
+                .to_string()
         }
         Swatch::Line(dash) => {
             let pattern = match dash {
@@ -54,10 +57,12 @@ fn swatch(swatch: Swatch) -> String {
             format!("<path d=\"M1 9 L27 9\" stroke=\"#000\" stroke-width=\"2\"{pattern}/>")
         }
         Swatch::Band => {
-            "<rect x=\"1\" y=\"4\" width=\"26\" height=\"10\" fill=\"#c8c8c8\" stroke=\"#888\"/>".to_string()
+            "<rect x=\"1\" y=\"4\" width=\"26\" height=\"10\" fill=\"#c8c8c8\" stroke=\"#888\"/>"
+                .to_string()
         }
         Swatch::Span => {
-            "<rect x=\"1\" y=\"3\" width=\"26\" height=\"12\" fill=\"#e6aa96\" stroke=\"#000\"/>".to_string()
+            "<rect x=\"1\" y=\"3\" width=\"26\" height=\"12\" fill=\"#e6aa96\" stroke=\"#000\"/>"
+                .to_string()
         }
     };
     format!(
@@ -89,7 +94,9 @@ pub fn figure(figure: &Figure, time_ramp: bool) -> String {
                 colour.0, colour.1, colour.2
             ));
         }
-        out.push_str(" dark = early, light = late (shape, not colour, tells the series apart)</li>\n");
+        out.push_str(
+            " dark = early, light = late (shape, not colour, tells the series apart)</li>\n",
+        );
     }
     out.push_str(&format!(
         "</ul>\n<p>{}</p>\n</figcaption>\n</figure>\n",
@@ -131,7 +138,12 @@ pub fn table(id: &str, header: &[&str], rows: &[Vec<String>]) -> String {
 }
 
 /// The whole page.
-pub fn page(title: &str, subtitle: &str, cautions: &[String], sections: &[(String, String)]) -> String {
+pub fn page(
+    title: &str,
+    subtitle: &str,
+    cautions: &[String],
+    sections: &[(String, String)],
+) -> String {
     let mut out = String::with_capacity(1 << 20);
     out.push_str("<!DOCTYPE html>\n<html xmlns=\"http://www.w3.org/1999/xhtml\" lang=\"en\">\n<head>\n<meta charset=\"utf-8\"/>\n");
     out.push_str("<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\"/>\n");

@@ -72,7 +72,10 @@ impl TimeAxis {
         let origin = if t0 > 1e8 {
             time::OffsetDateTime::from_unix_timestamp(t0.floor() as i64)
                 .ok()
-                .and_then(|t| t.format(&time::format_description::well_known::Rfc3339).ok())
+                .and_then(|t| {
+                    t.format(&time::format_description::well_known::Rfc3339)
+                        .ok()
+                })
                 .unwrap_or_else(|| format!("t = {t0} s"))
         } else {
             format!("t = {} s", short(t0))
@@ -114,7 +117,13 @@ pub fn rung_lambda(name: &str) -> Option<f64> {
 /// Residual SDs in `bins` log-spaced level bins over `[low, high]` (Welford per bin;
 /// standard error of an SD from n residuals ≈ SD/√(2(n − 1)), the normal-theory
 /// approximation, from memory). Bins with fewer than 3 residuals are left out.
-pub fn spread_bins(levels: &[f64], residuals: &[f64], low: f64, high: f64, bins: usize) -> Vec<SpreadBin> {
+pub fn spread_bins(
+    levels: &[f64],
+    residuals: &[f64],
+    low: f64,
+    high: f64,
+    bins: usize,
+) -> Vec<SpreadBin> {
     let (l0, l1) = (low.ln(), high.ln());
     let mut acc = vec![(0.0f64, 0.0f64, 0.0f64, 0.0f64); bins]; // n, mean, m2, sum ln level
     for (&level, &residual) in levels.iter().zip(residuals) {
@@ -217,7 +226,11 @@ pub fn run_report(run: &RunData) -> Result<String> {
             rungs.push(c.rung.clone());
         }
     }
-    let switches = run.events.iter().filter(|e| e.kind == "transform_changed").count();
+    let switches = run
+        .events
+        .iter()
+        .filter(|e| e.kind == "transform_changed")
+        .count();
     let series_of = |value: &dyn Fn(&checks::CheckRow) -> Option<f64>| -> Vec<ScatterSeries> {
         rungs
             .iter()
@@ -246,7 +259,10 @@ pub fn run_report(run: &RunData) -> Result<String> {
     let level_label = if origin == 0.0 {
         "fitted level (raw units, log scale)".to_string()
     } else {
-        format!("fitted level above the origin {} (raw units, log scale)", short(origin))
+        format!(
+            "fitted level above the origin {} (raw units, log scale)",
+            short(origin)
+        )
     };
     let switch_note = if switches == 0 {
         "No transform switch happened in this run.".to_string()
@@ -286,7 +302,10 @@ pub fn run_report(run: &RunData) -> Result<String> {
     ));
 
     // Spread against level (every check after the warm-up).
-    let rung_name = summary.get("rung").and_then(Value::as_str).unwrap_or("identity");
+    let rung_name = summary
+        .get("rung")
+        .and_then(Value::as_str)
+        .unwrap_or("identity");
     let bins = spread_bins(&levels, &residuals, config.level_low, config.level_high, 16);
     let exponent = get_f64(summary, &["spread_exponent"]).map(|k| {
         (
@@ -368,7 +387,13 @@ pub fn run_report(run: &RunData) -> Result<String> {
         alarms
             .iter()
             .filter(|a| a.kind == kind)
-            .map(|a| (time.at(a.start_t), time.at(a.end_t), format!("{} ({})", a.kind, a.severity)))
+            .map(|a| {
+                (
+                    time.at(a.start_t),
+                    time.at(a.end_t),
+                    format!("{} ({})", a.kind, a.severity),
+                )
+            })
             .collect()
     };
     let tolerance_percent = drift.gain_tolerance_percent;
@@ -420,7 +445,8 @@ pub fn run_report(run: &RunData) -> Result<String> {
             .collect();
         let settled_from = kept.partition_point(|&i| i < warm_up);
         let baseline_note = if baseline.is_some() {
-            "The baseline is the commissioned or frozen calibration the drift test compares with.".to_string()
+            "The baseline is the commissioned or frozen calibration the drift test compares with."
+                .to_string()
         } else {
             "No baseline was set or frozen in this run, so no tolerance band is drawn.".to_string()
         };
@@ -445,14 +471,16 @@ pub fn run_report(run: &RunData) -> Result<String> {
 
     // Timeline.
     let mut rows: Vec<String> = Vec::new();
-    let order = model::ALARM_KINDS
-        .iter()
-        .copied()
-        .chain(["transform_changed", "mean_misfit", "sample_rejected"]);
+    let order = model::ALARM_KINDS.iter().copied().chain([
+        "transform_changed",
+        "mean_misfit",
+        "sample_rejected",
+    ]);
     for kind in order {
-        let present = run.events.iter().any(|e| {
-            e.kind == kind || (e.kind == "cleared" && e.alarm.as_deref() == Some(kind))
-        });
+        let present = run
+            .events
+            .iter()
+            .any(|e| e.kind == kind || (e.kind == "cleared" && e.alarm.as_deref() == Some(kind)));
         if present {
             rows.push(kind.to_string());
         }
@@ -514,9 +542,21 @@ pub fn run_report(run: &RunData) -> Result<String> {
     // Tables.
     let mut summary_rows: Vec<(String, String)> = Vec::new();
     for key in [
-        "feed", "precision", "samples", "checks", "readings", "rejected", "below_origin", "rung",
-        "spread_exponent", "spread_exponent_se", "koenker_statistic", "residual_sd",
-        "events_dropped", "rows_skipped", "stopped_at",
+        "feed",
+        "precision",
+        "samples",
+        "checks",
+        "readings",
+        "rejected",
+        "below_origin",
+        "rung",
+        "spread_exponent",
+        "spread_exponent_se",
+        "koenker_statistic",
+        "residual_sd",
+        "events_dropped",
+        "rows_skipped",
+        "stopped_at",
     ] {
         if let Some(value) = summary.get(key) {
             summary_rows.push((key.to_string(), display(value)));
@@ -547,7 +587,10 @@ pub fn run_report(run: &RunData) -> Result<String> {
             .map(|(k, v)| format!("{k} ×{}", display(v)))
             .collect::<Vec<_>>()
             .join(", ");
-        summary_rows.push(("events".into(), if text.is_empty() { "none".into() } else { text }));
+        summary_rows.push((
+            "events".into(),
+            if text.is_empty() { "none".into() } else { text },
+        ));
     }
     if let Some(Value::Array(list)) = summary.get("alarms") {
         let text = list
@@ -573,7 +616,9 @@ pub fn run_report(run: &RunData) -> Result<String> {
                 a.kind.clone(),
                 a.severity.clone(),
                 short(a.start_t),
-                a.end_seq.map(|_| short(a.end_t)).unwrap_or_else(|| "still raised at the end".into()),
+                a.end_seq
+                    .map(|_| short(a.end_t))
+                    .unwrap_or_else(|| "still raised at the end".into()),
                 a.start_seq.to_string(),
             ]
         })
@@ -599,7 +644,13 @@ pub fn run_report(run: &RunData) -> Result<String> {
     let rejected = run.events.len() - listed.len();
     let mut events_body = html::table(
         "alarm-intervals",
-        &["alarm", "severity", "raised at t (s)", "cleared at t (s)", "raised at seq"],
+        &[
+            "alarm",
+            "severity",
+            "raised at t (s)",
+            "cleared at t (s)",
+            "raised at seq",
+        ],
         &alarm_rows,
     );
     events_body.push_str(&html::table(
@@ -609,7 +660,10 @@ pub fn run_report(run: &RunData) -> Result<String> {
     ));
     let mut event_note = format!("{} events in the run; {rejected} sample rejections are counted in the summary and not listed.", run.events.len());
     if listed.len() > EVENT_ROWS {
-        event_note.push_str(&format!(" The first {EVENT_ROWS} of {} other events are listed.", listed.len()));
+        event_note.push_str(&format!(
+            " The first {EVENT_ROWS} of {} other events are listed.",
+            listed.len()
+        ));
     }
     events_body.push_str(&format!("<p>{}</p>\n", escape::escape(&event_note)));
 
@@ -620,15 +674,33 @@ pub fn run_report(run: &RunData) -> Result<String> {
         ("range.high".into(), short(config.level_high)),
         ("fit.forgetting".into(), short(config.forgetting)),
         ("fit.warm_up".into(), config.warm_up.to_string()),
-        ("ladder.initial_rung".into(), config.initial_rung.name().to_string()),
+        (
+            "ladder.initial_rung".into(),
+            config.initial_rung.name().to_string(),
+        ),
         ("ladder.switch_margin".into(), short(config.switch_margin)),
         ("ladder.switch_hold".into(), config.switch_hold.to_string()),
         ("spread.threshold".into(), short(config.spread_threshold)),
-        ("readings.coverage_factor".into(), short(config.coverage_factor)),
-        ("detect.drift.gain_tolerance_percent".into(), short(drift.gain_tolerance_percent)),
-        ("detect.drift.offset_tolerance".into(), short(drift.offset_tolerance)),
-        ("detect.screen.raw_low".into(), short(config.detect.screen.raw_low)),
-        ("detect.screen.raw_high".into(), short(config.detect.screen.raw_high)),
+        (
+            "readings.coverage_factor".into(),
+            short(config.coverage_factor),
+        ),
+        (
+            "detect.drift.gain_tolerance_percent".into(),
+            short(drift.gain_tolerance_percent),
+        ),
+        (
+            "detect.drift.offset_tolerance".into(),
+            short(drift.offset_tolerance),
+        ),
+        (
+            "detect.screen.raw_low".into(),
+            short(config.detect.screen.raw_low),
+        ),
+        (
+            "detect.screen.raw_high".into(),
+            short(config.detect.screen.raw_high),
+        ),
     ];
     let mut config_body = html::key_values("config", &config_rows);
     if let Some(text) = &run.config.text {
@@ -639,7 +711,12 @@ pub fn run_report(run: &RunData) -> Result<String> {
     }
     config_body.push_str(&html::key_values("inputs", &run.inputs));
 
-    if summary.get("events_dropped").and_then(Value::as_u64).unwrap_or(0) > 0 {
+    if summary
+        .get("events_dropped")
+        .and_then(Value::as_u64)
+        .unwrap_or(0)
+        > 0
+    {
         cautions.push("Some events were dropped because the monitor's event queue was full: the timeline is incomplete.".into());
     }
     if let Some(stopped) = summary.get("stopped_at").and_then(Value::as_str) {
@@ -659,7 +736,10 @@ pub fn run_report(run: &RunData) -> Result<String> {
         plots_body.push_str(&html::figure(figure, *ramp));
     }
     sections.push(("Plots".to_string(), plots_body));
-    sections.push(("Summary".to_string(), html::key_values("summary", &summary_rows)));
+    sections.push((
+        "Summary".to_string(),
+        html::key_values("summary", &summary_rows),
+    ));
     sections.push(("Events and alarms".to_string(), events_body));
     sections.push(("Configuration used".to_string(), config_body));
     Ok(html::page(
@@ -675,7 +755,12 @@ pub fn run_report(run: &RunData) -> Result<String> {
 }
 
 /// The report page of a lab assessment of `data` (from `file`).
-pub fn assess_report(file: &str, data: &CalibrationData, assessment: &Assessment, options: &assess::AssessOptions) -> Result<String> {
+pub fn assess_report(
+    file: &str,
+    data: &CalibrationData,
+    assessment: &Assessment,
+    options: &assess::AssessOptions,
+) -> Result<String> {
     let origin = assessment.model.level_origin;
     let model = assess::CalibrationModel {
         basis: assessment.model.basis,
@@ -714,7 +799,12 @@ pub fn assess_report(file: &str, data: &CalibrationData, assessment: &Assessment
     let band: Vec<(f64, f64, f64)> = curve
         .iter()
         .filter_map(|&(_, raw)| {
-            let row = assess::inverse::inverse_row(&inverse, raw, options.readings_averaged, options.coverage_factor);
+            let row = assess::inverse::inverse_row(
+                &inverse,
+                raw,
+                options.readings_averaged,
+                options.coverage_factor,
+            );
             Some((raw, row.value?, row.expanded_uncertainty?))
         })
         .collect();
@@ -758,7 +848,10 @@ pub fn assess_report(file: &str, data: &CalibrationData, assessment: &Assessment
     if let Some(wls) = &assessment.wls {
         series.push(ScatterSeries {
             name: "wls".into(),
-            description: format!("weighted residuals × √weight, rescaled to the OLS SD (SD ∝ level^{})", short(wls.exponent)),
+            description: format!(
+                "weighted residuals × √weight, rescaled to the OLS SD (SD ∝ level^{})",
+                short(wls.exponent)
+            ),
             points: {
                 let f = &wls.report.fit;
                 let scale = assessment.ols.fit.residual_sd / f.residual_sd.max(f64::MIN_POSITIVE);
@@ -799,8 +892,13 @@ pub fn assess_report(file: &str, data: &CalibrationData, assessment: &Assessment
         figures.push((
             plot::spread::plot(&SpreadPlot {
                 bins,
-                exponent: Some((spread.k, spread.k_se, "weighted fit of ln SD on ln level".into())),
-                rung: rung_lambda(assessment.recommended).map(|l| (assessment.recommended.to_string(), l)),
+                exponent: Some((
+                    spread.k,
+                    spread.k_se,
+                    "weighted fit of ln SD on ln level".into(),
+                )),
+                rung: rung_lambda(assessment.recommended)
+                    .map(|l| (assessment.recommended.to_string(), l)),
                 x_label: "level (raw units above the origin, log scale)".into(),
             })?,
             false,
@@ -808,22 +906,44 @@ pub fn assess_report(file: &str, data: &CalibrationData, assessment: &Assessment
     }
     let value = serde_json::to_value(assessment)?;
     let mut rows: Vec<(String, String)> = vec![("run".into(), file.to_string())];
-    for key in ["observations", "reference_levels", "replicates", "recommended", "weighting_preferred", "lod", "loq"] {
+    for key in [
+        "observations",
+        "reference_levels",
+        "replicates",
+        "recommended",
+        "weighting_preferred",
+        "lod",
+        "loq",
+    ] {
         if let Some(v) = value.get(key) {
             rows.push((key.into(), display(v)));
         }
     }
-    for (name, fit) in [("ols", Some(&assessment.ols.fit)), ("wls", assessment.wls.as_ref().map(|w| &w.report.fit))] {
+    for (name, fit) in [
+        ("ols", Some(&assessment.ols.fit)),
+        ("wls", assessment.wls.as_ref().map(|w| &w.report.fit)),
+    ] {
         if let Some(fit) = fit {
             for (i, p) in fit.params.iter().enumerate() {
-                let pname = assessment.model.parameter_names.get(i).copied().unwrap_or("?");
-                rows.push((format!("{name}.{pname}"), format!("{} ± {}", short(*p), short(fit.param_se[i]))));
+                let pname = assessment
+                    .model
+                    .parameter_names
+                    .get(i)
+                    .copied()
+                    .unwrap_or("?");
+                rows.push((
+                    format!("{name}.{pname}"),
+                    format!("{} ± {}", short(*p), short(fit.param_se[i])),
+                ));
             }
             rows.push((format!("{name}.residual_sd"), short(fit.residual_sd)));
         }
     }
     if let Some(spread) = &assessment.spread {
-        rows.push(("spread k".into(), format!("{} ± {}", short(spread.k), short(spread.k_se))));
+        rows.push((
+            "spread k".into(),
+            format!("{} ± {}", short(spread.k), short(spread.k_se)),
+        ));
     }
     if let Some(b) = &assessment.boxcox {
         rows.push(("Box–Cox λ".into(), short(b.lambda)));
@@ -837,8 +957,12 @@ pub fn assess_report(file: &str, data: &CalibrationData, assessment: &Assessment
             vec![
                 short(r.raw),
                 r.value.map(short).unwrap_or_else(|| "-".into()),
-                r.standard_uncertainty.map(short).unwrap_or_else(|| "-".into()),
-                r.expanded_uncertainty.map(short).unwrap_or_else(|| "-".into()),
+                r.standard_uncertainty
+                    .map(short)
+                    .unwrap_or_else(|| "-".into()),
+                r.expanded_uncertainty
+                    .map(short)
+                    .unwrap_or_else(|| "-".into()),
                 r.within_range.to_string(),
             ]
         })
@@ -854,7 +978,17 @@ pub fn assess_report(file: &str, data: &CalibrationData, assessment: &Assessment
         ("Summary".to_string(), html::key_values("summary", &rows)),
         (
             "Inverse prediction".to_string(),
-            html::table("inverse", &["raw", "value", "standard uncertainty", "expanded uncertainty", "within range"], &inverse_rows),
+            html::table(
+                "inverse",
+                &[
+                    "raw",
+                    "value",
+                    "standard uncertainty",
+                    "expanded uncertainty",
+                    "within range",
+                ],
+                &inverse_rows,
+            ),
         ),
         (
             "Configuration used".to_string(),
@@ -871,7 +1005,10 @@ pub fn assess_report(file: &str, data: &CalibrationData, assessment: &Assessment
     ];
     Ok(html::page(
         &format!("steadycal lab assessment report: {file}"),
-        &format!("{} observations at {} reference levels; recommended rung {}", assessment.observations, assessment.reference_levels, assessment.recommended),
+        &format!(
+            "{} observations at {} reference levels; recommended rung {}",
+            assessment.observations, assessment.reference_levels, assessment.recommended
+        ),
         &cautions,
         &sections,
     ))

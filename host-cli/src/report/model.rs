@@ -206,9 +206,8 @@ pub fn read_events(path: &Path) -> Result<Vec<EventRow>> {
         if line.trim().is_empty() {
             continue;
         }
-        let value: Value = serde_json::from_str(&line).map_err(|e| {
-            anyhow::anyhow!("{file}:{}:{}: {e}", index + 1, e.column())
-        })?;
+        let value: Value = serde_json::from_str(&line)
+            .map_err(|e| anyhow::anyhow!("{file}:{}:{}: {e}", index + 1, e.column()))?;
         match EventRow::from_json(&value) {
             Some(event) => events.push(event),
             None => bail!(

@@ -84,7 +84,8 @@ pub fn series(t: &[f64], keys: &[&[f64]], buckets: usize, keep: &BTreeSet<usize>
     }
     let (low, high) = super::plot::span(t.iter().copied());
     let width = (high - low).max(f64::MIN_POSITIVE);
-    let bucket_of = |value: f64| ((((value - low) / width) * buckets as f64) as usize).min(buckets - 1);
+    let bucket_of =
+        |value: f64| ((((value - low) / width) * buckets as f64) as usize).min(buckets - 1);
     let mut first: Vec<Option<usize>> = vec![None; buckets];
     let mut last: Vec<Option<usize>> = vec![None; buckets];
     let mut extremes: Vec<Option<(usize, usize)>> = vec![None; buckets * keys.len()];
@@ -159,7 +160,11 @@ mod tests {
         y[54_321] = 1e9; // the global maximum
         let keep: BTreeSet<usize> = [77_777].into_iter().collect();
         let kept = scatter(&x, &[&y], 8, 100, &keep);
-        assert!(kept.len() <= 2 * 8 * 100 + 1 + STRIDE_POINTS, "{}", kept.len());
+        assert!(
+            kept.len() <= 2 * 8 * 100 + 1 + STRIDE_POINTS,
+            "{}",
+            kept.len()
+        );
         assert!(kept.contains(&54_321));
         assert!(kept.contains(&77_777));
         assert!(kept.windows(2).all(|w| w[0] < w[1]));

@@ -6,7 +6,10 @@
 use anyhow::{anyhow, Result};
 use plotters::prelude::*;
 
-use super::{draw_line, draw_markers, render, short, Axis, Dash, Figure, Frame, Layer, Legend, Marker, Swatch, BAND, GREY, HEIGHT, INK, WIDTH};
+use super::{
+    draw_line, draw_markers, render, short, Axis, Dash, Figure, Frame, Layer, Legend, Marker,
+    Swatch, BAND, GREY, HEIGHT, INK, WIDTH,
+};
 
 /// What to draw.
 #[derive(Clone, Debug)]
@@ -69,7 +72,11 @@ pub fn plot(spec: &CalibrationPlot) -> Result<Figure> {
             .iter()
             .map(|b| (fx.clamp(b.1 - b.2), fy.clamp(b.0)))
             .collect();
-        polygon.extend(band.iter().rev().map(|b| (fx.clamp(b.1 + b.2), fy.clamp(b.0))));
+        polygon.extend(
+            band.iter()
+                .rev()
+                .map(|b| (fx.clamp(b.1 + b.2), fy.clamp(b.0))),
+        );
         let n = band.len();
         layers.push(Layer {
             name: "uncertainty band".into(),
@@ -83,7 +90,10 @@ pub fn plot(spec: &CalibrationPlot) -> Result<Figure> {
             },
             draw: Box::new(move |chart| {
                 chart
-                    .draw_series(std::iter::once(Polygon::new(polygon.clone(), BAND.filled())))
+                    .draw_series(std::iter::once(Polygon::new(
+                        polygon.clone(),
+                        BAND.filled(),
+                    )))
                     .map(|_| ())
                     .map_err(|e| anyhow!("{e:?}"))
             }),
@@ -136,7 +146,11 @@ pub fn plot(spec: &CalibrationPlot) -> Result<Figure> {
                     swatch: Swatch::Line(dash),
                     text: format!(
                         "{} = {} (reference units)",
-                        if name == "LOD" { "limit of detection" } else { "limit of quantification" },
+                        if name == "LOD" {
+                            "limit of detection"
+                        } else {
+                            "limit of quantification"
+                        },
                         short(value)
                     ),
                 },
@@ -154,5 +168,12 @@ pub fn plot(spec: &CalibrationPlot) -> Result<Figure> {
             });
         }
     }
-    render("calibration", "Calibration curve", spec.note.clone(), &frame, layers, None)
+    render(
+        "calibration",
+        "Calibration curve",
+        spec.note.clone(),
+        &frame,
+        layers,
+        None,
+    )
 }

@@ -6,7 +6,10 @@
 use anyhow::{anyhow, Result};
 use plotters::prelude::*;
 
-use super::{draw_line, render, short, Axis, Dash, Figure, Frame, Layer, Legend, Swatch, ALARM_FILL, BAND, GREY, HEIGHT, INK, WIDTH};
+use super::{
+    draw_line, render, short, Axis, Dash, Figure, Frame, Layer, Legend, Swatch, ALARM_FILL, BAND,
+    GREY, HEIGHT, INK, WIDTH,
+};
 
 /// What to draw.
 #[derive(Clone, Debug)]
@@ -130,7 +133,15 @@ pub fn plot(spec: &DriftPlot) -> Result<Figure> {
                 swatch: Swatch::Line(Dash::Dashed),
                 text: format!("baseline {} = {}", spec.name, short(baseline)),
             },
-            draw: Box::new(move |chart| draw_line(chart, &[(t0, baseline), (t1, baseline)], INK, 1, Dash::Dashed)),
+            draw: Box::new(move |chart| {
+                draw_line(
+                    chart,
+                    &[(t0, baseline), (t1, baseline)],
+                    INK,
+                    1,
+                    Dash::Dashed,
+                )
+            }),
         });
     }
     let line: Vec<(f64, f64)> = spec
@@ -169,9 +180,19 @@ pub fn plot(spec: &DriftPlot) -> Result<Figure> {
         points: n,
         legend: Legend {
             swatch: Swatch::Line(Dash::Solid),
-            text: format!("{} of the active calibration after each check ({n} points drawn)", spec.name),
+            text: format!(
+                "{} of the active calibration after each check ({n} points drawn)",
+                spec.name
+            ),
         },
         draw: Box::new(move |chart| draw_line(chart, &line, INK, 2, Dash::Solid)),
     });
-    render(spec.id, format!("{} over time", spec.name), spec.note.clone(), &frame, layers, None)
+    render(
+        spec.id,
+        format!("{} over time", spec.name),
+        spec.note.clone(),
+        &frame,
+        layers,
+        None,
+    )
 }

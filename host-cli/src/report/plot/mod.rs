@@ -29,7 +29,8 @@ use plotters::prelude::*;
 use super::escape::escape;
 
 /// The chart type every layer draws on.
-pub type Chart<'a, 'b> = ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
+pub type Chart<'a, 'b> =
+    ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
 
 /// One axis.
 #[derive(Clone, Debug)]
@@ -112,7 +113,11 @@ pub fn padded((low, high): (f64, f64), fraction: f64) -> (f64, f64) {
     if width > 0.0 && width.is_finite() {
         (low - fraction * width, high + fraction * width)
     } else {
-        let pad = if low.abs() > 0.0 { low.abs() * 0.1 } else { 1.0 };
+        let pad = if low.abs() > 0.0 {
+            low.abs() * 0.1
+        } else {
+            1.0
+        };
         (low - pad, high + pad)
     }
 }
@@ -389,7 +394,10 @@ fn build<'a, 'b>(
         .caption(&frame.caption, caption_style)
         .x_label_area_size(48)
         .y_label_area_size(frame.y_label_area)
-        .build_cartesian_2d(frame.x.range.0..frame.x.range.1, frame.y.range.0..frame.y.range.1)
+        .build_cartesian_2d(
+            frame.x.range.0..frame.x.range.1,
+            frame.y.range.0..frame.y.range.1,
+        )
         .map_err(|e| anyhow!("building a chart: {e:?}"))
 }
 

@@ -4,7 +4,10 @@
 
 use anyhow::Result;
 
-use super::{draw_line, draw_markers, ramp, render, Axis, Dash, Draw, Figure, Frame, Layer, Legend, Marker, Swatch, GREY, HEIGHT, WIDTH};
+use super::{
+    draw_line, draw_markers, ramp, render, Axis, Dash, Draw, Figure, Frame, Layer, Legend, Marker,
+    Swatch, GREY, HEIGHT, WIDTH,
+};
 
 /// One series: points `(level, value, time fraction in [0, 1])`.
 #[derive(Clone, Debug)]
@@ -81,10 +84,22 @@ pub fn plot(spec: &ResidualPlot<'_>) -> Result<Figure> {
             points: points.len(),
             legend: Legend {
                 swatch: Swatch::Marker(marker),
-                text: format!("{} ({}, {} points drawn)", series.description, marker.word(), points.len()),
+                text: format!(
+                    "{} ({}, {} points drawn)",
+                    series.description,
+                    marker.word(),
+                    points.len()
+                ),
             },
             draw: Box::new(move |chart| draw_markers(chart, marker, &points)),
         });
     }
-    render(spec.id, spec.title.clone(), spec.note.clone(), &frame, layers, Some(extra))
+    render(
+        spec.id,
+        spec.title.clone(),
+        spec.note.clone(),
+        &frame,
+        layers,
+        Some(extra),
+    )
 }

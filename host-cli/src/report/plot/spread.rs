@@ -6,7 +6,10 @@
 use anyhow::{anyhow, Result};
 use plotters::prelude::*;
 
-use super::{draw_line, draw_markers, render, short, Axis, Dash, Figure, Frame, Layer, Legend, Marker, Swatch, GREY, HEIGHT, INK, WIDTH};
+use super::{
+    draw_line, draw_markers, render, short, Axis, Dash, Figure, Frame, Layer, Legend, Marker,
+    Swatch, GREY, HEIGHT, INK, WIDTH,
+};
 
 /// One level bin.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -130,7 +133,11 @@ pub fn plot(spec: &SpreadPlot) -> Result<Figure> {
                 points: n,
                 legend: Legend {
                     swatch: Swatch::Line(Dash::Solid),
-                    text: format!("fitted SD ∝ level^k, k = {} ± {} ({source})", short(*k), short(*se)),
+                    text: format!(
+                        "fitted SD ∝ level^k, k = {} ± {} ({source})",
+                        short(*k),
+                        short(*se)
+                    ),
                 },
                 draw: Box::new(move |chart| draw_line(chart, &points, INK, 2, Dash::Solid)),
             });
@@ -152,11 +159,19 @@ pub fn plot(spec: &SpreadPlot) -> Result<Figure> {
                 points: n,
                 legend: Legend {
                     swatch: Swatch::Line(Dash::Dashed),
-                    text: format!("rung chosen: {name} (λ = {}), flat when k = {}", short(*lambda), short(k)),
+                    text: format!(
+                        "rung chosen: {name} (λ = {}), flat when k = {}",
+                        short(*lambda),
+                        short(k)
+                    ),
                 },
                 draw: Box::new(move |chart| draw_line(chart, &points, GREY, 2, Dash::Dashed)),
             });
-            note.push_str(&format!(" The rung chosen is {name} (λ = {}), which assumes k = {}.", short(*lambda), short(k)));
+            note.push_str(&format!(
+                " The rung chosen is {name} (λ = {}), which assumes k = {}.",
+                short(*lambda),
+                short(k)
+            ));
         }
     }
     render("spread", "Spread against level", note, &frame, layers, None)

@@ -4,7 +4,10 @@
 use anyhow::{anyhow, Result};
 use plotters::prelude::*;
 
-use super::{draw_markers, render, Axis, Figure, Frame, Layer, Legend, Marker, Swatch, ALARM_FILL, INK, WIDTH};
+use super::{
+    draw_markers, render, Axis, Figure, Frame, Layer, Legend, Marker, Swatch, ALARM_FILL, INK,
+    WIDTH,
+};
 
 /// What to draw.
 #[derive(Clone, Debug)]
@@ -77,9 +80,24 @@ pub fn plot(spec: &TimelinePlot) -> Result<Figure> {
         }),
     });
     for (name, marker, list, text) in [
-        ("raises", Marker::Triangle, &spec.raises, "alarm raised (triangles)"),
-        ("clears", Marker::Ring, &spec.clears, "alarm cleared (rings)"),
-        ("events", Marker::Cross, &spec.others, "other events (crosses)"),
+        (
+            "raises",
+            Marker::Triangle,
+            &spec.raises,
+            "alarm raised (triangles)",
+        ),
+        (
+            "clears",
+            Marker::Ring,
+            &spec.clears,
+            "alarm cleared (rings)",
+        ),
+        (
+            "events",
+            Marker::Cross,
+            &spec.others,
+            "other events (crosses)",
+        ),
     ] {
         let points: Vec<(f64, f64, RGBColor)> = list
             .iter()
@@ -97,5 +115,12 @@ pub fn plot(spec: &TimelinePlot) -> Result<Figure> {
             draw: Box::new(move |chart| draw_markers(chart, marker, &points)),
         });
     }
-    render("timeline", "Timeline of events and alarms", spec.note.clone(), &frame, layers, None)
+    render(
+        "timeline",
+        "Timeline of events and alarms",
+        spec.note.clone(),
+        &frame,
+        layers,
+        None,
+    )
 }
