@@ -459,3 +459,38 @@ fn bad_run_files_are_clear_errors() {
         .stderr(predicates::str::contains("checks.csv:2:"))
         .stderr(predicates::str::contains("`fitted`"));
 }
+
+/// The report of a 10^6-row replay stays under 2 MB (thinned) and still parses with every
+/// plot. Slow in debug builds: run with
+/// `cargo test --release -p steadycal-cli --test report -- --ignored`.
+#[test]
+#[ignore]
+fn million_row_report_stays_under_two_megabytes() {
+    let dir = tempfile::tempdir().unwrap();
+    let feed = dir.path().join("feed.csv");
+    steadycal()
+        .arg("simulate")
+        .arg(feeds().join("gas-cell.toml"))
+        .arg("--rows")
+        .arg("1000000")
+        .arg("--out")
+        .arg(&feed)
+        .assert()
+        .success();
+    let page_path = dir.path().join("page.html");
+    steadycal()
+        .arg("replay")
+        .arg(&feed)
+        .arg("-q")
+        .arg("--report")
+        .arg(&page_path)
+        .assert()
+        .success();
+    let page = std::fs::read_to_string(&page_path).unwrap();
+    eprintln!("report of 10^6 rows: {} bytes", page.len());
+    assert!(page.len() < 2_000_000, "{} bytes", page.len());
+    let plots = parse(&page);
+    for id in RUN_PLOTS {
+        assert_axes(&plots[id], id);
+    }
+}
