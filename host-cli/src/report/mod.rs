@@ -156,9 +156,9 @@ pub fn spread_bins(
 }
 
 /// Scatter cells of the residual plots: time slices × level bins.
-pub const SCATTER_SLICES: usize = 8;
+pub const SCATTER_SLICES: usize = 4;
 /// Level bins of the residual plots' thinning grid.
-pub const SCATTER_BINS: usize = 60;
+pub const SCATTER_BINS: usize = 30;
 /// Time buckets of the parameter plots' thinning.
 pub const SERIES_BUCKETS: usize = 600;
 /// Most rows listed in the events table.

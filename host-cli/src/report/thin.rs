@@ -21,7 +21,7 @@ use std::collections::BTreeSet;
 pub const LIMIT: usize = 4000;
 
 /// Points taken at an even stride by [`scatter`], besides the extremes.
-pub const STRIDE_POINTS: usize = 1500;
+pub const STRIDE_POINTS: usize = 2500;
 
 /// Keeps, in each (time slice, x bin) cell, the points with the extreme values of each key.
 ///
