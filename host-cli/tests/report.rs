@@ -435,6 +435,16 @@ fn outside_text_is_escaped() {
 fn bad_run_files_are_clear_errors() {
     let dir = tempfile::tempdir().unwrap();
     steadycal()
+        .arg("replay")
+        .arg(feeds().join("gas-cell.csv"))
+        .arg("--events")
+        .arg("-")
+        .arg("--report")
+        .arg(dir.path().join("x.html"))
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("--report needs"));
+    steadycal()
         .arg("report")
         .arg(dir.path())
         .arg("--out")

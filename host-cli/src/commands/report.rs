@@ -119,6 +119,12 @@ impl SideFiles {
     /// Makes sure the replay writes a summary, events and checks to files.
     pub fn prepare(options: &mut crate::replay::ReplayOptions) -> Result<SideFiles> {
         let is_file = |p: &Option<PathBuf>| p.as_ref().is_some_and(|p| p.as_os_str() != "-");
+        let is_stdout = |p: &Option<PathBuf>| p.as_ref().is_some_and(|p| p.as_os_str() == "-");
+        if is_stdout(&options.summary) || is_stdout(&options.events) || is_stdout(&options.checks) {
+            anyhow::bail!(
+                "--report needs --summary, --events and --checks to be files (not `-`) when given"
+            );
+        }
         let needs_dir =
             !(is_file(&options.summary) && is_file(&options.events) && is_file(&options.checks));
         let dir = if needs_dir {
@@ -140,9 +146,6 @@ impl SideFiles {
             (&mut options.events, "events.jsonl"),
             (&mut options.checks, "checks.csv"),
         ] {
-            if slot.as_ref().is_some_and(|p| p.as_os_str() == "-") {
-                anyhow::bail!("--report needs --summary, --events and --checks to be files (not `-`) when given");
-            }
             if slot.is_none() {
                 if let Some(dir) = &dir {
                     *slot = Some(dir.join(name));

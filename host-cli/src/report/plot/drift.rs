@@ -131,7 +131,11 @@ pub fn plot(spec: &DriftPlot) -> Result<Figure> {
             points: 1,
             legend: Legend {
                 swatch: Swatch::Line(Dash::Dashed),
-                text: format!("baseline {} = {}", spec.name.to_lowercase(), short(baseline)),
+                text: format!(
+                    "baseline {} = {}",
+                    spec.name.to_lowercase(),
+                    short(baseline)
+                ),
             },
             draw: Box::new(move |chart| {
                 draw_line(
