@@ -10,5 +10,6 @@ pub mod commands;
 pub mod config;
 pub mod feed;
 pub mod replay;
+pub mod report;
 pub mod simulate;
 pub mod terminal;

@@ -17,7 +17,7 @@ use serde_json::{json, Map, Value};
 use steadycal_core::event::{AlarmKind, Event, EventKind, Severity};
 use steadycal_core::monitor::{Monitor, MonitorConfig};
 use steadycal_core::real::Real;
-use steadycal_core::sample::{Outcome, Sample};
+use steadycal_core::sample::{Flags, Outcome, Sample};
 use steadycal_core::transform::Rung;
 
 use crate::feed::{ColumnNames, CsvFeed, FeedError};
@@ -46,6 +46,9 @@ pub struct ReplayOptions {
     pub summary: Option<PathBuf>,
     /// Calibrated readings as CSV (`-` for standard output).
     pub readings: Option<PathBuf>,
+    /// One row per fitted check as CSV, for `report` (`-` for standard output); see
+    /// [`crate::report::checks`].
+    pub checks: Option<PathBuf>,
     /// Float type.
     pub precision: Precision,
     /// Column names.
@@ -69,6 +72,7 @@ impl ReplayOptions {
             events: None,
             summary: None,
             readings: None,
+            checks: None,
             precision: Precision::F32,
             columns: ColumnNames::default(),
             config,
@@ -508,6 +512,10 @@ where
             "seq,t,raw,value,standard_uncertainty,expanded_uncertainty,rung,flags"
         )?;
     }
+    let mut checks_out = options.checks.as_deref().map(create_output).transpose()?;
+    if let Some(out) = checks_out.as_mut() {
+        writeln!(out, "{}", crate::report::checks::HEADER)?;
+    }
     let bar = progress_bar(options);
     let mut error = None;
     let mut skipped: Vec<SkippedRow> = Vec::new();
@@ -560,6 +568,10 @@ where
             }
         }
         let t = sample.t;
+        let before = match checks_out {
+            Some(_) => crate::report::checks::before(&engine.monitor, &sample),
+            None => None,
+        };
         let outcome = engine.push(&sample, |event| match events_out.as_mut() {
             Some(out) => {
                 serde_json::to_writer(&mut *out, &event_json(event, t))?;
@@ -570,6 +582,11 @@ where
         if let Some(out) = readings_out.as_mut() {
             if sample.reference.is_none() {
                 write_reading(out.as_mut(), &sample, &outcome, engine.monitor.rung())?;
+            }
+        }
+        if let (Some(out), Some(before)) = (checks_out.as_mut(), before) {
+            if !outcome.flags.contains(Flags::REJECTED) {
+                crate::report::checks::write_row(out.as_mut(), &engine.monitor, &sample, &before)?;
             }
         }
     }
@@ -585,6 +602,9 @@ where
         out.flush()?;
     }
     if let Some(mut out) = readings_out {
+        out.flush()?;
+    }
+    if let Some(mut out) = checks_out {
         out.flush()?;
     }
     let mut summary = engine.summary(file, options.precision, error.as_ref());

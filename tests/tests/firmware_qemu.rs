@@ -271,6 +271,7 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
         events: Some(events_path.clone()),
         summary: Some(summary_path.clone()),
         readings: Some(readings_path.clone()),
+        checks: None,
         precision: Precision::F32,
         columns: ColumnNames::default(),
         config: MonitorConfig::default_for_range(1.0, 1000.0),

@@ -33,6 +33,10 @@ pub struct AssessArgs {
     /// Where to write (`-` = stdout).
     #[arg(long, value_name = "FILE", default_value = "-")]
     pub out: PathBuf,
+    /// Also write the HTML report (calibration curve with its band, LOD/LOQ, residuals,
+    /// spread against level) here.
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
 }
 
 /// Runs `assess`.
@@ -56,5 +60,14 @@ pub fn run(args: AssessArgs) -> anyhow::Result<ExitCode> {
         out.write_all(assess::render_text(&assessment).as_bytes())?;
     }
     out.flush()?;
+    if let Some(path) = &args.report {
+        let page = crate::report::assess_report(
+            &args.feed.display().to_string(),
+            &data,
+            &assessment,
+            &options,
+        )?;
+        super::report::write_page(path, &page)?;
+    }
     Ok(ExitCode::SUCCESS)
 }

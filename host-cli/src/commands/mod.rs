@@ -23,6 +23,7 @@ use crate::replay::Precision;
 pub mod assess;
 pub mod fleet;
 pub mod replay;
+pub mod report;
 pub mod simulate;
 pub mod watch;
 

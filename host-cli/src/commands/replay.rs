@@ -38,6 +38,14 @@ pub struct ReplayArgs {
     /// seq, t, raw, value, standard and expanded uncertainty, rung, flags.
     #[arg(long, value_name = "FILE")]
     pub readings: Option<PathBuf>,
+    /// Write one CSV row per fitted check here (`-` = stdout), for `steadycal report`:
+    /// seq, t, reference, raw, fitted, residual, standardized, rung, offset and gain with
+    /// their uncertainties, the read-back value and its expanded uncertainty.
+    #[arg(long, value_name = "FILE")]
+    pub checks: Option<PathBuf>,
+    /// Also write the HTML report of the run here (see `steadycal report`).
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
     /// Skip malformed rows (each is listed in the summary's `skipped_rows`) instead of
     /// stopping with exit code 2.
     #[arg(long)]
@@ -61,6 +69,7 @@ impl ReplayArgs {
         options.events = self.events.clone();
         options.summary = self.summary.clone();
         options.readings = self.readings.clone();
+        options.checks = self.checks.clone();
         options.precision = self.monitor.precision;
         options.columns = resolved.columns;
         options.skip_bad_rows = self.skip_bad_rows;
@@ -72,8 +81,15 @@ impl ReplayArgs {
 
 /// Runs `replay`.
 pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
-    let options = args.options()?;
+    let mut options = args.options()?;
+    let side = match &args.report {
+        Some(_) => Some(super::report::SideFiles::prepare(&mut options)?),
+        None => None,
+    };
     let result = replay::replay(&options)?;
+    if let (Some(side), Some(path)) = (&side, &args.report) {
+        side.write_report(&options, &args.monitor, path)?;
+    }
     if let Some(error) = result.error {
         eprintln!("steadycal: {error}");
         eprintln!("steadycal: outputs up to the previous row were written");
