@@ -6,7 +6,7 @@
 use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
-use steadycal_cli::commands::{self, assess, fleet, replay, simulate, watch};
+use steadycal_cli::commands::{self, assess, fleet, replay, simulate, snapshot, watch};
 
 /// Keeps a sensor's calibration honest: replays recorded feeds through the same monitor a
 /// board runs, watches live streams, checks fleets of channels, assesses lab calibration runs,
@@ -43,6 +43,10 @@ enum Command {
     ///
     /// Example: steadycal fleet simulated-feeds --csv fleet.csv
     Fleet(fleet::FleetArgs),
+    /// Inspect or verify a monitor snapshot (the state a board or `replay --save-snapshot` wrote).
+    ///
+    /// Example: steadycal snapshot inspect state.bin --json
+    Snapshot(snapshot::SnapshotArgs),
 }
 
 fn main() -> ExitCode {
@@ -60,6 +64,7 @@ fn main() -> ExitCode {
         Command::Assess(args) => assess::run(args),
         Command::Watch(args) => watch::run(args),
         Command::Fleet(args) => fleet::run(args),
+        Command::Snapshot(args) => snapshot::run(args),
     };
     match result {
         Ok(code) => code,

@@ -24,6 +24,7 @@ pub mod assess;
 pub mod fleet;
 pub mod replay;
 pub mod simulate;
+pub mod snapshot;
 pub mod watch;
 
 /// The exit-code contract, shown at the end of `--help`.
