@@ -167,15 +167,6 @@ pub fn decode_frame<R: Real>(frame: &mut [u8]) -> Result<Record<R>, RecordError>
     Ok(record)
 }
 
-/// The float width a frame's records use, read from a start record (without knowing the
-/// width in advance: a start record has no float in it).
-pub fn start_of(frame: &mut [u8]) -> Option<LogStart> {
-    match decode_frame::<f32>(frame) {
-        Ok(Record::Start(start)) => Some(start),
-        _ => None,
-    }
-}
-
 /// The frames of a byte slice: `(start, end)` byte offsets of each non-empty frame body,
 /// the delimiter excluded. A body at the end with no delimiter is yielded too (a torn
 /// last frame).
