@@ -305,11 +305,17 @@ fn device_log_replays_like_its_csv_and_survives_a_torn_record() {
         .arg("--human-summary")
         .assert()
         .success()
-        .stderr(predicate::str::contains(format!(
-            "torn.log: 1 damaged span(s) of {} bytes skipped (bytes {start}..{})",
-            torn.len(),
-            end - 4
-        )));
+        .stderr(
+            predicate::str::contains(format!(
+                "torn.log: 1 damaged span(s) of {} bytes skipped (bytes {start}..{})",
+                torn.len(),
+                end - 4
+            ))
+            .and(predicate::str::contains(format!(
+                "device log: 1 damaged span(s) skipped, bytes {start}..{}",
+                end - 4
+            ))),
+        );
     let summary = json(&d.join("torn.json"));
     assert_eq!(
         summary["damaged_spans"],

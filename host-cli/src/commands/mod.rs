@@ -250,6 +250,17 @@ pub fn human_summary(summary: &serde_json::Value, colour: bool) -> String {
             "\n  {skipped} bad rows skipped (listed in the summary)"
         ));
     }
+    if let Some(spans) = get("damaged_spans").as_array().filter(|s| !s.is_empty()) {
+        let list: Vec<String> = spans
+            .iter()
+            .map(|s| format!("{}..{}", s["start"], s["end"]))
+            .collect();
+        text.push_str(&format!(
+            "\n  device log: {} damaged span(s) skipped, bytes {}",
+            spans.len(),
+            list.join(", ")
+        ));
+    }
     let order = get("time_order");
     let repeated = order.get("repeated").and_then(|v| v.as_u64()).unwrap_or(0);
     let backwards = order.get("backwards").and_then(|v| v.as_u64()).unwrap_or(0);
