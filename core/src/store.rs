@@ -600,6 +600,43 @@ mod tests {
     }
 
     #[test]
+    fn other_geometry_16_byte_writes_4_kib_sectors() {
+        // One 4 KiB sector per slot, 16-byte write units: records are padded, offsets
+        // aligned; power cuts sampled every 61st byte over 12 saves.
+        type Big = RamFlash<{ 3 * 4096 }, 16, 4096>;
+        let mut flash = Big::new();
+        let mut monitor: Monitor<f32> =
+            Monitor::new(MonitorConfig::default_for_range(1.0, 100.0)).unwrap();
+        let mut scratch = [0u8; 4096];
+        let mut previous: Option<std::vec::Vec<u8>> = None;
+        for step in 0..12 {
+            advance(&mut monitor, step);
+            let mut expected = [0u8; MAX_SNAPSHOT_LEN];
+            let len = monitor.snapshot(&mut expected).unwrap();
+            for offset in (0..4096 + len + 8).step_by(61) {
+                let mut cut = flash.clone();
+                cut.cut_after(offset);
+                let mut store = SnapshotStore::new(&mut cut, 4096, 4096).unwrap();
+                let _ = store.save(&monitor, &mut scratch);
+                cut.power_on();
+                let mut store = SnapshotStore::new(&mut cut, 4096, 4096).unwrap();
+                match (store.load(&mut scratch).unwrap(), &previous) {
+                    (Some((_, bytes)), Some(old)) => {
+                        assert!(bytes == &expected[..len] || bytes == &old[..])
+                    }
+                    (Some((_, bytes)), None) => assert!(bytes == &expected[..len]),
+                    (None, None) => {}
+                    (None, Some(_)) => panic!("save {step}, cut at {offset}: lost"),
+                }
+            }
+            let mut store = SnapshotStore::new(&mut flash, 4096, 4096).unwrap();
+            let info = store.save(&monitor, &mut scratch).unwrap();
+            assert_eq!(info.seq, step as u32 + 1);
+            previous = Some(std::vec::Vec::from(&expected[..len]));
+        }
+    }
+
+    #[test]
     fn power_cut_at_any_byte_keeps_a_good_snapshot() {
         // Every byte offset over 100 consecutive saves in release builds; every 37th byte
         // in debug builds (the same test, reduced, to keep `cargo test` quick).
