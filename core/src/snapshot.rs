@@ -67,8 +67,9 @@ pub const CRC32: Crc<u32> = Crc::<u32>::new(&CRC_32_ISO_HDLC);
 /// bytes). Every field of the monitor is one of these, and the in-memory layout also
 /// holds the unused capacity of the event queue. So `3/2 · size_of` plus a margin of 64
 /// bytes bounds the payload. The test `worst_case_fits_the_bound` checks it against the
-/// real encoded size of a monitor with every counter at its maximum, every option filled
-/// and a full event queue.
+/// largest encoding of a real monitor after a long run, walked by a serializer that counts
+/// every integer at its longest varint, a full event queue of the largest event, and a
+/// generous allowance for each option left empty (f32: 1,953 bytes against 2,950).
 pub const fn max_snapshot_len<R, const P: usize, const BINS: usize, const Q: usize>() -> usize {
     let size = core::mem::size_of::<Monitor<R, P, BINS, Q>>();
     HEADER_LEN + size + size / 2 + 64 + CRC_LEN
@@ -518,30 +519,229 @@ mod tests {
         ));
     }
 
-    /// An upper estimate of the largest encoded state: a monitor after 3000 checks with
-    /// sequence numbers near `u64::MAX`, its baseline set (every option that a long run
-    /// fills is filled), encoded; plus a full queue of the largest event and the largest
-    /// varint growth (10 bytes) for each of the 14 integer counters that could still grow.
+    /// A serde serializer that adds up the *largest* postcard encoding of every value it
+    /// visits: each integer at its maximum varint length (u16 3, u32 5, u64 10 bytes),
+    /// floats at their width, enum tags and sequence lengths at 1 byte (fewer than 128
+    /// variants and elements everywhere in the monitor). `None` cannot show the size of
+    /// the `Some` it could be, so it is counted in `nones`; sequences (the event queue) in
+    /// `seq_elements`.
+    #[derive(Default)]
+    struct MaxSize {
+        total: usize,
+        nones: usize,
+        seq_elements: usize,
+    }
+
+    #[derive(Debug)]
+    struct Never;
+    impl core::fmt::Display for Never {
+        fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+            f.write_str("never")
+        }
+    }
+    impl serde::ser::StdError for Never {}
+    impl serde::ser::Error for Never {
+        fn custom<T: core::fmt::Display>(_: T) -> Self {
+            Never
+        }
+    }
+
+    macro_rules! fixed {
+        ($($name:ident: $ty:ty => $len:expr),* $(,)?) => {
+            $(fn $name(self, _: $ty) -> Result<(), Never> { self.total += $len; Ok(()) })*
+        };
+    }
+
+    impl serde::Serializer for &mut MaxSize {
+        type Ok = ();
+        type Error = Never;
+        type SerializeSeq = Self;
+        type SerializeTuple = Self;
+        type SerializeTupleStruct = Self;
+        type SerializeTupleVariant = Self;
+        type SerializeMap = Self;
+        type SerializeStruct = Self;
+        type SerializeStructVariant = Self;
+        fixed! {
+            serialize_bool: bool => 1, serialize_i8: i8 => 1, serialize_u8: u8 => 1,
+            serialize_i16: i16 => 3, serialize_u16: u16 => 3,
+            serialize_i32: i32 => 5, serialize_u32: u32 => 5,
+            serialize_i64: i64 => 10, serialize_u64: u64 => 10,
+            serialize_f32: f32 => 4, serialize_f64: f64 => 8, serialize_char: char => 4,
+        }
+        fn serialize_str(self, v: &str) -> Result<(), Never> {
+            self.total += 10 + v.len();
+            Ok(())
+        }
+        fn serialize_bytes(self, v: &[u8]) -> Result<(), Never> {
+            self.total += 10 + v.len();
+            Ok(())
+        }
+        fn serialize_none(self) -> Result<(), Never> {
+            self.total += 1;
+            self.nones += 1;
+            Ok(())
+        }
+        fn serialize_some<T: ?Sized + serde::Serialize>(self, v: &T) -> Result<(), Never> {
+            self.total += 1;
+            v.serialize(self)
+        }
+        fn serialize_unit(self) -> Result<(), Never> {
+            Ok(())
+        }
+        fn serialize_unit_struct(self, _: &'static str) -> Result<(), Never> {
+            Ok(())
+        }
+        fn serialize_unit_variant(
+            self,
+            _: &'static str,
+            _: u32,
+            _: &'static str,
+        ) -> Result<(), Never> {
+            self.total += 1;
+            Ok(())
+        }
+        fn serialize_newtype_struct<T: ?Sized + serde::Serialize>(
+            self,
+            _: &'static str,
+            v: &T,
+        ) -> Result<(), Never> {
+            v.serialize(self)
+        }
+        fn serialize_newtype_variant<T: ?Sized + serde::Serialize>(
+            self,
+            _: &'static str,
+            _: u32,
+            _: &'static str,
+            v: &T,
+        ) -> Result<(), Never> {
+            self.total += 1;
+            v.serialize(self)
+        }
+        fn serialize_seq(self, len: Option<usize>) -> Result<Self, Never> {
+            self.total += 1;
+            self.seq_elements += len.unwrap_or(0);
+            Ok(self)
+        }
+        fn serialize_tuple(self, _: usize) -> Result<Self, Never> {
+            Ok(self)
+        }
+        fn serialize_tuple_struct(self, _: &'static str, _: usize) -> Result<Self, Never> {
+            Ok(self)
+        }
+        fn serialize_tuple_variant(
+            self,
+            _: &'static str,
+            _: u32,
+            _: &'static str,
+            _: usize,
+        ) -> Result<Self, Never> {
+            self.total += 1;
+            Ok(self)
+        }
+        fn serialize_map(self, _: Option<usize>) -> Result<Self, Never> {
+            self.total += 10;
+            Ok(self)
+        }
+        fn serialize_struct(self, _: &'static str, _: usize) -> Result<Self, Never> {
+            Ok(self)
+        }
+        fn serialize_struct_variant(
+            self,
+            _: &'static str,
+            _: u32,
+            _: &'static str,
+            _: usize,
+        ) -> Result<Self, Never> {
+            self.total += 1;
+            Ok(self)
+        }
+    }
+
+    macro_rules! compound {
+        ($($trait:ident: $method:ident),*) => {$(
+            impl serde::ser::$trait for &mut MaxSize {
+                type Ok = ();
+                type Error = Never;
+                fn $method<T: ?Sized + serde::Serialize>(&mut self, v: &T) -> Result<(), Never> {
+                    v.serialize(&mut **self)
+                }
+                fn end(self) -> Result<(), Never> {
+                    Ok(())
+                }
+            }
+        )*};
+    }
+    compound!(SerializeSeq: serialize_element, SerializeTuple: serialize_element,
+        SerializeTupleStruct: serialize_field, SerializeTupleVariant: serialize_field);
+
+    impl serde::ser::SerializeMap for &mut MaxSize {
+        type Ok = ();
+        type Error = Never;
+        fn serialize_key<T: ?Sized + serde::Serialize>(&mut self, v: &T) -> Result<(), Never> {
+            v.serialize(&mut **self)
+        }
+        fn serialize_value<T: ?Sized + serde::Serialize>(&mut self, v: &T) -> Result<(), Never> {
+            v.serialize(&mut **self)
+        }
+        fn end(self) -> Result<(), Never> {
+            Ok(())
+        }
+    }
+    impl serde::ser::SerializeStruct for &mut MaxSize {
+        type Ok = ();
+        type Error = Never;
+        fn serialize_field<T: ?Sized + serde::Serialize>(
+            &mut self,
+            _: &'static str,
+            v: &T,
+        ) -> Result<(), Never> {
+            v.serialize(&mut **self)
+        }
+        fn end(self) -> Result<(), Never> {
+            Ok(())
+        }
+    }
+    impl serde::ser::SerializeStructVariant for &mut MaxSize {
+        type Ok = ();
+        type Error = Never;
+        fn serialize_field<T: ?Sized + serde::Serialize>(
+            &mut self,
+            _: &'static str,
+            v: &T,
+        ) -> Result<(), Never> {
+            v.serialize(&mut **self)
+        }
+        fn end(self) -> Result<(), Never> {
+            Ok(())
+        }
+    }
+
+    fn max_size<T: serde::Serialize>(value: &T) -> MaxSize {
+        let mut size = MaxSize::default();
+        value.serialize(&mut size).unwrap();
+        size
+    }
+
+    /// The largest encoded snapshot of a default monitor, by [`MaxSize`]: a monitor after a
+    /// long run with a baseline set and drift evaluated (so its options are filled), every
+    /// integer at its maximum varint length, the event queue full of the largest event,
+    /// and, for each `None` left, the largest optional state (the drift status) at twice
+    /// its in-memory size.
     fn worst_case<R: Real>() -> usize {
         let config = MonitorConfig::<R>::default_for_range(R::ONE, R::from_f64(100.0));
         let mut monitor: Monitor<R> = Monitor::new(config).unwrap();
+        monitor
+            .set_baseline([R::from_f64(0.3), R::TWO, R::ZERO, R::ZERO], None)
+            .unwrap();
         for i in 0..3000u64 {
             let reference = R::from_f64(1.0 + (i % 40) as f64 * 2.5);
             let noise = R::from_f64(0.02 * (((i * 7919) % 17) as f64 - 8.0));
             let raw = R::from_f64(0.3) + R::TWO * reference + noise * reference;
-            monitor.push(&Sample::check(
-                u64::MAX - 4000 + i,
-                i as f64,
-                raw,
-                reference,
-            ));
+            monitor.push(&Sample::check(i, i as f64, raw, reference));
             while monitor.pop_event().is_some() {}
         }
-        monitor
-            .set_baseline([R::ONE; 4], Some([[R::ONE; 4]; 4]))
-            .unwrap();
-        let mut bytes = [0u8; 8192];
-        let base_len = monitor.snapshot(&mut bytes).unwrap();
+        let size = max_size(&monitor);
         let largest = Event {
             seq: u64::MAX,
             kind: EventKind::MeanMisfit {
@@ -552,9 +752,31 @@ mod tests {
                 suggest_temperature: true,
             },
         };
-        let mut probe = [0u8; 64];
-        let event_len = postcard::to_slice(&largest, &mut probe).unwrap().len();
-        base_len + 8 * event_len + 14 * 10
+        let event = max_size(&largest).total.max(
+            max_size(&Event {
+                seq: u64::MAX,
+                kind: EventKind::GainDrift {
+                    change: R::MAX,
+                    uncertainty: R::MAX,
+                    severity: crate::event::Severity::Alarm,
+                },
+            })
+            .total,
+        );
+        let option_slack = 2 * core::mem::size_of::<crate::detect::drift::DriftStatus<R>>();
+        std::eprintln!(
+            "max-size walk (f{}): {} bytes, {} None, {} waiting events; event {} bytes",
+            R::BITS,
+            size.total,
+            size.nones,
+            size.seq_elements,
+            event
+        );
+        HEADER_LEN
+            + size.total
+            + (8 - size.seq_elements) * event
+            + size.nones * option_slack
+            + CRC_LEN
     }
 
     #[test]
