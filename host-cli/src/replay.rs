@@ -458,7 +458,7 @@ where
 {
     let mut rows = crate::device_log::DeviceLogRows::<R>::new(file.clone(), bytes);
     let length = rows.len();
-    let mut result = replay_rows_with(&mut rows, &file, options, false, |rows, map| {
+    let result = replay_rows_with(&mut rows, &file, options, true, |rows, map| {
         map.insert("input_format".into(), json!(InputFormat::DeviceLog));
         map.insert("damaged_spans".into(), json!(rows.damaged));
         map.insert("logged_events".into(), json!(rows.logged_events));
@@ -476,9 +476,6 @@ where
             spans.len(),
             spans.join(", ")
         );
-    }
-    if let Some(FeedError::NoRows { .. }) = result.error {
-        result.error = Some(FeedError::NoRows { file });
     }
     Ok(result)
 }
@@ -599,7 +596,7 @@ pub fn replay_rows<R>(
 where
     R: Real + FromStr + Display,
 {
-    replay_rows_with(rows_in, file, options, true, |_, map| {
+    replay_rows_with(rows_in, file, options, false, |_, map| {
         map.insert("input_format".into(), json!(InputFormat::Csv));
     })
 }
@@ -629,7 +626,7 @@ fn replay_rows_with<R, I>(
     mut rows_in: I,
     file: &str,
     options: &ReplayOptions,
-    renumber: bool,
+    device_log: bool,
     finish: impl FnOnce(&I, &mut Map<String, Value>),
 ) -> Result<ReplayResult>
 where
@@ -639,7 +636,7 @@ where
     let mut engine = start_engine::<R>(options)?;
     // A resumed CSV replay numbers its rows on from the samples the snapshot counted, so
     // that two halves number their events like one whole run.
-    let seq_offset = if renumber && options.persist.resume.is_some() {
+    let seq_offset = if !device_log && options.persist.resume.is_some() {
         engine.monitor.counters().samples
     } else {
         0
@@ -741,8 +738,14 @@ where
         bar.finish_and_clear();
     }
     if rows == 0 && error.is_none() {
-        error = Some(FeedError::NoRows {
-            file: file.to_string(),
+        error = Some(if device_log {
+            FeedError::NoRecords {
+                file: file.to_string(),
+            }
+        } else {
+            FeedError::NoRows {
+                file: file.to_string(),
+            }
         });
     }
     if let Some(mut out) = events_out {
