@@ -12,7 +12,9 @@
 //! against level), [`ladder`] (shadow fits per rung), [`adequacy`] (mean check after a
 //! switch), [`detect`] (drift and fault detectors, alarms), [`event`] (events and their
 //! queue), [`sample`] (inputs and outcomes),
-//! [`monitor`] (the composition).
+//! [`monitor`] (the composition), [`snapshot`] (the monitor as bytes, to resume after a
+//! power loss), [`store`] (two snapshot slots on a NOR flash), [`record`] (the device log
+//! format).
 #![no_std]
 #![forbid(unsafe_code)]
 #![deny(missing_docs)]
@@ -34,6 +36,9 @@ pub mod hal;
 pub mod ladder;
 pub mod monitor;
 pub mod real;
+pub mod record;
 pub mod sample;
+pub mod snapshot;
 pub mod spread;
+pub mod store;
 pub mod transform;

@@ -331,6 +331,27 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         })
     }
 
+    /// Checks a monitor decoded from a snapshot: the configuration validates and the
+    /// state agrees with it (fit sizes, ladder and spread settings), so that `push` keeps
+    /// its invariants on it.
+    pub(crate) fn check_restored(&self) -> Result<(), crate::snapshot::SnapshotError> {
+        use crate::snapshot::SnapshotError;
+        self.config
+            .validate(P)
+            .map_err(SnapshotError::InvalidConfig)?;
+        let dim = self.config.basis.len();
+        let fits_agree = Rung::ALL
+            .iter()
+            .all(|&rung| self.ladder.fit(rung).dim() == dim);
+        if self.ladder_config != self.config.ladder()
+            || *self.spread.config() != self.config.spread()
+            || !fits_agree
+        {
+            return Err(SnapshotError::InconsistentState);
+        }
+        Ok(())
+    }
+
     /// The configuration.
     pub fn config(&self) -> &MonitorConfig<R> {
         &self.config

@@ -59,6 +59,12 @@ pub enum FeedError {
         /// File name.
         file: String,
     },
+    /// A device log holds no intact sample record.
+    #[error("{file}: no intact sample record in the device log, expected at least one (damaged spans are listed in the summary)")]
+    NoRecords {
+        /// File name.
+        file: String,
+    },
     /// A required column is missing from the header.
     #[error("{file}:1: no `{column}` column in the header, expected one (found: {found})")]
     MissingColumn {

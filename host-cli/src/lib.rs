@@ -2,14 +2,17 @@
 //! layer over: feed reading ([`feed`]), the configuration file ([`config`]), replay and the
 //! engine shared by every command ([`replay`]), the simulator ([`simulate`]), the batch
 //! assessment of a lab calibration run ([`assess`]), terminal conventions ([`terminal`]) and
-//! the subcommands with their arguments ([`commands`]).
+//! the subcommands with their arguments ([`commands`]), snapshot files ([`snapshot_file`])
+//! and device logs ([`device_log`]).
 #![forbid(unsafe_code)]
 
 pub mod assess;
 pub mod commands;
 pub mod config;
+pub mod device_log;
 pub mod feed;
 pub mod replay;
 pub mod report;
 pub mod simulate;
+pub mod snapshot_file;
 pub mod terminal;

@@ -6,7 +6,7 @@
 use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
-use steadycal_cli::commands::{self, assess, fleet, replay, report, simulate, watch};
+use steadycal_cli::commands::{self, assess, fleet, replay, report, simulate, snapshot, watch};
 
 /// Keeps a sensor's calibration honest: replays recorded feeds through the same monitor a
 /// board runs, watches live streams, checks fleets of channels, assesses lab calibration runs,
@@ -47,6 +47,10 @@ enum Command {
     ///
     /// Example: steadycal report run/ --out report.html
     Report(report::ReportArgs),
+    /// Inspect or verify a monitor snapshot (the state a board or `replay --save-snapshot` wrote).
+    ///
+    /// Example: steadycal snapshot inspect state.bin --json
+    Snapshot(snapshot::SnapshotArgs),
 }
 
 fn main() -> ExitCode {
@@ -65,6 +69,7 @@ fn main() -> ExitCode {
         Command::Watch(args) => watch::run(args),
         Command::Fleet(args) => fleet::run(args),
         Command::Report(args) => report::run(args),
+        Command::Snapshot(args) => snapshot::run(args),
     };
     match result {
         Ok(code) => code,

@@ -17,6 +17,7 @@ use serde_json::{json, Map, Value};
 use steadycal_core::event::{AlarmKind, Event, EventKind, Severity};
 use steadycal_core::monitor::{Monitor, MonitorConfig};
 use steadycal_core::real::Real;
+use steadycal_core::record::Record;
 use steadycal_core::sample::{Flags, Outcome, Sample};
 use steadycal_core::transform::Rung;
 
@@ -61,6 +62,37 @@ pub struct ReplayOptions {
     pub progress: bool,
     /// Print warnings (time order, skipped rows) on standard error.
     pub warnings: bool,
+    /// Snapshots and device logs: resume, save, input format, log output.
+    pub persist: PersistOptions,
+}
+
+/// What kind of input a feed is.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, clap::ValueEnum, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum InputFormat {
+    /// Decide by content: a device log starts with a 0x00 byte, a CSV feed never does.
+    #[default]
+    Auto,
+    /// CSV with a header.
+    Csv,
+    /// A device log (COBS-framed postcard records, see `steadycal_core::record`).
+    DeviceLog,
+}
+
+/// Snapshot and device-log options of a replay.
+#[derive(Clone, Debug, Default)]
+pub struct PersistOptions {
+    /// Start from this snapshot instead of a fresh monitor.
+    pub resume: Option<PathBuf>,
+    /// Write the final state as a snapshot here.
+    pub save_snapshot: Option<PathBuf>,
+    /// Input format (default: by content).
+    pub input_format: InputFormat,
+    /// Write the samples and events of the run as a device log here.
+    pub device_log_out: Option<PathBuf>,
+    /// The configuration was given explicitly (a config file or range options): a resumed
+    /// snapshot must carry the same one.
+    pub config_explicit: bool,
 }
 
 impl ReplayOptions {
@@ -79,6 +111,7 @@ impl ReplayOptions {
             skip_bad_rows: false,
             progress: false,
             warnings: true,
+            persist: PersistOptions::default(),
         }
     }
 }
@@ -379,12 +412,76 @@ impl<R: Real + Display> Engine<R> {
 /// parsing and the core overlap on two cores while memory stays flat in the feed length.
 /// The core still sees the samples one by one, in feed order: results are identical to a
 /// single-threaded run.
+///
+/// A device log (detected by content, or asked for with [`InputFormat::DeviceLog`]) is read
+/// whole and replayed record by record; damaged byte spans are skipped and listed in the
+/// summary (`damaged_spans`).
 pub fn replay(options: &ReplayOptions) -> Result<ReplayResult> {
-    let feed = CsvFeed::open(&options.feed, &options.columns)?;
+    use std::io::BufRead;
+    let file = options.feed.display().to_string();
+    let io_error = |source| FeedError::Io {
+        file: file.clone(),
+        source,
+    };
+    let input: Box<dyn Read + Send> = if file == "-" {
+        Box::new(std::io::stdin())
+    } else {
+        Box::new(File::open(&options.feed).map_err(io_error)?)
+    };
+    let mut reader = std::io::BufReader::with_capacity(1 << 16, input);
+    let is_log = match options.persist.input_format {
+        InputFormat::Csv => false,
+        InputFormat::DeviceLog => true,
+        InputFormat::Auto => {
+            crate::device_log::looks_like_device_log(reader.fill_buf().map_err(io_error)?)
+        }
+    };
+    if is_log {
+        let mut bytes = Vec::new();
+        reader.read_to_end(&mut bytes).map_err(io_error)?;
+        return match options.precision {
+            Precision::F32 => replay_device_log::<f32>(file, bytes, options),
+            Precision::F64 => replay_device_log::<f64>(file, bytes, options),
+        };
+    }
+    let input: Box<dyn Read + Send> = Box::new(reader);
+    let feed = CsvFeed::new(file, input, &options.columns)?;
     match options.precision {
         Precision::F32 => replay_pipelined::<f32>(feed, options),
         Precision::F64 => replay_pipelined::<f64>(feed, options),
     }
+}
+
+fn replay_device_log<R>(
+    file: String,
+    bytes: Vec<u8>,
+    options: &ReplayOptions,
+) -> Result<ReplayResult>
+where
+    R: Real + FromStr + Display,
+{
+    let mut rows = crate::device_log::DeviceLogRows::<R>::new(file.clone(), bytes);
+    let length = rows.len();
+    let result = replay_rows_with(&mut rows, &file, options, true, |rows, map| {
+        map.insert("input_format".into(), json!(InputFormat::DeviceLog));
+        map.insert("damaged_spans".into(), json!(rows.damaged));
+        map.insert("logged_events".into(), json!(rows.logged_events));
+        map.insert("sessions".into(), json!(rows.sessions));
+        map.insert("records".into(), json!(rows.records));
+    })?;
+    if !rows.damaged.is_empty() && options.warnings {
+        let spans: Vec<String> = rows
+            .damaged
+            .iter()
+            .map(|span| format!("bytes {}..{}", span.start, span.end))
+            .collect();
+        eprintln!(
+            "steadycal: warning: {file}: {} damaged span(s) of {length} bytes skipped ({}); every intact record was replayed (listed in the summary's `damaged_spans`)",
+            spans.len(),
+            spans.join(", ")
+        );
+    }
+    Ok(result)
 }
 
 /// Rows per batch handed from the parsing thread to the engine.
@@ -503,7 +600,60 @@ pub fn replay_rows<R>(
 where
     R: Real + FromStr + Display,
 {
-    let mut engine = Engine::<R>::new(&options.config)?;
+    replay_rows_with(rows_in, file, options, false, |_, map| {
+        map.insert("input_format".into(), json!(InputFormat::Csv));
+    })
+}
+
+/// The engine at the start of a replay: fresh, or resumed from the options' snapshot (whose
+/// configuration must match an explicitly given one).
+pub fn start_engine<R: Real + Display>(options: &ReplayOptions) -> Result<Engine<R>> {
+    let Some(path) = &options.persist.resume else {
+        return Engine::<R>::new(&options.config);
+    };
+    let monitor = crate::snapshot_file::restore_as::<R>(path)?;
+    if options.persist.config_explicit {
+        let wanted: MonitorConfig<R> = options.config.convert();
+        if wanted != *monitor.config() {
+            let keys = crate::snapshot_file::config_differences(&wanted, monitor.config());
+            anyhow::bail!(
+                "{}: the snapshot's monitor configuration differs from the one given on the command line (--config/--level-low/--level-high) in: {}; leave those options out to resume with the snapshot's own configuration",
+                path.display(),
+                keys.join(", ")
+            );
+        }
+    }
+    Ok(Engine::with_monitor(monitor))
+}
+
+fn replay_rows_with<R, I>(
+    mut rows_in: I,
+    file: &str,
+    options: &ReplayOptions,
+    device_log: bool,
+    finish: impl FnOnce(&I, &mut Map<String, Value>),
+) -> Result<ReplayResult>
+where
+    R: Real + FromStr + Display,
+    I: Iterator<Item = ParsedRow<R>>,
+{
+    let mut engine = start_engine::<R>(options)?;
+    // A resumed CSV replay numbers its rows on from the samples the snapshot counted, so
+    // that two halves number their events like one whole run.
+    let seq_offset = if !device_log && options.persist.resume.is_some() {
+        engine.monitor.counters().samples
+    } else {
+        0
+    };
+    let mut log_out = options
+        .persist
+        .device_log_out
+        .as_deref()
+        .map(|path| {
+            create_output(path)
+                .and_then(|out| Ok(crate::device_log::DeviceLogWriter::<R>::new(out)?))
+        })
+        .transpose()?;
     let mut events_out = options.events.as_deref().map(create_output).transpose()?;
     let mut readings_out = options.readings.as_deref().map(create_output).transpose()?;
     if let Some(out) = readings_out.as_mut() {
@@ -521,7 +671,7 @@ where
     let mut skipped: Vec<SkippedRow> = Vec::new();
     let mut skipped_count: u64 = 0;
     let mut rows: u64 = 0;
-    for ParsedRow { next, line, bytes } in rows_in {
+    for ParsedRow { next, line, bytes } in rows_in.by_ref() {
         rows += 1;
         if rows.is_multiple_of(65_536) {
             if let Some(bar) = &bar {
@@ -529,7 +679,10 @@ where
             }
         }
         let sample = match next {
-            Ok(sample) => sample,
+            Ok(mut sample) => {
+                sample.seq += seq_offset;
+                sample
+            }
             Err(feed_error) => {
                 if options.skip_bad_rows && feed_error.line().is_some() {
                     if options.warnings && skipped_count == 0 {
@@ -572,12 +725,20 @@ where
             Some(_) => crate::report::checks::before(&engine.monitor, &sample),
             None => None,
         };
-        let outcome = engine.push(&sample, |event| match events_out.as_mut() {
-            Some(out) => {
-                serde_json::to_writer(&mut *out, &event_json(event, t))?;
-                out.write_all(b"\n")
+        if let Some(log) = log_out.as_mut() {
+            log.write(&Record::Sample(sample))?;
+        }
+        let outcome = engine.push(&sample, |event| {
+            if let Some(log) = log_out.as_mut() {
+                log.write(&Record::Event(*event))?;
             }
-            None => Ok(()),
+            match events_out.as_mut() {
+                Some(out) => {
+                    serde_json::to_writer(&mut *out, &event_json(event, t))?;
+                    out.write_all(b"\n")
+                }
+                None => Ok(()),
+            }
         })?;
         if let Some(out) = readings_out.as_mut() {
             if sample.reference.is_none() {
@@ -594,8 +755,14 @@ where
         bar.finish_and_clear();
     }
     if rows == 0 && error.is_none() {
-        error = Some(FeedError::NoRows {
-            file: file.to_string(),
+        error = Some(if device_log {
+            FeedError::NoRecords {
+                file: file.to_string(),
+            }
+        } else {
+            FeedError::NoRows {
+                file: file.to_string(),
+            }
         });
     }
     if let Some(mut out) = events_out {
@@ -607,10 +774,36 @@ where
     if let Some(mut out) = checks_out {
         out.flush()?;
     }
+    if let Some(mut log) = log_out {
+        log.flush()?;
+    }
+    // The state after the last good row is saved even when a bad row stopped the run.
+    let snapshot_bytes = match &options.persist.save_snapshot {
+        Some(path) => Some(crate::snapshot_file::write(path, &engine.monitor)?),
+        None => None,
+    };
     let mut summary = engine.summary(file, options.precision, error.as_ref());
     if let Value::Object(map) = &mut summary {
         map.insert("rows_skipped".into(), json!(skipped_count));
         map.insert("skipped_rows".into(), json!(skipped));
+        map.insert(
+            "resumed_from".into(),
+            json!(options
+                .persist
+                .resume
+                .as_ref()
+                .map(|p| p.display().to_string())),
+        );
+        map.insert(
+            "snapshot".into(),
+            match (&options.persist.save_snapshot, snapshot_bytes) {
+                (Some(path), Some(bytes)) => {
+                    json!({"file": path.display().to_string(), "bytes": bytes})
+                }
+                _ => Value::Null,
+            },
+        );
+        finish(&rows_in, map);
     }
     if options.warnings {
         let order = &engine.time_order;

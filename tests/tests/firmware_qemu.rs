@@ -278,6 +278,7 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
         skip_bad_rows: false,
         progress: false,
         warnings: false,
+        persist: Default::default(),
     };
     let result = replay(&options).expect("host replay");
     assert!(

@@ -25,6 +25,7 @@ pub mod fleet;
 pub mod replay;
 pub mod report;
 pub mod simulate;
+pub mod snapshot;
 pub mod watch;
 
 /// The exit-code contract, shown at the end of `--help`.
@@ -248,6 +249,17 @@ pub fn human_summary(summary: &serde_json::Value, colour: bool) -> String {
     if skipped > 0 {
         text.push_str(&format!(
             "\n  {skipped} bad rows skipped (listed in the summary)"
+        ));
+    }
+    if let Some(spans) = get("damaged_spans").as_array().filter(|s| !s.is_empty()) {
+        let list: Vec<String> = spans
+            .iter()
+            .map(|s| format!("{}..{}", s["start"], s["end"]))
+            .collect();
+        text.push_str(&format!(
+            "\n  device log: {} damaged span(s) skipped, bytes {}",
+            spans.len(),
+            list.join(", ")
         ));
     }
     let order = get("time_order");

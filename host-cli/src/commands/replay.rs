@@ -9,7 +9,7 @@ use super::{
     exit_alarms, exit_bad_input, human_summary, reaches, resolve, ChatterArgs, ColumnArgs, FailOn,
     MonitorArgs,
 };
-use crate::replay::{self, ReplayOptions};
+use crate::replay::{self, InputFormat, PersistOptions, ReplayOptions};
 
 /// Arguments of `replay`.
 #[derive(Args, Debug)]
@@ -18,7 +18,9 @@ use crate::replay::{self, ReplayOptions};
     "  steadycal replay simulated-feeds/gas-cell.csv --events events.jsonl --summary summary.json\n",
     "  steadycal replay feed.csv --config monitor.toml --readings readings.csv --fail-on warn\n",
     "  cat feed.csv | steadycal replay - --summary - | jq .rung\n",
-    "  steadycal replay logger.csv --raw-column counts --ref-column cal_gas --skip-bad-rows\n\n",
+    "  steadycal replay logger.csv --raw-column counts --ref-column cal_gas --skip-bad-rows\n",
+    "  steadycal replay first.csv --save-snapshot state.bin && steadycal replay rest.csv --resume state.bin\n",
+    "  steadycal replay board.log --summary summary.json   (a device log, detected by content)\n\n",
     "Exit codes:\n",
     "  0  the run completed (and nothing reached the --fail-on level, when given)\n",
     "  1  the run completed and an event at or above the --fail-on level was raised\n",
@@ -53,6 +55,21 @@ pub struct ReplayArgs {
     /// Exit with code 1 when an event at or above this severity was raised.
     #[arg(long, value_enum, value_name = "LEVEL")]
     pub fail_on: Option<FailOn>,
+    /// Start from this snapshot (written by a board or by --save-snapshot) instead of a
+    /// fresh monitor; its configuration is used, and an explicit --config or range option
+    /// must agree with it. CSV rows are numbered on from the samples it counted.
+    #[arg(long, value_name = "SNAPSHOT")]
+    pub resume: Option<PathBuf>,
+    /// Write the monitor's final state as a snapshot here (`-` = stdout).
+    #[arg(long, value_name = "FILE")]
+    pub save_snapshot: Option<PathBuf>,
+    /// What the feed is [default: auto, by content: a device log starts with a 0x00 byte].
+    #[arg(long, value_enum, value_name = "FORMAT", default_value = "auto")]
+    pub input_format: InputFormat,
+    /// Also write the samples and events of this run as a device log here (the format a
+    /// board records), for example to turn a CSV feed into a log.
+    #[arg(long, value_name = "FILE")]
+    pub device_log_out: Option<PathBuf>,
     #[command(flatten)]
     pub monitor: MonitorArgs,
     #[command(flatten)]
@@ -75,6 +92,15 @@ impl ReplayArgs {
         options.skip_bad_rows = self.skip_bad_rows;
         options.progress = self.chatter.progress();
         options.warnings = !self.chatter.quiet;
+        options.persist = PersistOptions {
+            resume: self.resume.clone(),
+            save_snapshot: self.save_snapshot.clone(),
+            input_format: self.input_format,
+            device_log_out: self.device_log_out.clone(),
+            config_explicit: self.monitor.config.is_some()
+                || self.monitor.level_low.is_some()
+                || self.monitor.level_high.is_some(),
+        };
         Ok(options)
     }
 }

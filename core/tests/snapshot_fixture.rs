@@ -1,0 +1,74 @@
+//! The committed snapshot fixture `tests/data/snapshot-v1.bin` (format version 1) must keep
+//! decoding, and must re-encode to the same bytes: if a change to any state or
+//! configuration type changes the bytes, the format version must be bumped (see
+//! ARCHITECTURE.md, "Format versioning") and a new fixture committed beside the old one.
+//!
+//! Regenerate (only together with a version bump):
+//! `cargo test -p steadycal-core --test snapshot_fixture -- --ignored write_fixture`
+
+use std::path::PathBuf;
+
+use steadycal_core::monitor::{Monitor, MonitorConfig};
+use steadycal_core::sample::Sample;
+use steadycal_core::snapshot::{Snapshot, FORMAT_VERSION, MAX_SNAPSHOT_LEN};
+
+fn fixture_path() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/data/snapshot-v1.bin")
+}
+
+/// The monitor the fixture holds: defaults for [1, 100], 700 samples of an invented
+/// proportional-error line (checks and readings).
+fn fixture_monitor() -> Monitor<f32> {
+    let config = MonitorConfig::<f32>::default_for_range(1.0, 100.0);
+    let mut monitor: Monitor<f32> = Monitor::new(config).unwrap();
+    for i in 0..700u64 {
+        let reference = 1.0 + (i % 33) as f32 * 3.0;
+        let noise = 0.02 * reference * (((i * 7919) % 11) as f32 - 5.0) / 5.0;
+        let raw = 0.4 + 1.8 * reference + noise;
+        let sample = if i % 4 == 3 {
+            Sample::reading(i, i as f64, raw)
+        } else {
+            Sample::check(i, i as f64, raw, reference)
+        };
+        monitor.push(&sample);
+    }
+    monitor
+}
+
+#[test]
+fn version_1_fixture_still_decodes() {
+    let bytes = std::fs::read(fixture_path()).expect("committed fixture");
+    let snapshot = Snapshot::parse(&bytes).expect("header and CRC");
+    assert_eq!(snapshot.header().version, 1);
+    let monitor: Monitor<f32> = snapshot.monitor().expect("decodes as Monitor<f32>");
+    let counters = monitor.counters();
+    assert_eq!(counters.samples, 700);
+    assert_eq!(counters.checks + counters.rejected + counters.readings, 700);
+    // Same version: the bytes must be reproduced exactly.
+    if FORMAT_VERSION == 1 {
+        let mut again = [0u8; MAX_SNAPSHOT_LEN];
+        let len = monitor.snapshot(&mut again).unwrap();
+        assert_eq!(
+            &again[..len],
+            &bytes[..],
+            "re-encoding changed the bytes: bump FORMAT_VERSION"
+        );
+        let mut fresh = [0u8; MAX_SNAPSHOT_LEN];
+        let len = fixture_monitor().snapshot(&mut fresh).unwrap();
+        assert_eq!(
+            &fresh[..len],
+            &bytes[..],
+            "the generator no longer gives the fixture"
+        );
+    }
+}
+
+/// Rewrites the fixture. Run only together with a format version bump.
+#[test]
+#[ignore]
+fn write_fixture() {
+    let mut buffer = [0u8; MAX_SNAPSHOT_LEN];
+    let len = fixture_monitor().snapshot(&mut buffer).unwrap();
+    std::fs::write(fixture_path(), &buffer[..len]).unwrap();
+    eprintln!("wrote {} ({len} bytes)", fixture_path().display());
+}
