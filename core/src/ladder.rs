@@ -302,7 +302,8 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
                 continue;
             }
             let state = &mut self.rungs[rung.index()];
-            let level = Self::scaled_level(config, state.fit.predict(x));
+            let rung_prediction = state.fit.predict(x);
+            let level = Self::scaled_level(config, rung_prediction);
             if counting && comparable {
                 // Transformed residual against the a-priori prediction of this rung.
                 match (raw_transforms, rung.apply(level)) {
@@ -319,7 +320,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             let weight_level = if counting { level } else { raw_level };
             let weight = rung.weight(weight_level.max(config.level_floor));
             // A refused update (non-finite weight) leaves the rung as it was.
-            let _ = state.fit.update(x, raw, weight);
+            let _ = state.fit.update_predicted(x, raw, weight, rung_prediction);
         }
         self.checks = self.checks.saturating_add(1);
 
