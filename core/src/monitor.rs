@@ -630,8 +630,8 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         }
         let level = step.prediction - self.config.level_origin;
         if warmed_up {
-            self.spread.push(level, step.residual);
-            if let (Some(bin), Some(z)) = (self.spread.bin_of(level), step.standardized) {
+            let bin = self.spread.push_binned(level, step.residual);
+            if let (Some(bin), Some(z)) = (bin, step.standardized) {
                 self.mean_check.push(bin, z);
             }
         }

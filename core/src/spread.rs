@@ -302,8 +302,8 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         if position.is_nan() || position <= R::ZERO {
             return 0;
         }
-        // `as` saturates; position is finite and positive here.
-        let index = position.floor().to_f64() as usize;
+        // Truncation is the floor for a positive position, and it saturates.
+        let index = position.to_index();
         index.min(BINS - 1)
     }
 
@@ -316,6 +316,26 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         }
         let log_level = level.ln();
         let index = self.bin_of_log(log_level);
+        self.push_in(index, level, log_level, residual)
+    }
+
+    /// [`SpreadProfile::push`], returning [`SpreadProfile::bin_of`] the level (whether or not
+    /// the residual was accepted): one logarithm serves both.
+    pub fn push_binned(&mut self, level: R, residual: R) -> Option<usize> {
+        if !self.accepting || !is_positive_finite(level) {
+            return None;
+        }
+        let log_level = level.ln();
+        let index = self.bin_of_log(log_level);
+        if residual.is_finite() {
+            self.push_in(index, level, log_level, residual);
+        }
+        Some(index)
+    }
+
+    /// The update of [`SpreadProfile::push`] once the level is known to be usable.
+    #[inline]
+    fn push_in(&mut self, index: usize, level: R, log_level: R, residual: R) -> bool {
         let beta = self.config.forgetting;
 
         // Lazy forgetting: the new residual's stored weight grows as 1/β per push, which is
