@@ -129,55 +129,69 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     /// pads them); they meet zero parameters and are not otherwise read.
     #[inline]
     pub fn update(&mut self, x: &[R; P], y: R, weight: R) -> Result<R, FitError> {
+        if !Self::all_finite(x, y) {
+            return Err(FitError::NonFinite);
+        }
         let prediction = self.predict(x);
-        self.update_predicted(x, y, weight, prediction)
+        let inverse_beta = R::ONE / self.config.forgetting;
+        self.update_checked(x, y, weight, prediction, inverse_beta)
     }
 
-    /// [`RecursiveFit::update`] with the a-priori prediction `xᵀθ` already computed by
-    /// [`RecursiveFit::predict`] on the same state and `x` (saves computing it twice).
+    /// True when every regressor and the response are finite.
     #[inline]
-    pub(crate) fn update_predicted(
+    pub(crate) fn all_finite(x: &[R; P], y: R) -> bool {
+        // NaN-or-infinity probe: v·0 is 0 for every finite v and NaN otherwise, and a sum
+        // of zeros cannot overflow.
+        let mut probe = y * R::ZERO;
+        for value in x.iter() {
+            probe += *value * R::ZERO;
+        }
+        probe.is_finite()
+    }
+
+    /// [`RecursiveFit::update`] for a caller that has checked `x` and `y` with
+    /// [`RecursiveFit::all_finite`], computed the a-priori prediction `xᵀθ` with
+    /// [`RecursiveFit::predict`] on the same state and `x`, and `1/β` (so that several fits
+    /// fed the same check share that work).
+    #[inline]
+    pub(crate) fn update_checked(
         &mut self,
         x: &[R; P],
         y: R,
         weight: R,
         prediction: R,
+        inverse_beta: R,
     ) -> Result<R, FitError> {
-        // The loops run over the dimension in use; the common dimensions get their own
-        // fully unrolled copy (the arithmetic, and so every rounding, is the same in all).
-        // NaN-or-infinity probe: v·0 is 0 for every finite v and NaN otherwise, and a sum
-        // of zeros cannot overflow.
-        let mut probe = y * R::ZERO + weight * R::ZERO;
-        for value in x.iter() {
-            probe += *value * R::ZERO;
-        }
-        if !probe.is_finite() {
+        if !weight.is_finite() {
             return Err(FitError::NonFinite);
         }
         if !(weight > R::ZERO) {
             return Err(FitError::NonPositiveWeight);
         }
         let residual = y - prediction;
+        // The loops run over the dimension in use; the common dimensions are written out
+        // (the same operations in the same order, so the same bits).
         match self.dim() {
-            2 if P >= 2 => self.update_two(x, weight, residual),
-            3 if P >= 3 => self.update_three(x, weight, residual),
-            n => self.update_dim(n, x, weight, residual),
+            2 if P >= 2 => self.update_two(x, weight, residual, inverse_beta),
+            3 if P >= 3 => self.update_three(x, weight, residual, inverse_beta),
+            n => self.update_dim(n, x, weight, residual, inverse_beta),
         }
     }
 
-    /// The final checks and the commit shared by every dimension: forgetting with the
-    /// wind-up ceiling and the positivity floor, the weighted SSE, the rollback probe.
+    /// The weighted SSE after an update, or `None` when the update produced a non-finite
+    /// value (`probe` is a sum of the new values times zero).
     #[inline(always)]
-    fn finish(&mut self, residual: R, alpha: R, probe: R) -> Result<R, FitError> {
-        let beta = self.config.forgetting;
-        let sse = beta * (self.weighted_sse + residual * residual / alpha);
-        if !(probe + sse * R::ZERO).is_finite() {
-            return Err(FitError::NonFinite);
-        }
+    fn new_sse(&self, residual: R, alpha: R, probe: R) -> Option<R> {
+        let sse = self.config.forgetting * (self.weighted_sse + residual * residual / alpha);
+        (probe + sse * R::ZERO).is_finite().then_some(sse)
+    }
+
+    /// Counts an accepted update.
+    #[inline(always)]
+    fn commit(&mut self, sse: R) {
         self.weighted_sse = sse;
-        self.effective = beta * self.effective + R::ONE;
+        self.effective = self.config.forgetting * self.effective + R::ONE;
         self.updates = self.updates.saturating_add(1);
-        Ok(residual)
     }
 
     /// `value / β` clamped to `[floor, initial_variance]` (NaN goes to the floor).
@@ -199,7 +213,13 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     /// [`RecursiveFit::update_dim`] written out for two parameters (the same operations in
     /// the same order).
     #[inline(always)]
-    fn update_two(&mut self, x: &[R; P], weight: R, residual: R) -> Result<R, FitError> {
+    fn update_two(
+        &mut self,
+        x: &[R; P],
+        weight: R,
+        residual: R,
+        inverse_beta: R,
+    ) -> Result<R, FitError> {
         let beta = self.config.forgetting;
         let u01 = self.u[0][1];
         let f0 = x[0];
@@ -218,33 +238,29 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         let correction = residual / alpha;
         let theta0 = self.theta[0] + gain0 * correction;
         let theta1 = self.theta[1] + gain1 * correction;
-        let inverse_beta = R::ONE / beta;
-        let d0 = self.forget(d0, inverse_beta);
-        let d1 = self.forget(d1, inverse_beta);
         let probe = theta0 * R::ZERO + theta1 * R::ZERO + new_u01 * R::ZERO;
-        let before = (self.theta[0], self.theta[1], self.u[0][1], self.d[0], self.d[1]);
+        let Some(sse) = self.new_sse(residual, alpha, probe) else {
+            return Err(FitError::NonFinite);
+        };
+        self.d[0] = self.forget(d0, inverse_beta);
+        self.d[1] = self.forget(d1, inverse_beta);
         self.theta[0] = theta0;
         self.theta[1] = theta1;
         self.u[0][1] = new_u01;
-        self.d[0] = d0;
-        self.d[1] = d1;
-        let result = self.finish(residual, alpha, probe);
-        if result.is_err() {
-            (
-                self.theta[0],
-                self.theta[1],
-                self.u[0][1],
-                self.d[0],
-                self.d[1],
-            ) = before;
-        }
-        result
+        self.commit(sse);
+        Ok(residual)
     }
 
     /// [`RecursiveFit::update_dim`] written out for three parameters (the same operations
     /// in the same order).
     #[inline(always)]
-    fn update_three(&mut self, x: &[R; P], weight: R, residual: R) -> Result<R, FitError> {
+    fn update_three(
+        &mut self,
+        x: &[R; P],
+        weight: R,
+        residual: R,
+        inverse_beta: R,
+    ) -> Result<R, FitError> {
         let beta = self.config.forgetting;
         let (u01, u02, u12) = (self.u[0][1], self.u[0][2], self.u[1][2]);
         let f0 = x[0];
@@ -277,36 +293,38 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         let theta0 = self.theta[0] + gain0 * correction;
         let theta1 = self.theta[1] + gain1 * correction;
         let theta2 = self.theta[2] + gain2 * correction;
-        let inverse_beta = R::ONE / beta;
-        let d0 = self.forget(d0, inverse_beta);
-        let d1 = self.forget(d1, inverse_beta);
-        let d2 = self.forget(d2, inverse_beta);
         let probe = theta0 * R::ZERO
             + theta1 * R::ZERO
             + theta2 * R::ZERO
             + new_u01 * R::ZERO
             + new_u02 * R::ZERO
             + new_u12 * R::ZERO;
-        let before = (self.theta, self.u, self.d);
+        let Some(sse) = self.new_sse(residual, alpha, probe) else {
+            return Err(FitError::NonFinite);
+        };
+        self.d[0] = self.forget(d0, inverse_beta);
+        self.d[1] = self.forget(d1, inverse_beta);
+        self.d[2] = self.forget(d2, inverse_beta);
         self.theta[0] = theta0;
         self.theta[1] = theta1;
         self.theta[2] = theta2;
         self.u[0][1] = new_u01;
         self.u[0][2] = new_u02;
         self.u[1][2] = new_u12;
-        self.d[0] = d0;
-        self.d[1] = d1;
-        self.d[2] = d2;
-        let result = self.finish(residual, alpha, probe);
-        if result.is_err() {
-            (self.theta, self.u, self.d) = before;
-        }
-        result
+        self.commit(sse);
+        Ok(residual)
     }
 
     /// Bierman's update for any dimension `n ≤ P` (loops over the parameters in use).
     #[inline(never)]
-    fn update_dim(&mut self, n: usize, x: &[R; P], weight: R, residual: R) -> Result<R, FitError> {
+    fn update_dim(
+        &mut self,
+        n: usize,
+        x: &[R; P],
+        weight: R,
+        residual: R,
+        inverse_beta: R,
+    ) -> Result<R, FitError> {
         let n = n.min(P);
         let beta = self.config.forgetting;
 
@@ -347,7 +365,6 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
             probe += theta[j] * R::ZERO;
         }
         // Forgetting, with the wind-up ceiling and the positivity floor (parameters in use).
-        let inverse_beta = R::ONE / beta;
         for value in d.iter_mut().take(n) {
             *value = self.forget(*value, inverse_beta);
         }
@@ -356,15 +373,14 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
                 probe += u[i][j] * R::ZERO;
             }
         }
-        let before = (self.theta, self.u, self.d);
+        let Some(sse) = self.new_sse(residual, alpha, probe) else {
+            return Err(FitError::NonFinite);
+        };
         self.theta = theta;
         self.u = u;
         self.d = d;
-        let result = self.finish(residual, alpha, probe);
-        if result.is_err() {
-            (self.theta, self.u, self.d) = before;
-        }
-        result
+        self.commit(sse);
+        Ok(residual)
     }
 
     /// θ (entries past `dim` are zero).

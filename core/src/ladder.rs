@@ -110,6 +110,10 @@ struct RungPass<'a, R, const P: usize> {
     raw_transforms: Option<([R; RUNG_COUNT], R)>,
     comparable: bool,
     transformed: &'a mut [R; RUNG_COUNT],
+    /// `x` and `raw` are finite (checked once for every rung's fit).
+    fit_inputs_finite: bool,
+    /// `1/β`, shared by every rung's fit.
+    inverse_beta: R,
 }
 
 /// Shadow fits on every rung, and the choice between them.
@@ -318,6 +322,8 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             raw_transforms,
             comparable,
             transformed: &mut transformed,
+            fit_inputs_finite: RecursiveFit::all_finite(x, raw),
+            inverse_beta: R::ONE / config.fit.forgetting,
         };
         self.step_rung(config, Rung::Identity, &mut pass);
         if !below_origin {
@@ -376,9 +382,15 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         let weight_level = if pass.counting { level } else { pass.raw_level };
         let weight = rung.weight(weight_level.max(config.level_floor));
         // A refused update (non-finite weight) leaves the rung as it was.
-        let _ = state
-            .fit
-            .update_predicted(pass.x, pass.raw, weight, rung_prediction);
+        if pass.fit_inputs_finite {
+            let _ = state.fit.update_checked(
+                pass.x,
+                pass.raw,
+                weight,
+                rung_prediction,
+                pass.inverse_beta,
+            );
+        }
     }
 
     fn decide(&mut self, config: &LadderConfig<R>) -> Option<Switch<R>> {
