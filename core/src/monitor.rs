@@ -121,6 +121,17 @@ impl ConfigError {
     }
 }
 
+/// `count` is a multiple of `period` (a mask for a power of two, which the defaults are:
+/// a 64-bit remainder is a library call on a 32-bit board).
+#[inline]
+fn every(count: u64, period: u32) -> bool {
+    if period.is_power_of_two() {
+        count & (period as u64 - 1) == 0
+    } else {
+        count.is_multiple_of(period as u64)
+    }
+}
+
 fn positive<R: Real>(value: R) -> bool {
     value.is_finite() && value > R::ZERO
 }
@@ -667,12 +678,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 }
             }
         }
-        if warmed_up
-            && self
-                .counters
-                .checks
-                .is_multiple_of(self.config.spread_every as u64)
-        {
+        if warmed_up && every(self.counters.checks, self.config.spread_every) {
             self.evaluate_spread(sample.seq, outcome);
         }
         if warmed_up {
@@ -770,11 +776,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             }
             return;
         }
-        if !self
-            .counters
-            .checks
-            .is_multiple_of(drift_config.every as u64)
-        {
+        if !every(self.counters.checks, drift_config.every) {
             return;
         }
         let (theta, covariance, variance) =
