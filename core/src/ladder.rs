@@ -380,7 +380,14 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         // the observed level is the safe start (iteratively reweighted least squares starts
         // the same way).
         let weight_level = if pass.counting { level } else { pass.raw_level };
-        let weight = rung.weight(weight_level.max(config.level_floor));
+        // The floor is positive and finite (validated); a NaN level gets the floor, as
+        // with `Real::max`.
+        let floor = config.level_floor;
+        let weight = rung.weight(if weight_level > floor {
+            weight_level
+        } else {
+            floor
+        });
         // A refused update (non-finite weight) leaves the rung as it was.
         if pass.fit_inputs_finite {
             let _ = state.fit.update_checked(

@@ -369,22 +369,20 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         let square_comoment = beta * k.square_comoment + square_delta * square_after;
         let cross_comoment = beta * k.cross_comoment + level_delta * square_after;
 
-        let all_finite = [
-            weight,
-            mean,
-            comoment,
-            mean_log_level,
-            k_weight,
-            k_weight_squares,
-            mean_level,
-            mean_square,
-            level_comoment,
-            square_comoment,
-            cross_comoment,
-        ]
-        .iter()
-        .all(|value| value.is_finite());
-        if !all_finite {
+        // All finite when v·0 sums to zero (a non-finite v makes it NaN); no loop.
+        let zero = R::ZERO;
+        let probe = weight * zero
+            + mean * zero
+            + comoment * zero
+            + mean_log_level * zero
+            + k_weight * zero
+            + k_weight_squares * zero
+            + mean_level * zero
+            + mean_square * zero
+            + level_comoment * zero
+            + square_comoment * zero
+            + cross_comoment * zero;
+        if !probe.is_finite() {
             return false;
         }
 

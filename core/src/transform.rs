@@ -166,7 +166,10 @@ impl Rung {
             two * (R::ONE - R::ONE / root),
             R::ONE - R::ONE / u,
         ];
-        if values.iter().all(|v| v.is_finite()) {
+        // All finite when v·0 sums to zero (a non-finite v makes it NaN); no loop.
+        let [a, b, c, d, e] = values;
+        let probe = a * R::ZERO + b * R::ZERO + c * R::ZERO + d * R::ZERO + e * R::ZERO;
+        if probe.is_finite() {
             Some((values, ln_u))
         } else {
             None
