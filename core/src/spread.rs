@@ -48,7 +48,7 @@
 //!   stays finite.
 //! - A push costs one `ln` (the bin index and the bin's log-level mean share it), two
 //!   multiplies per bin for the forgetting (none when β = 1) and a few flops; no other
-//!   transcendental. [`SpreadProfile::exponent`] costs `O(BINS)` logarithms,
+//!   transcendental. [`SpreadProfile::exponent`] costs one logarithm per usable bin,
 //!   [`SpreadProfile::bin`] one `exp`.
 //! - A profile built by [`SpreadProfile::new`] from an invalid configuration (see
 //!   [`SpreadConfig::validate`]) accepts nothing; [`SpreadProfile::new_checked`] reports it.
@@ -446,13 +446,20 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
     ///
     /// See the module documentation for the weights and the choice of standard error.
     pub fn exponent(&self) -> Option<SpreadExponent<R>> {
+        // The usable bins' points, computed once (one logarithm each) for the three passes.
+        let mut points = [(R::ZERO, R::ZERO, R::ZERO); BINS];
+        let mut used = 0usize;
+        for point in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
+            points[used] = point;
+            used += 1;
+        }
+        let points = &points[..used];
         // First pass: weighted means.
-        let mut bins_used: u8 = 0;
+        let bins_used = u8::try_from(used).unwrap_or(u8::MAX);
         let mut weight_sum = R::ZERO;
         let mut mean_x = R::ZERO;
         let mut mean_y = R::ZERO;
-        for (x, y, w) in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
-            bins_used = bins_used.saturating_add(1);
+        for &(x, y, w) in points {
             weight_sum += w;
             mean_x += w * (x - mean_x) / weight_sum;
             mean_y += w * (y - mean_y) / weight_sum;
@@ -463,7 +470,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         // Second pass: centred sums.
         let mut sxx = R::ZERO;
         let mut sxy = R::ZERO;
-        for (x, y, w) in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
+        for &(x, y, w) in points {
             sxx += w * (x - mean_x).squared();
             sxy += w * (x - mean_x) * (y - mean_y);
         }
@@ -473,7 +480,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         let k = sxy / sxx;
         // Third pass: weighted residual sum of squares.
         let mut rss = R::ZERO;
-        for (x, y, w) in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
+        for &(x, y, w) in points {
             rss += w * (y - mean_y - k * (x - mean_x)).squared();
         }
         let model_variance = R::ONE / (R::TWO * sxx);
