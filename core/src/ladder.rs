@@ -107,7 +107,8 @@ struct RungPass<'a, R, const P: usize> {
     raw: R,
     raw_level: R,
     counting: bool,
-    raw_transforms: Option<([R; RUNG_COUNT], R)>,
+    /// `g_λ(u(raw))` on every rung (read only while `comparable`, which needs them).
+    raw_transformed: [R; RUNG_COUNT],
     comparable: bool,
     transformed: &'a mut [R; RUNG_COUNT],
     /// `x` and `raw` are finite (checked once for every rung's fit).
@@ -319,7 +320,10 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             raw,
             raw_level,
             counting,
-            raw_transforms,
+            raw_transformed: match raw_transforms {
+                Some((values, _)) => values,
+                None => [R::ZERO; RUNG_COUNT],
+            },
             comparable,
             transformed: &mut transformed,
             fit_inputs_finite: RecursiveFit::all_finite(x, raw),
@@ -368,11 +372,11 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         let level = Self::scaled_level(config, rung_prediction);
         if pass.counting && pass.comparable {
             // Transformed residual against the a-priori prediction of this rung.
-            match (pass.raw_transforms, rung.apply(level)) {
-                (Some((g_raw, _)), Some(g_fit)) => {
-                    pass.transformed[rung.index()] = g_raw[rung.index()] - g_fit
+            match rung.apply(level) {
+                Some(g_fit) => {
+                    pass.transformed[rung.index()] = pass.raw_transformed[rung.index()] - g_fit
                 }
-                _ => pass.comparable = false,
+                None => pass.comparable = false,
             }
         }
         // During warm-up a rung's own prediction can be far off (even negative after two
