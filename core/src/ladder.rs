@@ -107,8 +107,7 @@ struct RungPass<'a, R, const P: usize> {
     raw: R,
     raw_level: R,
     counting: bool,
-    /// `g_λ(u(raw))` on every rung (read only while `comparable`, which needs them).
-    raw_transformed: [R; RUNG_COUNT],
+    raw_transforms: Option<([R; RUNG_COUNT], R)>,
     comparable: bool,
     transformed: &'a mut [R; RUNG_COUNT],
     /// `x` and `raw` are finite (checked once for every rung's fit).
@@ -320,10 +319,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             raw,
             raw_level,
             counting,
-            raw_transformed: match raw_transforms {
-                Some((values, _)) => values,
-                None => [R::ZERO; RUNG_COUNT],
-            },
+            raw_transforms,
             comparable,
             transformed: &mut transformed,
             fit_inputs_finite: RecursiveFit::all_finite(x, raw),
@@ -372,11 +368,11 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         let level = Self::scaled_level(config, rung_prediction);
         if pass.counting && pass.comparable {
             // Transformed residual against the a-priori prediction of this rung.
-            match rung.apply(level) {
-                Some(g_fit) => {
-                    pass.transformed[rung.index()] = pass.raw_transformed[rung.index()] - g_fit
+            match (pass.raw_transforms, rung.apply(level)) {
+                (Some((g_raw, _)), Some(g_fit)) => {
+                    pass.transformed[rung.index()] = g_raw[rung.index()] - g_fit
                 }
-                None => pass.comparable = false,
+                _ => pass.comparable = false,
             }
         }
         // During warm-up a rung's own prediction can be far off (even negative after two
