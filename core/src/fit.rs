@@ -103,11 +103,19 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     /// xᵀθ for a regressor vector (entries past `dim` meet zero parameters).
     #[inline]
     pub fn predict(&self, x: &[R; P]) -> R {
-        let mut sum = R::ZERO;
-        for (xi, ti) in x.iter().zip(self.theta.iter()) {
-            sum += *xi * *ti;
+        let t = &self.theta;
+        // Written out for the common dimensions (the same sum, in the same order).
+        match self.dim() {
+            2 if P >= 2 => x[0] * t[0] + x[1] * t[1],
+            3 if P >= 3 => x[0] * t[0] + x[1] * t[1] + x[2] * t[2],
+            _ => {
+                let mut sum = R::ZERO;
+                for (xi, ti) in x.iter().zip(t.iter()) {
+                    sum += *xi * *ti;
+                }
+                sum
+            }
         }
-        sum
     }
 
     fn floor() -> R {
@@ -118,29 +126,212 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     /// priori residual `y − xᵀθ`. On error nothing changes.
     ///
     /// Regressor entries past `dim` must be zero (as [`crate::basis::Basis::regressors`]
-    /// pads them); the loops run over the full capacity `P` so the compiler can unroll them,
-    /// and the zero padding keeps the unused parameters untouched.
+    /// pads them); they meet zero parameters and are not otherwise read.
+    #[inline]
     pub fn update(&mut self, x: &[R; P], y: R, weight: R) -> Result<R, FitError> {
-        let n = self.dim();
+        if !Self::all_finite(x, y) {
+            return Err(FitError::NonFinite);
+        }
+        let prediction = self.predict(x);
+        let inverse_beta = R::ONE / self.config.forgetting;
+        self.update_checked(x, y, weight, prediction, inverse_beta)
+    }
+
+    /// True when every regressor and the response are finite.
+    #[inline]
+    pub(crate) fn all_finite(x: &[R; P], y: R) -> bool {
         // NaN-or-infinity probe: v·0 is 0 for every finite v and NaN otherwise, and a sum
         // of zeros cannot overflow.
-        let mut probe = y * R::ZERO + weight * R::ZERO;
+        let mut probe = y * R::ZERO;
         for value in x.iter() {
             probe += *value * R::ZERO;
         }
-        if !probe.is_finite() {
+        probe.is_finite()
+    }
+
+    /// [`RecursiveFit::update`] for a caller that has checked `x` and `y` with
+    /// [`RecursiveFit::all_finite`], computed the a-priori prediction `xᵀθ` with
+    /// [`RecursiveFit::predict`] on the same state and `x`, and `1/β` (so that several fits
+    /// fed the same check share that work).
+    #[inline]
+    pub(crate) fn update_checked(
+        &mut self,
+        x: &[R; P],
+        y: R,
+        weight: R,
+        prediction: R,
+        inverse_beta: R,
+    ) -> Result<R, FitError> {
+        if !weight.is_finite() {
             return Err(FitError::NonFinite);
         }
         if !(weight > R::ZERO) {
             return Err(FitError::NonPositiveWeight);
         }
+        let residual = y - prediction;
+        // The loops run over the dimension in use; the common dimensions are written out
+        // (the same operations in the same order, so the same bits).
+        match self.dim() {
+            2 if P >= 2 => self.update_two(x, weight, residual, inverse_beta),
+            3 if P >= 3 => self.update_three(x, weight, residual, inverse_beta),
+            n => self.update_dim(n, x, weight, residual, inverse_beta),
+        }
+    }
+
+    /// The weighted SSE after an update, or `None` when the update produced a non-finite
+    /// value (`probe` is a sum of the new values times zero).
+    #[inline(always)]
+    fn new_sse(&self, residual: R, alpha: R, probe: R) -> Option<R> {
+        let sse = self.config.forgetting * (self.weighted_sse + residual * residual / alpha);
+        (probe + sse * R::ZERO).is_finite().then_some(sse)
+    }
+
+    /// Counts an accepted update.
+    #[inline(always)]
+    fn commit(&mut self, sse: R) {
+        self.weighted_sse = sse;
+        self.effective = self.config.forgetting * self.effective + R::ONE;
+        self.updates = self.updates.saturating_add(1);
+    }
+
+    /// `value / β` clamped to `[floor, initial_variance]` (NaN goes to the floor).
+    #[inline(always)]
+    fn forget(&self, value: R, inverse_beta: R) -> R {
+        let value = value * inverse_beta;
+        let ceiling = self.config.initial_variance;
+        if value >= Self::floor() {
+            if value <= ceiling {
+                value
+            } else {
+                ceiling
+            }
+        } else {
+            Self::floor()
+        }
+    }
+
+    /// [`RecursiveFit::update_dim`] written out for two parameters (the same operations in
+    /// the same order).
+    #[inline(always)]
+    fn update_two(
+        &mut self,
+        x: &[R; P],
+        weight: R,
+        residual: R,
+        inverse_beta: R,
+    ) -> Result<R, FitError> {
         let beta = self.config.forgetting;
-        let residual = y - self.predict(x);
+        let u01 = self.u[0][1];
+        let f0 = x[0];
+        let f1 = x[1] + u01 * x[0];
+        let g0 = self.d[0] * f0;
+        let g1 = self.d[1] * f1;
+        let alpha0 = beta / weight;
+        let alpha1 = alpha0 + f0 * g0;
+        let d0 = self.d[0] * (alpha0 / alpha1);
+        let alpha = alpha1 + f1 * g1;
+        let p1 = -f1 / alpha1;
+        let d1 = self.d[1] * (alpha1 / alpha);
+        let new_u01 = u01 + g0 * p1;
+        let gain0 = g0 + u01 * g1;
+        let gain1 = g1;
+        let correction = residual / alpha;
+        let theta0 = self.theta[0] + gain0 * correction;
+        let theta1 = self.theta[1] + gain1 * correction;
+        let probe = theta0 * R::ZERO + theta1 * R::ZERO + new_u01 * R::ZERO;
+        let Some(sse) = self.new_sse(residual, alpha, probe) else {
+            return Err(FitError::NonFinite);
+        };
+        self.d[0] = self.forget(d0, inverse_beta);
+        self.d[1] = self.forget(d1, inverse_beta);
+        self.theta[0] = theta0;
+        self.theta[1] = theta1;
+        self.u[0][1] = new_u01;
+        self.commit(sse);
+        Ok(residual)
+    }
+
+    /// [`RecursiveFit::update_dim`] written out for three parameters (the same operations
+    /// in the same order).
+    #[inline(always)]
+    fn update_three(
+        &mut self,
+        x: &[R; P],
+        weight: R,
+        residual: R,
+        inverse_beta: R,
+    ) -> Result<R, FitError> {
+        let beta = self.config.forgetting;
+        let (u01, u02, u12) = (self.u[0][1], self.u[0][2], self.u[1][2]);
+        let f0 = x[0];
+        let f1 = x[1] + u01 * x[0];
+        let f2 = x[2] + u02 * x[0] + u12 * x[1];
+        let g0 = self.d[0] * f0;
+        let g1 = self.d[1] * f1;
+        let g2 = self.d[2] * f2;
+        let alpha0 = beta / weight;
+        // j = 0
+        let alpha1 = alpha0 + f0 * g0;
+        let d0 = self.d[0] * (alpha0 / alpha1);
+        // j = 1
+        let alpha2 = alpha1 + f1 * g1;
+        let p1 = -f1 / alpha1;
+        let d1 = self.d[1] * (alpha1 / alpha2);
+        let new_u01 = u01 + g0 * p1;
+        let gain0 = g0 + u01 * g1;
+        let gain1 = g1;
+        // j = 2
+        let alpha = alpha2 + f2 * g2;
+        let p2 = -f2 / alpha2;
+        let d2 = self.d[2] * (alpha2 / alpha);
+        let new_u02 = u02 + gain0 * p2;
+        let gain0 = gain0 + u02 * g2;
+        let new_u12 = u12 + gain1 * p2;
+        let gain1 = gain1 + u12 * g2;
+        let gain2 = g2;
+        let correction = residual / alpha;
+        let theta0 = self.theta[0] + gain0 * correction;
+        let theta1 = self.theta[1] + gain1 * correction;
+        let theta2 = self.theta[2] + gain2 * correction;
+        let probe = theta0 * R::ZERO
+            + theta1 * R::ZERO
+            + theta2 * R::ZERO
+            + new_u01 * R::ZERO
+            + new_u02 * R::ZERO
+            + new_u12 * R::ZERO;
+        let Some(sse) = self.new_sse(residual, alpha, probe) else {
+            return Err(FitError::NonFinite);
+        };
+        self.d[0] = self.forget(d0, inverse_beta);
+        self.d[1] = self.forget(d1, inverse_beta);
+        self.d[2] = self.forget(d2, inverse_beta);
+        self.theta[0] = theta0;
+        self.theta[1] = theta1;
+        self.theta[2] = theta2;
+        self.u[0][1] = new_u01;
+        self.u[0][2] = new_u02;
+        self.u[1][2] = new_u12;
+        self.commit(sse);
+        Ok(residual)
+    }
+
+    /// Bierman's update for any dimension `n ≤ P` (loops over the parameters in use).
+    #[inline(never)]
+    fn update_dim(
+        &mut self,
+        n: usize,
+        x: &[R; P],
+        weight: R,
+        residual: R,
+        inverse_beta: R,
+    ) -> Result<R, FitError> {
+        let n = n.min(P);
+        let beta = self.config.forgetting;
 
         // f = Uᵀx, g = D f.
         let mut f = [R::ZERO; P];
         let mut g = [R::ZERO; P];
-        for j in 0..P {
+        for j in 0..n {
             let mut value = x[j];
             for i in 0..j {
                 value += self.u[i][j] * x[i];
@@ -154,7 +345,7 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         let mut d = self.d;
         let mut gain = [R::ZERO; P];
         let mut alpha = beta / weight;
-        for j in 0..P {
+        for j in 0..n {
             let alpha_previous = alpha;
             alpha += f[j] * g[j];
             let p = -f[j] / alpha_previous;
@@ -169,32 +360,26 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         let correction = residual / alpha;
         let mut theta = self.theta;
         let mut probe = R::ZERO;
-        for j in 0..P {
+        for j in 0..n {
             theta[j] += gain[j] * correction;
             probe += theta[j] * R::ZERO;
         }
         // Forgetting, with the wind-up ceiling and the positivity floor (parameters in use).
-        let ceiling = self.config.initial_variance;
-        let floor = Self::floor();
-        let inverse_beta = R::ONE / beta;
         for value in d.iter_mut().take(n) {
-            *value = (*value * inverse_beta).clamp_to(floor, ceiling);
+            *value = self.forget(*value, inverse_beta);
         }
-        let sse = beta * (self.weighted_sse + residual * residual / alpha);
-        for row in u.iter() {
-            for value in row.iter() {
-                probe += *value * R::ZERO;
+        for j in 1..n {
+            for i in 0..j {
+                probe += u[i][j] * R::ZERO;
             }
         }
-        if !(probe + sse * R::ZERO).is_finite() {
+        let Some(sse) = self.new_sse(residual, alpha, probe) else {
             return Err(FitError::NonFinite);
-        }
+        };
         self.theta = theta;
         self.u = u;
         self.d = d;
-        self.weighted_sse = sse;
-        self.effective = beta * self.effective + R::ONE;
-        self.updates = self.updates.saturating_add(1);
+        self.commit(sse);
         Ok(residual)
     }
 
@@ -249,8 +434,25 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     /// xᵀ P x, computed from `f = Uᵀx` as `Σ D_j f_j²`.
     #[inline]
     pub fn leverage(&self, x: &[R; P]) -> R {
+        let (u, d) = (&self.u, &self.d);
+        // Written out for the common dimensions (the same sums, in the same order).
+        match self.dim() {
+            2 if P >= 2 => {
+                let f1 = x[1] + u[0][1] * x[0];
+                d[0] * x[0] * x[0] + d[1] * f1 * f1
+            }
+            3 if P >= 3 => {
+                let f1 = x[1] + u[0][1] * x[0];
+                let f2 = x[2] + u[0][2] * x[0] + u[1][2] * x[1];
+                d[0] * x[0] * x[0] + d[1] * f1 * f1 + d[2] * f2 * f2
+            }
+            n => self.leverage_dim(n, x),
+        }
+    }
+
+    fn leverage_dim(&self, n: usize, x: &[R; P]) -> R {
         let mut sum = R::ZERO;
-        for j in 0..P {
+        for j in 0..n.min(P) {
             let mut f = x[j];
             for i in 0..j {
                 f += self.u[i][j] * x[i];

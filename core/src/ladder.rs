@@ -101,6 +101,21 @@ pub struct Assessment<R> {
     pub standardized: Option<R>,
 }
 
+/// What every rung's part of one check reads, and the comparison it builds.
+struct RungPass<'a, R, const P: usize> {
+    x: &'a [R; P],
+    raw: R,
+    raw_level: R,
+    counting: bool,
+    raw_transforms: Option<([R; RUNG_COUNT], R)>,
+    comparable: bool,
+    transformed: &'a mut [R; RUNG_COUNT],
+    /// `x` and `raw` are finite (checked once for every rung's fit).
+    fit_inputs_finite: bool,
+    /// `1/β`, shared by every rung's fit.
+    inverse_beta: R,
+}
+
 /// Shadow fits on every rung, and the choice between them.
 #[derive(Clone, Debug, Serialize, Deserialize)]
 #[serde(bound = "R: Real")]
@@ -307,32 +322,29 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         // cannot enter the likelihood comparison.
         let raw_transforms = Rung::apply_every(raw_level);
         let below_origin = raw_transforms.is_none();
-        let mut comparable = !below_origin;
+        let comparable = !below_origin;
         let mut transformed = [R::ZERO; RUNG_COUNT];
-        for rung in Rung::ALL {
-            if rung.needs_positive() && below_origin {
-                continue;
-            }
-            let state = &mut self.rungs[rung.index()];
-            let level = Self::scaled_level(config, state.fit.predict(x));
-            if counting && comparable {
-                // Transformed residual against the a-priori prediction of this rung.
-                match (raw_transforms, rung.apply(level)) {
-                    (Some((g_raw, _)), Some(g_fit)) => {
-                        transformed[rung.index()] = g_raw[rung.index()] - g_fit
-                    }
-                    _ => comparable = false,
-                }
-            }
-            // During warm-up a rung's own prediction can be far off (even negative after
-            // two checks), and a weight taken there would dominate the fit for thousands of
-            // checks; the observed level is the safe start (iteratively reweighted least
-            // squares starts the same way).
-            let weight_level = if counting { level } else { raw_level };
-            let weight = rung.weight(weight_level.max(config.level_floor));
-            // A refused update (non-finite weight) leaves the rung as it was.
-            let _ = state.fit.update(x, raw, weight);
+        // One call per rung with the rung a constant, so each call compiles to that rung's
+        // own transform and weight (no dispatch, no loop).
+        let mut pass = RungPass {
+            x,
+            raw,
+            raw_level,
+            counting,
+            raw_transforms,
+            comparable,
+            transformed: &mut transformed,
+            fit_inputs_finite: RecursiveFit::all_finite(x, raw),
+            inverse_beta: R::ONE / config.fit.forgetting,
+        };
+        self.step_rung(config, Rung::Identity, &mut pass);
+        if !below_origin {
+            self.step_rung(config, Rung::Sqrt, &mut pass);
+            self.step_rung(config, Rung::Log, &mut pass);
+            self.step_rung(config, Rung::InvSqrt, &mut pass);
+            self.step_rung(config, Rung::Inverse, &mut pass);
         }
+        let comparable = pass.comparable;
         self.checks = self.checks.saturating_add(1);
 
         let mut switch = None;
@@ -356,6 +368,47 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             standardized,
             below_origin,
             switch,
+        }
+    }
+
+    /// One rung's part of a check: its transformed residual (while the sample is still
+    /// comparable on every rung) and its fit update.
+    #[inline(always)]
+    fn step_rung(&mut self, config: &LadderConfig<R>, rung: Rung, pass: &mut RungPass<'_, R, P>) {
+        let state = &mut self.rungs[rung.index()];
+        let rung_prediction = state.fit.predict(pass.x);
+        let level = Self::scaled_level(config, rung_prediction);
+        if pass.counting && pass.comparable {
+            // Transformed residual against the a-priori prediction of this rung.
+            match (pass.raw_transforms, rung.apply(level)) {
+                (Some((g_raw, _)), Some(g_fit)) => {
+                    pass.transformed[rung.index()] = g_raw[rung.index()] - g_fit
+                }
+                _ => pass.comparable = false,
+            }
+        }
+        // During warm-up a rung's own prediction can be far off (even negative after two
+        // checks), and a weight taken there would dominate the fit for thousands of checks;
+        // the observed level is the safe start (iteratively reweighted least squares starts
+        // the same way).
+        let weight_level = if pass.counting { level } else { pass.raw_level };
+        // The floor is positive and finite (validated); a NaN level gets the floor, as
+        // with `Real::max`.
+        let floor = config.level_floor;
+        let weight = rung.weight(if weight_level > floor {
+            weight_level
+        } else {
+            floor
+        });
+        // A refused update (non-finite weight) leaves the rung as it was.
+        if pass.fit_inputs_finite {
+            let _ = state.fit.update_checked(
+                pass.x,
+                pass.raw,
+                weight,
+                rung_prediction,
+                pass.inverse_beta,
+            );
         }
     }
 

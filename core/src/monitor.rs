@@ -121,6 +121,17 @@ impl ConfigError {
     }
 }
 
+/// `count` is a multiple of `period` (a mask for a power of two, which the defaults are:
+/// a 64-bit remainder is a library call on a 32-bit board).
+#[inline]
+fn every(count: u64, period: u32) -> bool {
+    if period.is_power_of_two() {
+        count & (period as u64 - 1) == 0
+    } else {
+        count.is_multiple_of(period as u64)
+    }
+}
+
 fn positive<R: Real>(value: R) -> bool {
     value.is_finite() && value > R::ZERO
 }
@@ -651,8 +662,8 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         }
         let level = step.prediction - self.config.level_origin;
         if warmed_up {
-            self.spread.push(level, step.residual);
-            if let (Some(bin), Some(z)) = (self.spread.bin_of(level), step.standardized) {
+            let bin = self.spread.push_binned(level, step.residual);
+            if let (Some(bin), Some(z)) = (bin, step.standardized) {
                 self.mean_check.push(bin, z);
             }
         }
@@ -688,12 +699,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 }
             }
         }
-        if warmed_up
-            && self
-                .counters
-                .checks
-                .is_multiple_of(self.config.spread_every as u64)
-        {
+        if warmed_up && every(self.counters.checks, self.config.spread_every) {
             self.evaluate_spread(sample.seq, outcome);
         }
         if warmed_up {
@@ -791,11 +797,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             }
             return;
         }
-        if !self
-            .counters
-            .checks
-            .is_multiple_of(drift_config.every as u64)
-        {
+        if !every(self.counters.checks, drift_config.every) {
             return;
         }
         let (theta, covariance, variance) =

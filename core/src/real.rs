@@ -102,6 +102,9 @@ pub trait Real:
     fn is_finite(self) -> bool;
     /// True for NaN.
     fn is_nan(self) -> bool;
+    /// Truncation toward zero to an index, saturating at both ends (NaN gives 0), without
+    /// a detour through `f64`.
+    fn to_index(self) -> usize;
 
     /// The larger of two values; a NaN argument loses to a number.
     #[inline]
@@ -197,6 +200,10 @@ impl Real for f64 {
     fn is_nan(self) -> bool {
         f64::is_nan(self)
     }
+    #[inline]
+    fn to_index(self) -> usize {
+        self as usize
+    }
 }
 
 impl Real for f32 {
@@ -279,6 +286,10 @@ impl Real for f32 {
     #[inline]
     fn is_nan(self) -> bool {
         f32::is_nan(self)
+    }
+    #[inline]
+    fn to_index(self) -> usize {
+        self as usize
     }
 }
 

@@ -48,7 +48,7 @@
 //!   stays finite.
 //! - A push costs one `ln` (the bin index and the bin's log-level mean share it), two
 //!   multiplies per bin for the forgetting (none when β = 1) and a few flops; no other
-//!   transcendental. [`SpreadProfile::exponent`] costs `O(BINS)` logarithms,
+//!   transcendental. [`SpreadProfile::exponent`] costs one logarithm per usable bin,
 //!   [`SpreadProfile::bin`] one `exp`.
 //! - A profile built by [`SpreadProfile::new`] from an invalid configuration (see
 //!   [`SpreadConfig::validate`]) accepts nothing; [`SpreadProfile::new_checked`] reports it.
@@ -302,8 +302,8 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         if position.is_nan() || position <= R::ZERO {
             return 0;
         }
-        // `as` saturates; position is finite and positive here.
-        let index = position.floor().to_f64() as usize;
+        // Truncation is the floor for a positive position, and it saturates.
+        let index = position.to_index();
         index.min(BINS - 1)
     }
 
@@ -316,6 +316,26 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         }
         let log_level = level.ln();
         let index = self.bin_of_log(log_level);
+        self.push_in(index, level, log_level, residual)
+    }
+
+    /// [`SpreadProfile::push`], returning [`SpreadProfile::bin_of`] the level (whether or not
+    /// the residual was accepted): one logarithm serves both.
+    pub fn push_binned(&mut self, level: R, residual: R) -> Option<usize> {
+        if !self.accepting || !is_positive_finite(level) {
+            return None;
+        }
+        let log_level = level.ln();
+        let index = self.bin_of_log(log_level);
+        if residual.is_finite() {
+            self.push_in(index, level, log_level, residual);
+        }
+        Some(index)
+    }
+
+    /// The update of [`SpreadProfile::push`] once the level is known to be usable.
+    #[inline]
+    fn push_in(&mut self, index: usize, level: R, log_level: R, residual: R) -> bool {
         let beta = self.config.forgetting;
 
         // Lazy forgetting: the new residual's stored weight grows as 1/β per push, which is
@@ -349,22 +369,20 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         let square_comoment = beta * k.square_comoment + square_delta * square_after;
         let cross_comoment = beta * k.cross_comoment + level_delta * square_after;
 
-        let all_finite = [
-            weight,
-            mean,
-            comoment,
-            mean_log_level,
-            k_weight,
-            k_weight_squares,
-            mean_level,
-            mean_square,
-            level_comoment,
-            square_comoment,
-            cross_comoment,
-        ]
-        .iter()
-        .all(|value| value.is_finite());
-        if !all_finite {
+        // All finite when v·0 sums to zero (a non-finite v makes it NaN); no loop.
+        let zero = R::ZERO;
+        let probe = weight * zero
+            + mean * zero
+            + comoment * zero
+            + mean_log_level * zero
+            + k_weight * zero
+            + k_weight_squares * zero
+            + mean_level * zero
+            + mean_square * zero
+            + level_comoment * zero
+            + square_comoment * zero
+            + cross_comoment * zero;
+        if !probe.is_finite() {
             return false;
         }
 
@@ -428,13 +446,20 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
     ///
     /// See the module documentation for the weights and the choice of standard error.
     pub fn exponent(&self) -> Option<SpreadExponent<R>> {
+        // The usable bins' points, computed once (one logarithm each) for the three passes.
+        let mut points = [(R::ZERO, R::ZERO, R::ZERO); BINS];
+        let mut used = 0usize;
+        for point in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
+            points[used] = point;
+            used += 1;
+        }
+        let points = &points[..used];
         // First pass: weighted means.
-        let mut bins_used: u8 = 0;
+        let bins_used = u8::try_from(used).unwrap_or(u8::MAX);
         let mut weight_sum = R::ZERO;
         let mut mean_x = R::ZERO;
         let mut mean_y = R::ZERO;
-        for (x, y, w) in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
-            bins_used = bins_used.saturating_add(1);
+        for &(x, y, w) in points {
             weight_sum += w;
             mean_x += w * (x - mean_x) / weight_sum;
             mean_y += w * (y - mean_y) / weight_sum;
@@ -445,7 +470,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         // Second pass: centred sums.
         let mut sxx = R::ZERO;
         let mut sxy = R::ZERO;
-        for (x, y, w) in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
+        for &(x, y, w) in points {
             sxx += w * (x - mean_x).squared();
             sxy += w * (x - mean_x) * (y - mean_y);
         }
@@ -455,7 +480,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         let k = sxy / sxx;
         // Third pass: weighted residual sum of squares.
         let mut rss = R::ZERO;
-        for (x, y, w) in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
+        for &(x, y, w) in points {
             rss += w * (y - mean_y - k * (x - mean_x)).squared();
         }
         let model_variance = R::ONE / (R::TWO * sxx);

@@ -14,7 +14,8 @@
 //!   `identity`, and for non-finite values; it never returns a NaN.
 //! - `inverse(apply(u)) == u` up to rounding for every `u > 0` (property-tested).
 //! - [`Rung::derivative`] is `u^(λ−1)` and [`Rung::weight`] is its square `u^(2λ−2)`, the
-//!   weight of the transform-both-sides fit of that rung.
+//!   weight of the transform-both-sides fit of that rung, computed directly from `u` with
+//!   reciprocals and products (no square root).
 
 use serde::{Deserialize, Serialize};
 
@@ -165,7 +166,10 @@ impl Rung {
             two * (R::ONE - R::ONE / root),
             R::ONE - R::ONE / u,
         ];
-        if values.iter().all(|v| v.is_finite()) {
+        // All finite when v·0 sums to zero (a non-finite v makes it NaN); no loop.
+        let [a, b, c, d, e] = values;
+        let probe = a * R::ZERO + b * R::ZERO + c * R::ZERO + d * R::ZERO + e * R::ZERO;
+        if probe.is_finite() {
             Some((values, ln_u))
         } else {
             None
@@ -231,8 +235,23 @@ impl Rung {
     /// Weight of the transform-both-sides fit at scaled level `u`: `g_λ'(u)² = u^(2λ−2)`.
     #[inline]
     pub fn weight<R: Real>(self, u: R) -> R {
-        let derivative = self.derivative(u);
-        derivative * derivative
+        if self.needs_positive() && !(u > R::ZERO) {
+            return R::ZERO;
+        }
+        // u^(2λ−2) directly: no square root on any rung.
+        match self {
+            Rung::Identity => R::ONE,
+            Rung::Sqrt => R::ONE / u,
+            Rung::Log => {
+                let inverse = R::ONE / u;
+                inverse * inverse
+            }
+            Rung::InvSqrt => R::ONE / (u * u * u),
+            Rung::Inverse => {
+                let inverse = R::ONE / (u * u);
+                inverse * inverse
+            }
+        }
     }
 
     /// Log-Jacobian `(λ − 1)·ln u` of the transform at `u`, given `ln u`.
@@ -271,6 +290,8 @@ mod tests {
                 assert!((general - special).abs() <= 1e-12 * general.abs().max(1.0));
                 let derivative = libm::pow(u, lambda - 1.0);
                 assert!((rung.derivative(u) - derivative).abs() <= 1e-12 * derivative);
+                let weight = libm::pow(u, 2.0 * lambda - 2.0);
+                assert!((rung.weight(u) - weight).abs() <= 1e-12 * weight);
             }
         }
     }

@@ -162,8 +162,17 @@ fn shorten(bytes: &[u8]) -> String {
 
 /// Parses a numeric cell; `nan`, `inf`, `-inf` (any case) are accepted as data.
 pub fn parse_number<T: FromStr>(cell: &[u8]) -> Option<T> {
-    let text = std::str::from_utf8(cell).ok()?.trim();
+    let text = trim(std::str::from_utf8(cell).ok()?);
     text.parse().ok()
+}
+
+/// `str::trim`, skipped when the text starts and ends with a visible ASCII character (the
+/// usual numeric cell), which `trim` would leave as it is.
+fn trim(text: &str) -> &str {
+    match (text.as_bytes().first(), text.as_bytes().last()) {
+        (Some(first), Some(last)) if first.is_ascii_graphic() && last.is_ascii_graphic() => text,
+        _ => text.trim(),
+    }
 }
 
 /// Parses an RFC 3339 timestamp into seconds since 1970-01-01T00:00:00Z.
@@ -267,7 +276,20 @@ impl<R: Read> CsvFeed<R> {
         }
     }
 
-    fn time_cell(&self, index: usize) -> Result<f64, FeedError> {
+    /// The text of cell `index` when the whole record is valid UTF-8 and the cell's bounds
+    /// fall on character boundaries (the common case: one validation per record instead of
+    /// one per cell). `None` sends the caller to the cell-by-cell path.
+    fn cell_text<'a>(&self, record: Option<&'a str>, index: usize) -> Option<&'a str> {
+        record?.get(self.record.range(index)?)
+    }
+
+    fn time_cell(&self, record: Option<&str>, index: usize) -> Result<f64, FeedError> {
+        if let Some(seconds) = self
+            .cell_text(record, index)
+            .and_then(|text| trim(text).parse::<f64>().ok())
+        {
+            return Ok(seconds);
+        }
         let cell = self.record.get(index).unwrap_or(b"");
         if let Some(seconds) = parse_number::<f64>(cell) {
             return Ok(seconds);
@@ -285,10 +307,20 @@ impl<R: Read> CsvFeed<R> {
 
     fn cell<T: FromStr>(
         &self,
+        record: Option<&str>,
         index: usize,
         name: &str,
         optional: bool,
     ) -> Result<Option<T>, FeedError> {
+        // Fast path: a number parsed from the record's text. Anything else (blank, bad
+        // text, invalid UTF-8) takes the cell-by-cell path below, which decides and words
+        // the outcome exactly as before.
+        if let Some(value) = self
+            .cell_text(record, index)
+            .and_then(|text| trim(text).parse::<T>().ok())
+        {
+            return Ok(Some(value));
+        }
         let cell = self.record.get(index).unwrap_or(b"");
         if cell.iter().all(|b| b.is_ascii_whitespace()) {
             if optional {
@@ -336,19 +368,20 @@ impl<R: Read> CsvFeed<R> {
     fn parse_record<T: Real + FromStr>(&self, seq: u64) -> Result<Sample<T>, FeedError> {
         let columns = self.columns;
         let names = &self.names;
+        let record = std::str::from_utf8(self.record.as_slice()).ok();
         let t = match columns.time {
-            Some(index) => self.time_cell(index)?,
+            Some(index) => self.time_cell(record, index)?,
             None => seq as f64,
         };
         let raw = self
-            .cell::<T>(columns.raw, &names.raw, false)?
+            .cell::<T>(record, columns.raw, &names.raw, false)?
             .unwrap_or(T::NAN);
         let reference = match columns.reference {
-            Some(index) => self.cell::<T>(index, &names.reference, true)?,
+            Some(index) => self.cell::<T>(record, index, &names.reference, true)?,
             None => None,
         };
         let temperature = match columns.temperature {
-            Some(index) => self.cell::<T>(index, &names.temperature, true)?,
+            Some(index) => self.cell::<T>(record, index, &names.temperature, true)?,
             None => None,
         };
         Ok(Sample {
