@@ -21,7 +21,7 @@
 #![allow(clippy::needless_range_loop)]
 
 use serde::{Deserialize, Serialize};
-use serde_big_array::{Array, BigArray};
+use serde_big_array::Array;
 
 use crate::real::Real;
 
@@ -57,21 +57,20 @@ pub enum FitError {
 /// let theta = fit.parameters();
 /// assert!((theta[0] - 3.0).abs() < 1e-9 && (theta[1] - 2.0).abs() < 1e-9);
 /// ```
-#[derive(Clone, Debug, Serialize, Deserialize)]
-#[serde(bound = "R: Real")]
+///
+/// Serialized compactly (see `fit_encoding`): only the numbers the fit uses, without its
+/// [`FitConfig`], which the owner restores with [`RecursiveFit::set_config`].
+#[derive(Clone, Debug)]
 pub struct RecursiveFit<R, const P: usize> {
-    config: FitConfig<R>,
-    dim: u8,
-    #[serde(with = "BigArray")]
-    theta: [R; P],
+    pub(crate) config: FitConfig<R>,
+    pub(crate) dim: u8,
+    pub(crate) theta: [R; P],
     /// Strictly upper part of U by rows (`u[i][j]`, i < j); the rest is unused.
-    #[serde(with = "BigArray")]
-    u: [Array<R, P>; P],
-    #[serde(with = "BigArray")]
-    d: [R; P],
-    weighted_sse: R,
-    effective: R,
-    updates: u32,
+    pub(crate) u: [Array<R, P>; P],
+    pub(crate) d: [R; P],
+    pub(crate) weighted_sse: R,
+    pub(crate) effective: R,
+    pub(crate) updates: u32,
 }
 
 impl<R: Real, const P: usize> RecursiveFit<R, P> {
@@ -93,6 +92,17 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
             effective: R::ZERO,
             updates: 0,
         }
+    }
+
+    /// The forgetting factor and initial variance in use.
+    pub fn config(&self) -> FitConfig<R> {
+        self.config
+    }
+
+    /// Puts back the configuration after decoding (the encoding leaves it out: it belongs
+    /// to the owner's configuration).
+    pub fn set_config(&mut self, config: FitConfig<R>) {
+        self.config = config;
     }
 
     /// Number of parameters in use.

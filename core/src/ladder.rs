@@ -187,6 +187,14 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         rung.weight(scaled)
     }
 
+    /// Puts the fit configuration back into every rung's fit after decoding (the fits'
+    /// encoding leaves it out).
+    pub fn set_fit_config(&mut self, config: FitConfig<R>) {
+        for rung in self.rungs.iter_mut() {
+            rung.fit.set_config(config);
+        }
+    }
+
     /// Profile log-likelihood of every rung (`None` before the sums start).
     pub fn log_likelihoods(&self) -> Option<[R; RUNG_COUNT]> {
         if !(self.sample_weight > R::ONE) {

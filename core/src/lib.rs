@@ -31,6 +31,7 @@ mod defmt_format;
 pub mod detect;
 pub mod event;
 pub mod fit;
+mod fit_encoding;
 #[cfg(feature = "hal")]
 pub mod hal;
 pub mod ladder;

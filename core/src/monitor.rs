@@ -277,6 +277,12 @@ impl<R: Real> MonitorConfig<R> {
     }
 }
 
+/// Fills the ladder settings of a monitor being decoded until `complete_restored`
+/// derives the real ones from its configuration.
+fn unset_ladder_config<R: Real>() -> LadderConfig<R> {
+    MonitorConfig::<R>::default_for_range(R::ONE, R::from_f64(10.0)).ladder()
+}
+
 /// Running counts of what the monitor has seen.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
 pub struct Counters {
@@ -312,6 +318,8 @@ pub struct Counters {
 #[serde(bound = "R: Real")]
 pub struct Monitor<R, const P: usize = 3, const BINS: usize = 16, const Q: usize = 8> {
     config: MonitorConfig<R>,
+    /// Derived from `config`; not in a snapshot (rebuilt by `complete_restored`).
+    #[serde(skip, default = "unset_ladder_config")]
     ladder_config: LadderConfig<R>,
     ladder: PowerLadder<R, P>,
     spread: SpreadProfile<R, BINS>,
@@ -342,22 +350,23 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         })
     }
 
-    /// Checks a monitor decoded from a snapshot: the configuration validates and the
-    /// state agrees with it (fit sizes, ladder and spread settings), so that `push` keeps
-    /// its invariants on it.
-    pub(crate) fn check_restored(&self) -> Result<(), crate::snapshot::SnapshotError> {
+    /// Completes a monitor decoded from a snapshot and checks it: rebuilds what the
+    /// snapshot leaves out because the configuration implies it (the ladder settings, every
+    /// fit's forgetting and initial variance), then checks that the configuration validates
+    /// and the state agrees with it (fit sizes, spread settings), so that `push` keeps its
+    /// invariants on it.
+    pub(crate) fn complete_restored(&mut self) -> Result<(), crate::snapshot::SnapshotError> {
         use crate::snapshot::SnapshotError;
         self.config
             .validate(P)
             .map_err(SnapshotError::InvalidConfig)?;
+        self.ladder_config = self.config.ladder();
+        self.ladder.set_fit_config(self.ladder_config.fit);
         let dim = self.config.basis.len();
         let fits_agree = Rung::ALL
             .iter()
             .all(|&rung| self.ladder.fit(rung).dim() == dim);
-        if self.ladder_config != self.config.ladder()
-            || *self.spread.config() != self.config.spread()
-            || !fits_agree
-        {
+        if *self.spread.config() != self.config.spread() || !fits_agree {
             return Err(SnapshotError::InconsistentState);
         }
         Ok(())

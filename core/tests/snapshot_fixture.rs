@@ -1,7 +1,14 @@
-//! The committed snapshot fixture `tests/data/snapshot-v1.bin` (format version 1) must keep
-//! decoding, and must re-encode to the same bytes: if a change to any state or
-//! configuration type changes the bytes, the format version must be bumped (see
-//! ARCHITECTURE.md, "Format versioning") and a new fixture committed beside the old one.
+//! The committed snapshot fixture of the current format, `tests/data/snapshot-v2.bin`
+//! (format version 2), must keep decoding, and must re-encode to the same bytes: if a change
+//! to any state or configuration type changes the bytes, the format version must be bumped
+//! (see ARCHITECTURE.md, "Format versioning") and a new fixture committed beside the old
+//! ones. Older fixtures stay and are refused by version, never misread.
+//!
+//! Version history: 1 wrote every fit's full `P×P` factor, its padding and its
+//! configuration, and the ladder settings; 2 writes only what each fit uses and derives the
+//! rest from the monitor's configuration (1,257 → about 1,000 bytes for the gas-cell demo
+//! state in f32). No version-1 decoder is kept: version 1 never left development, so a
+//! version-1 snapshot is re-commissioned.
 //!
 //! Regenerate (only together with a version bump):
 //! `cargo test -p steadycal-core --test snapshot_fixture -- --ignored write_fixture`
@@ -10,10 +17,14 @@ use std::path::PathBuf;
 
 use steadycal_core::monitor::{Monitor, MonitorConfig};
 use steadycal_core::sample::Sample;
-use steadycal_core::snapshot::{Snapshot, FORMAT_VERSION, MAX_SNAPSHOT_LEN};
+use steadycal_core::snapshot::{Snapshot, SnapshotError, FORMAT_VERSION, MAX_SNAPSHOT_LEN};
 
 fn fixture_path() -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/data/snapshot-v1.bin")
+    fixture_of(FORMAT_VERSION)
+}
+
+fn fixture_of(version: u16) -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join(format!("tests/data/snapshot-v{version}.bin"))
 }
 
 /// The monitor the fixture holds: defaults for [1, 100], 700 samples of an invented
@@ -36,16 +47,25 @@ fn fixture_monitor() -> Monitor<f32> {
 }
 
 #[test]
-fn version_1_fixture_still_decodes() {
+fn version_1_fixture_is_refused_by_version() {
+    let bytes = std::fs::read(fixture_of(1)).expect("committed fixture");
+    match Snapshot::parse(&bytes) {
+        Err(SnapshotError::UnknownVersion { .. }) => {}
+        other => panic!("a version-1 snapshot must be refused by version: {other:?}"),
+    }
+}
+
+#[test]
+fn current_version_fixture_still_decodes() {
     let bytes = std::fs::read(fixture_path()).expect("committed fixture");
     let snapshot = Snapshot::parse(&bytes).expect("header and CRC");
-    assert_eq!(snapshot.header().version, 1);
+    assert_eq!(snapshot.header().version, 2);
     let monitor: Monitor<f32> = snapshot.monitor().expect("decodes as Monitor<f32>");
     let counters = monitor.counters();
     assert_eq!(counters.samples, 700);
     assert_eq!(counters.checks + counters.rejected + counters.readings, 700);
     // Same version: the bytes must be reproduced exactly.
-    if FORMAT_VERSION == 1 {
+    if FORMAT_VERSION == 2 {
         let mut again = [0u8; MAX_SNAPSHOT_LEN];
         let len = monitor.snapshot(&mut again).unwrap();
         assert_eq!(
