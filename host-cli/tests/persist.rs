@@ -151,14 +151,14 @@ fn snapshot_inspect_and_verify() {
         .arg(&snapshot)
         .assert()
         .success()
-        .stdout(predicate::str::contains("good (format version 1, f32"));
+        .stdout(predicate::str::contains("good (format version 2, f32"));
     steadycal()
         .args(["snapshot", "inspect"])
         .arg(&snapshot)
         .assert()
         .success()
         .stdout(
-            predicate::str::contains("format version 1")
+            predicate::str::contains("format version 2")
                 .and(predicate::str::contains("21600 samples, 10800 checks"))
                 .and(predicate::str::contains("rung log")),
         );
@@ -171,7 +171,7 @@ fn snapshot_inspect_and_verify() {
     let description: serde_json::Value = serde_json::from_slice(&output.stdout).unwrap();
     let bytes = std::fs::read(&snapshot).unwrap();
     assert_eq!(description["bytes"], bytes.len() as u64);
-    assert_eq!(description["format_version"], 1);
+    assert_eq!(description["format_version"], steadycal_core::snapshot::FORMAT_VERSION);
     assert_eq!(description["precision"], "f32");
     assert_eq!(description["samples"], 21600);
     assert!(description["crc32"].as_str().unwrap().starts_with("0x"));
