@@ -171,7 +171,10 @@ fn snapshot_inspect_and_verify() {
     let description: serde_json::Value = serde_json::from_slice(&output.stdout).unwrap();
     let bytes = std::fs::read(&snapshot).unwrap();
     assert_eq!(description["bytes"], bytes.len() as u64);
-    assert_eq!(description["format_version"], steadycal_core::snapshot::FORMAT_VERSION);
+    assert_eq!(
+        description["format_version"],
+        steadycal_core::snapshot::FORMAT_VERSION
+    );
     assert_eq!(description["precision"], "f32");
     assert_eq!(description["samples"], 21600);
     assert!(description["crc32"].as_str().unwrap().starts_with("0x"));
