@@ -211,7 +211,7 @@ mod tests {
             let fit = trained::<3>(dim);
             let mut buf = [0u8; 256];
             let bytes = postcard::to_slice(&fit, &mut buf).unwrap();
-            assert_eq!(bytes.len(), 1 + 1 + 4 * 0 + 8 * used_len(dim) + 1);
+            assert_eq!(bytes.len(), 1 + 1 + 8 * used_len(dim) + 1);
             let mut back: RecursiveFit<f64, 3> = postcard::from_bytes(bytes).unwrap();
             back.set_config(config());
             let mut again = [0u8; 256];
