@@ -3,19 +3,32 @@
 //!   Cortex-M0 part `cortex-m0-generic.x` for thumbv6m) and hands it to cortex-m-rt's
 //!   `link.x` as `memory.x` in OUT_DIR;
 //! - turns a feed CSV (default `../simulated-feeds/gas-cell.csv`, or `STEADYCAL_FEED`) into
-//!   the binary feed image embedded in flash, read exactly as `steadycal replay` reads a
-//!   CSV: columns found by name (`t`, `raw`, `ref`, `temp`), cells trimmed, numbers parsed
-//!   with the standard library's correctly rounded `str::parse` straight into the float
-//!   type (f32 for raw/ref/temp, f64 for t), an empty `ref`/`temp` cell meaning "absent".
-//!   `STEADYCAL_FEED_ROWS` limits the number of rows.
+//!   the device log embedded in flash (`feed.log` in OUT_DIR), the same bytes
+//!   `steadycal replay FEED --device-log-out FILE` writes for that CSV (f32, the default
+//!   configuration for the range 1..1000): a lone `0x00`, the start record, then for every
+//!   row its sample record followed by the records of the events the monitor raised on it,
+//!   each framed by the core's `record::encode_frame` (COBS, CRC-16, `0x00`). The events
+//!   come from running the core's `Monitor<f32>` here on the build host, exactly as the
+//!   host replay does; the firmware checks its own events against them.
 //!
-//! Feed image layout (little endian): magic `SCFD`, u32 row count, then per row one flag
-//! byte (bit 0: reference present, bit 1: temperature present, bit 2: `t` column present),
-//! t as f64 bits, raw as f32 bits, then the reference and temperature f32 bits if present.
+//! The CSV is read exactly as `steadycal replay` reads one: columns found by name (`t`,
+//! `raw`, `ref`, `temp`), cells trimmed, numbers parsed with the standard library's
+//! correctly rounded `str::parse` straight into the float type (f32 for raw/ref/temp, f64
+//! for t), an empty `ref`/`temp` cell meaning "absent", `seq` the 0-based row index.
+//! `STEADYCAL_FEED_ROWS` limits the number of rows.
 
 use std::env;
 use std::fs;
 use std::path::PathBuf;
+
+use steadycal_core::monitor::{Monitor, MonitorConfig};
+use steadycal_core::record::{encode_frame, LogStart, Record, MAX_FRAME_LEN};
+use steadycal_core::sample::Sample;
+
+/// Working range of the default replay configuration; the firmware's `LEVEL_LOW` and
+/// `LEVEL_HIGH` (src/main.rs) are the same.
+const LEVEL_LOW: f64 = 1.0;
+const LEVEL_HIGH: f64 = 1000.0;
 
 fn main() {
     let out = PathBuf::from(env::var("OUT_DIR").expect("OUT_DIR"));
@@ -49,14 +62,41 @@ fn main() {
         v.parse::<usize>()
             .expect("STEADYCAL_FEED_ROWS: a row count")
     });
-    let image = match feed_image(&feed, limit) {
-        Ok(image) => image,
+    let samples = match read_feed(&feed, limit) {
+        Ok(samples) => samples,
         Err(message) => panic!("{}: {message}", feed.display()),
     };
-    fs::write(out.join("feed.bin"), image).expect("write feed.bin");
+    let log = device_log(&samples).unwrap_or_else(|message| panic!("device log: {message}"));
+    fs::write(out.join("feed.log"), log).expect("write feed.log");
 }
 
-fn feed_image(path: &PathBuf, limit: Option<usize>) -> Result<Vec<u8>, String> {
+/// The device log of a replay of `samples`, as `steadycal replay --device-log-out` writes
+/// it (see the module docs).
+fn device_log(samples: &[Sample<f32>]) -> Result<Vec<u8>, String> {
+    let config: MonitorConfig<f32> =
+        MonitorConfig::<f64>::default_for_range(LEVEL_LOW, LEVEL_HIGH).convert();
+    let mut monitor: Monitor<f32> =
+        Monitor::new(config).map_err(|e| format!("configuration: {}", e.parameter()))?;
+    let mut log = vec![0u8];
+    let mut put = |record: &Record<f32>| -> Result<(), String> {
+        let mut frame = [0u8; MAX_FRAME_LEN];
+        let len = encode_frame(record, &mut frame).map_err(|e| e.reason().to_string())?;
+        log.extend_from_slice(&frame[..len]);
+        Ok(())
+    };
+    put(&Record::Start(LogStart::new::<f32>()))?;
+    for sample in samples {
+        put(&Record::Sample(*sample))?;
+        if monitor.push(sample).new_events > 0 {
+            while let Some(event) = monitor.pop_event() {
+                put(&Record::Event(event))?;
+            }
+        }
+    }
+    Ok(log)
+}
+
+fn read_feed(path: &PathBuf, limit: Option<usize>) -> Result<Vec<Sample<f32>>, String> {
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)
         .flexible(false)
@@ -72,8 +112,7 @@ fn feed_image(path: &PathBuf, limit: Option<usize>) -> Result<Vec<u8>, String> {
     let reference = find("ref");
     let temperature = find("temp");
 
-    let mut rows = Vec::new();
-    let mut count: u32 = 0;
+    let mut samples = Vec::new();
     for (seq, record) in reader.records().enumerate() {
         if limit.is_some_and(|limit| seq >= limit) {
             break;
@@ -112,23 +151,13 @@ fn feed_image(path: &PathBuf, limit: Option<usize>) -> Result<Vec<u8>, String> {
             Some(index) => number(index, "temp")?.map(|text| text.parse::<f32>().unwrap()),
             None => None,
         };
-        let flags = u8::from(reference.is_some())
-            | (u8::from(temperature.is_some()) << 1)
-            | (u8::from(time.is_some()) << 2);
-        rows.push(flags);
-        rows.extend_from_slice(&t.to_bits().to_le_bytes());
-        rows.extend_from_slice(&raw.to_bits().to_le_bytes());
-        if let Some(value) = reference {
-            rows.extend_from_slice(&value.to_bits().to_le_bytes());
-        }
-        if let Some(value) = temperature {
-            rows.extend_from_slice(&value.to_bits().to_le_bytes());
-        }
-        count += 1;
+        samples.push(Sample {
+            seq: seq as u64,
+            t,
+            raw,
+            reference,
+            temperature,
+        });
     }
-    let mut image = Vec::with_capacity(rows.len() + 8);
-    image.extend_from_slice(b"SCFD");
-    image.extend_from_slice(&count.to_le_bytes());
-    image.extend_from_slice(&rows);
-    Ok(image)
+    Ok(samples)
 }

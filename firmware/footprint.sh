@@ -3,7 +3,7 @@
 # core's share separated: the same firmware is built a second time with the
 # `footprint-baseline` feature (the monitor replaced by an opaque stand-in), and the
 # difference of the two builds is what the core (plus the libm and compiler-builtins code
-# it pulls in) adds. The feed image (read-only data in flash) is reported apart.
+# it pulls in) adds. The embedded device log (read-only data in flash) is reported apart.
 # Usage: firmware/footprint.sh [TARGET] [extra cargo args]   (default thumbv7em-none-eabihf)
 set -euo pipefail
 cd "$(dirname "$0")"
@@ -16,10 +16,10 @@ base_text=$(section "$elf" .text); base_rodata=$(section "$elf" .rodata)
 cargo build --release --target "$target" "$@" >&2
 text=$(section "$elf" .text); rodata=$(section "$elf" .rodata)
 vectors=$(section "$elf" .vector_table); bss=$(section "$elf" .bss); data=$(section "$elf" .data)
-feed=$(stat -c %s "$(ls -t target/"$target"/release/build/steadycal-firmware-*/out/feed.bin | head -n1)")
+feed=$(stat -c %s "$(ls -t target/"$target"/release/build/steadycal-firmware-*/out/feed.log | head -n1)")
 echo "target $target $*"
-echo "flash: .vector_table $vectors + .text $text + .rodata $rodata (feed image $feed) + .data $data"
-echo "flash without the feed image: $(( vectors + text + rodata - feed + data )) bytes"
+echo "flash: .vector_table $vectors + .text $text + .rodata $rodata (device log $feed) + .data $data"
+echo "flash without the device log: $(( vectors + text + rodata - feed + data )) bytes"
 echo "core share (full minus baseline): .text $(( text - base_text )) + .rodata $(( rodata - base_rodata )) = $(( text - base_text + rodata - base_rodata )) bytes"
 echo "static RAM: .data $data + .bss $bss bytes (the monitor lives on the stack; see the firmware's memory lines)"
 echo "largest core symbols kept out of line (llvm-nm, bytes):"

@@ -1,10 +1,14 @@
 //! Example firmware: one steadycal monitor on a Cortex-M4F board (QEMU `mps2-an386`).
 //!
-//! It pushes every sample of the feed image embedded in flash (see build.rs) through
-//! `Monitor<f32>` with the same configuration `steadycal replay --precision f32` uses by
-//! default, prints each event as one canonical line over semihosting (see [`lines`]), then
-//! instruction counts per push and a summary line, and exits with semihosting's exit
-//! status: 0 when the whole feed ran, 1 otherwise.
+//! It reads the device log embedded in flash (see build.rs and [`log`]) with the core's
+//! record reader and pushes every sample through `Monitor<f32>` with the same
+//! configuration `steadycal replay --precision f32` uses by default, prints each event as
+//! one canonical line over semihosting (see [`lines`]) and checks it against the event the
+//! log holds for that sample, appends it to the event log on the board's (RAM-backed) NOR
+//! flash, saves a snapshot through the core's two-slot store every
+//! [`storage::SNAPSHOT_EVERY`] samples and once at the end, loads it back and restores
+//! from it (see [`persist`]), then prints instruction counts per push and a summary line,
+//! and exits with semihosting's exit status: 0 when the whole feed ran, 1 otherwise.
 //!
 //! Instruction counts come from SysTick on the core clock: under QEMU with
 //! `-icount shift=0` one instruction takes 1 ns of virtual time and the board's 25 MHz
@@ -16,8 +20,10 @@
 mod board;
 mod channel;
 mod counter;
-mod feed;
 mod lines;
+mod log;
+mod persist;
+mod storage;
 
 use core::fmt::Write;
 
@@ -37,6 +43,10 @@ const LEVEL_LOW: f64 = 1.0;
 const LEVEL_HIGH: f64 = 1000.0;
 
 type Line = String<320>;
+
+/// Own events waiting for the logged event they must equal (one push raises at most the
+/// queue's capacity, 8, before the log's copies follow).
+type Pending = heapless::Deque<steadycal_core::event::Event<f32>, 16>;
 
 /// Writes one line over semihosting (one host call per line).
 fn emit(line: &Line) {
@@ -65,8 +75,11 @@ fn run() -> Result<(), &'static str> {
     let mut alarm_led = AlarmOutput::new(board::UserLed0::new(), ActiveLevel::High, Severity::Warn)
         .map_err(|_| "alarm output")?;
     let mut lit_pushes: u32 = 0;
-    let feed = feed::FeedReader::new(feed::IMAGE).ok_or("feed image: bad magic")?;
-    let rows = feed.rows();
+    let mut feed = log::LogReader::new(log::IMAGE)?;
+    let mut persist = persist::Persist::new()?;
+    let mut pending = Pending::new();
+    let mut logged_matched: u32 = 0;
+    let mut logged_unmatched: u32 = 0;
 
     let mut warming_checks = Tally::default();
     let mut live_checks = Tally::default();
@@ -75,7 +88,19 @@ fn run() -> Result<(), &'static str> {
     let mut events: u64 = 0;
     let mut digest = ReadingDigest::new();
     let mut pushed: u32 = 0;
-    for sample in feed {
+    for item in feed.by_ref() {
+        let sample = match item {
+            log::Item::Sample(sample) => sample,
+            log::Item::Event(frame) => {
+                match pending.pop_front() {
+                    Some(own) if log::same_frame(&own, frame) => logged_matched += 1,
+                    _ => logged_unmatched += 1,
+                }
+                continue;
+            }
+        };
+        logged_unmatched += pending.len() as u32;
+        pending.clear();
         let before = counter.now();
         let outcome = monitor.push(&sample);
         let ticks = counter.since(before);
@@ -107,10 +132,28 @@ fn run() -> Result<(), &'static str> {
             let mut line = Line::new();
             let _ = lines::event_line(&mut line, &event, sample.t);
             emit(&line);
+            persist.log_event(&event)?;
+            if pending.push_back(event).is_err() {
+                logged_unmatched += 1;
+            }
+        }
+        if pushed.is_multiple_of(storage::SNAPSHOT_EVERY) {
+            persist.save(&monitor, &counter)?;
         }
     }
-    if pushed != rows {
-        return Err("feed image truncated");
+    logged_unmatched += pending.len() as u32;
+    say(format_args!(
+        "device_log_in bytes={} crc={:08x} frames={} sessions={} samples={} logged_events={} matched={logged_matched} unmatched={logged_unmatched} damaged={}",
+        log::IMAGE.len(),
+        steadycal_core::snapshot::CRC32.checksum(log::IMAGE),
+        feed.frames_read,
+        feed.sessions,
+        feed.samples,
+        feed.events,
+        feed.damaged
+    ));
+    if pushed != feed.samples || feed.damaged > 0 {
+        return Err("device log: damaged frames");
     }
 
     for (name, tally) in [
@@ -161,6 +204,12 @@ fn run() -> Result<(), &'static str> {
         let _ = lines::put_f32(&mut line, key, value);
     }
     emit(&line);
+
+    say(format_args!(
+        "memory stack_peak_feed_bytes={} (monitor, store calls and event log included; before the restore check)",
+        board::stack_used()
+    ));
+    persist.finish(&mut monitor, &counter)?;
     Ok(())
 }
 

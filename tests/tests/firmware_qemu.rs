@@ -5,7 +5,16 @@
 //! (`simulated-feeds/gas-cell.csv`), and compares every event it prints with the events of
 //! `steadycal replay --precision f32` on the same CSV, converted into the same canonical
 //! line format (`firmware/src/lines.rs` defines it): every float compared as its bit
-//! pattern. The final summary line (counters, rung, parameters) is compared too.
+//! pattern. The final summary line (counters, rung, parameters) is compared too, and the
+//! readings digest.
+//!
+//! Persistence (issue 8): the device log the firmware embeds (build.rs) must be the bytes
+//! `steadycal replay --device-log-out` writes for the CSV (length and CRC-32, and every
+//! logged event matched on the board); the final snapshot the board saved through its
+//! two-slot store and loaded back must equal, byte for byte, the snapshot
+//! `steadycal replay --precision f32 --save-snapshot` writes; the board's own event log
+//! must be the start and event frames of the host's device log; and the board's restore
+//! check must pass.
 //!
 //! The expected values are the host's own replay of the same feed (no published reference:
 //! the claim under test is that the two builds of the core agree exactly).
@@ -19,8 +28,14 @@ use std::process::Command;
 
 use serde_json::Value;
 use steadycal_cli::feed::ColumnNames;
-use steadycal_cli::replay::{replay, Precision, ReplayOptions};
+use steadycal_cli::replay::{replay, PersistOptions, Precision, ReplayOptions};
 use steadycal_core::monitor::MonitorConfig;
+use steadycal_core::record::{decode_frame, Frames, Record};
+use steadycal_core::snapshot::CRC32;
+
+/// Samples between two periodic saves on the board (`firmware/src/storage.rs`,
+/// `SNAPSHOT_EVERY`).
+const SNAPSHOT_EVERY: u64 = 1000;
 
 /// How a field of an event is written in the canonical line.
 #[derive(Clone, Copy)]
@@ -266,6 +281,8 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
     let events_path = scratch.join("host-events.jsonl");
     let summary_path = scratch.join("host-summary.json");
     let readings_path = scratch.join("host-readings.csv");
+    let snapshot_path = scratch.join("host-final.snapshot");
+    let log_path = scratch.join("host-device.log");
     let options = ReplayOptions {
         feed: root.join("simulated-feeds/gas-cell.csv"),
         events: Some(events_path.clone()),
@@ -278,7 +295,11 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
         skip_bad_rows: false,
         progress: false,
         warnings: false,
-        persist: Default::default(),
+        persist: PersistOptions {
+            save_snapshot: Some(snapshot_path.clone()),
+            device_log_out: Some(log_path.clone()),
+            ..Default::default()
+        },
     };
     let result = replay(&options).expect("host replay");
     assert!(
@@ -330,6 +351,14 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
         "calibrated readings differ (board, host)"
     );
 
+    check_persistence(
+        &printed,
+        &std::fs::read(&snapshot_path).unwrap(),
+        &std::fs::read(&log_path).unwrap(),
+        host_events.len(),
+        summary["samples"].as_u64().unwrap(),
+    );
+
     let mut kinds: BTreeMap<&str, usize> = BTreeMap::new();
     for line in &board_events {
         *kinds
@@ -339,6 +368,115 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
     eprintln!(
         "firmware and host agree on {} events {kinds:?}; {board_readings}; {board_summary}",
         board_events.len()
+    );
+}
+
+/// The value of `key=` in a line, or a panic naming the line.
+fn field<'a>(line: &'a str, key: &str) -> &'a str {
+    line.split(' ')
+        .find_map(|part| part.strip_prefix(key).and_then(|v| v.strip_prefix('=')))
+        .unwrap_or_else(|| panic!("no `{key}=` in `{line}`"))
+}
+
+fn board_line<'a>(printed: &'a str, prefix: &str) -> &'a str {
+    printed
+        .lines()
+        .find(|line| line.starts_with(prefix))
+        .unwrap_or_else(|| {
+            panic!(
+                "no `{prefix}` line in the firmware output:\n{}",
+                tail(printed)
+            )
+        })
+}
+
+/// The persistence comparisons (module docs).
+fn check_persistence(
+    printed: &str,
+    host_snapshot: &[u8],
+    host_log: &[u8],
+    host_events: usize,
+    samples: u64,
+) {
+    // The embedded device log is the host's --device-log-out, and the board matched every
+    // event logged in it with its own.
+    let line = board_line(printed, "device_log_in ");
+    assert_eq!(field(line, "bytes"), host_log.len().to_string(), "{line}");
+    assert_eq!(
+        field(line, "crc"),
+        format!("{:08x}", CRC32.checksum(host_log)),
+        "embedded device log differs from `steadycal replay --device-log-out`: {line}"
+    );
+    assert_eq!(
+        field(line, "logged_events"),
+        host_events.to_string(),
+        "{line}"
+    );
+    assert_eq!(field(line, "matched"), host_events.to_string(), "{line}");
+    assert_eq!(field(line, "unmatched"), "0", "{line}");
+    assert_eq!(field(line, "damaged"), "0", "{line}");
+
+    // The final snapshot, loaded back from the board's store, byte for byte.
+    let line = board_line(printed, "snapshot_loaded ");
+    let board_hex: String = printed
+        .lines()
+        .filter_map(|line| line.strip_prefix("snapshot_hex "))
+        .map(|rest| rest.split(' ').nth(1).expect("snapshot_hex OFFSET HEX"))
+        .collect();
+    let host_hex: String = host_snapshot.iter().map(|b| format!("{b:02x}")).collect();
+    assert_eq!(
+        field(line, "len"),
+        host_snapshot.len().to_string(),
+        "{line}"
+    );
+    let stored_crc =
+        u32::from_le_bytes(host_snapshot[host_snapshot.len() - 4..].try_into().unwrap());
+    assert_eq!(field(line, "crc"), format!("{stored_crc:08x}"), "{line}");
+    assert_eq!(
+        board_hex, host_hex,
+        "final snapshot differs (board first, host second)"
+    );
+    // Periodic saves plus the final one.
+    assert_eq!(
+        field(line, "seq"),
+        (samples / SNAPSHOT_EVERY + 1).to_string(),
+        "{line}"
+    );
+    let store = board_line(printed, "store ");
+    assert_eq!(field(store, "saves"), field(line, "seq"), "{store}");
+
+    // The board's event log: a lone 0x00, then the start and event frames of the host's
+    // device log (its sample frames left out).
+    let mut expected = vec![0u8];
+    for (start, end) in Frames::new(host_log) {
+        let mut body = host_log[start..end].to_vec();
+        match decode_frame::<f32>(&mut body) {
+            Ok(Record::Start(_) | Record::Event(_)) => {
+                expected.extend_from_slice(&host_log[start..=end])
+            }
+            Ok(Record::Sample(_)) => {}
+            Err(error) => panic!("host device log, bytes {start}..{end}: {error:?}"),
+        }
+    }
+    let line = board_line(printed, "device_log_out ");
+    assert_eq!(
+        field(line, "records"),
+        (host_events + 1).to_string(),
+        "{line}"
+    );
+    assert_eq!(field(line, "dropped"), "0", "{line}");
+    assert_eq!(field(line, "bytes"), expected.len().to_string(), "{line}");
+    assert_eq!(
+        field(line, "crc"),
+        format!("{:08x}", CRC32.checksum(&expected)),
+        "board event log differs from the host's start and event frames: {line}"
+    );
+    assert_eq!(field(line, "read_back_events"), host_events.to_string());
+
+    board_line(printed, "restore ok");
+    eprintln!(
+        "final snapshot: {} bytes equal on board and host; {line}",
+        host_snapshot.len()
     );
 }
 
