@@ -24,8 +24,12 @@
 //! - Erases cover whole `ERASE_SIZE` sectors; writes start on a `WRITE_SIZE` boundary and
 //!   are a multiple of `WRITE_SIZE` long (padded with 0xFF, which NOR writes leave as is);
 //!   reads start on a `READ_SIZE` boundary and are a multiple of `READ_SIZE` long.
-//! - Nothing allocates: the caller lends a scratch buffer of at least
-//!   [`SnapshotStore::scratch_len`] bytes.
+//! - Nothing allocates: the caller lends a scratch buffer. One slot
+//!   ([`SnapshotStore::scratch_len`]) always suffices; a board that knows its largest
+//!   snapshot lends [`SnapshotStore::scratch_len_for`] of it instead (a record, rounded to
+//!   the read and write sizes), which for the default `Monitor<f32>` is less than half of a
+//!   4 KiB sector. A record that does not fit the scratch is an error
+//!   ([`StoreError::ScratchTooSmall`]), never a silent fallback.
 
 use embedded_storage::nor_flash::NorFlash;
 
@@ -129,9 +133,22 @@ impl<F: NorFlash> SnapshotStore<F> {
         self.slot_len as usize
     }
 
-    /// Scratch bytes `save` and `load` need: one slot.
+    /// Scratch bytes that always suffice for `save` and `load`: one slot.
     pub fn scratch_len(&self) -> usize {
         self.slot_len as usize
+    }
+
+    /// Scratch bytes that suffice while no snapshot is longer than `snapshot_max` bytes
+    /// (for example [`crate::snapshot::MAX_SNAPSHOT_LEN`]): the sequence number, the
+    /// snapshot and the slot CRC, rounded up to the read and write sizes; at most a slot.
+    pub fn scratch_len_for(&self, snapshot_max: usize) -> usize {
+        let unit = F::READ_SIZE.max(F::WRITE_SIZE).max(1);
+        round_up(SEQ_LEN + snapshot_max + CRC_LEN, unit).min(self.slot_len())
+    }
+
+    /// The least scratch that can hold a record's sequence number and snapshot header.
+    fn min_scratch(&self) -> usize {
+        round_up(SEQ_LEN + HEADER_LEN, F::READ_SIZE.max(1)).min(self.slot_len())
     }
 
     fn slot_offset(&self, slot: usize) -> u32 {
@@ -159,6 +176,9 @@ impl<F: NorFlash> SnapshotStore<F> {
             return Ok(None);
         }
         let whole = round_up(record, read).min(self.slot_len());
+        if whole > scratch.len() {
+            return Err(StoreError::ScratchTooSmall);
+        }
         if whole > head {
             self.flash
                 .read(offset + head as u32, &mut scratch[head..whole])
@@ -184,7 +204,7 @@ impl<F: NorFlash> SnapshotStore<F> {
     /// `None` when neither slot holds one. On `Some`, the snapshot's bytes are
     /// `scratch[SEQ_LEN..SEQ_LEN + info.len]`.
     pub fn newest(&mut self, scratch: &mut [u8]) -> Result<Option<SlotInfo>, StoreError<F::Error>> {
-        if scratch.len() < self.scratch_len() {
+        if scratch.len() < self.min_scratch() {
             return Err(StoreError::ScratchTooSmall);
         }
         let first = self.read_slot(0, scratch)?;
@@ -240,7 +260,7 @@ impl<F: NorFlash> SnapshotStore<F> {
         scratch: &mut [u8],
     ) -> Result<SlotInfo, StoreError<F::Error>> {
         let newest = self.newest(scratch)?;
-        let room = self.slot_len() - SEQ_LEN - CRC_LEN;
+        let room = self.room(scratch);
         let len = monitor
             .snapshot(&mut scratch[SEQ_LEN..SEQ_LEN + room])
             .map_err(|_| StoreError::SnapshotTooLarge)?;
@@ -255,11 +275,19 @@ impl<F: NorFlash> SnapshotStore<F> {
     ) -> Result<SlotInfo, StoreError<F::Error>> {
         Snapshot::parse(snapshot).map_err(StoreError::Snapshot)?;
         let newest = self.newest(scratch)?;
-        if snapshot.len() > self.slot_len() - SEQ_LEN - CRC_LEN {
+        if snapshot.len() > self.room(scratch) {
             return Err(StoreError::SnapshotTooLarge);
         }
         scratch[SEQ_LEN..SEQ_LEN + snapshot.len()].copy_from_slice(snapshot);
         self.write_record(newest, snapshot.len(), scratch)
+    }
+
+    /// Snapshot bytes a record can carry: the slot or the scratch, whichever is smaller,
+    /// less the sequence number, the slot CRC and the write padding.
+    fn room(&self, scratch: &[u8]) -> usize {
+        let usable = scratch.len().min(self.slot_len());
+        let usable = usable - usable % F::WRITE_SIZE.max(1);
+        usable.saturating_sub(SEQ_LEN + CRC_LEN)
     }
 
     /// Writes the record whose snapshot sits at `scratch[SEQ_LEN..SEQ_LEN + len]`.
@@ -281,6 +309,9 @@ impl<F: NorFlash> SnapshotStore<F> {
         let padded = round_up(record, F::WRITE_SIZE.max(1));
         if padded > self.slot_len() {
             return Err(StoreError::SnapshotTooLarge);
+        }
+        if padded > scratch.len() {
+            return Err(StoreError::ScratchTooSmall);
         }
         scratch[record..padded].fill(0xFF);
         let offset = self.slot_offset(slot);
@@ -515,6 +546,26 @@ mod tests {
     }
 
     #[test]
+    fn a_scratch_too_small_for_the_record_is_an_error() {
+        let mut store = SnapshotStore::new(Flash::new(), ERASE as u32, SLOT as u32).unwrap();
+        let mut monitor: Monitor<f32> =
+            Monitor::new(MonitorConfig::default_for_range(1.0, 100.0)).unwrap();
+        advance(&mut monitor, 0);
+        let mut scratch = [0u8; SLOT];
+        store.save(&monitor, &mut scratch).unwrap();
+        let mut tiny = [0u8; 8];
+        assert_eq!(store.load(&mut tiny), Err(StoreError::ScratchTooSmall));
+        let mut short = [0u8; 200];
+        assert_eq!(store.load(&mut short), Err(StoreError::ScratchTooSmall));
+        assert_eq!(
+            store.save(&monitor, &mut short),
+            Err(StoreError::ScratchTooSmall)
+        );
+        // The good record is still there.
+        assert!(store.load(&mut scratch).unwrap().is_some());
+    }
+
+    #[test]
     fn alignment_is_checked() {
         assert!(matches!(
             SnapshotStore::new(Flash::new(), 10, SLOT as u32),
@@ -607,7 +658,15 @@ mod tests {
         let mut flash = Big::new();
         let mut monitor: Monitor<f32> =
             Monitor::new(MonitorConfig::default_for_range(1.0, 100.0)).unwrap();
-        let mut scratch = [0u8; 4096];
+        // A board's scratch: one record of the largest default snapshot, not a sector.
+        const SMALL: usize = round_up(SEQ_LEN + MAX_SNAPSHOT_LEN + CRC_LEN, 16);
+        assert_eq!(
+            SnapshotStore::new(Big::new(), 4096, 4096)
+                .unwrap()
+                .scratch_len_for(MAX_SNAPSHOT_LEN),
+            SMALL
+        );
+        let mut scratch = [0u8; SMALL];
         let mut previous: Option<std::vec::Vec<u8>> = None;
         for step in 0..12 {
             advance(&mut monitor, step);

@@ -20,7 +20,9 @@ use steadycal_core::snapshot::CRC32;
 use crate::channel::Channel;
 use crate::counter::{Counter, Tally};
 use crate::log::{census, LogWriter};
-use crate::storage::{RamNorFlash, Scratch, FLASH_LEN, LOG_BASE, LOG_LEN, SLOT_LEN, WRITE};
+use crate::storage::{
+    RamNorFlash, Scratch, FLASH_LEN, LOG_BASE, LOG_LEN, SCRATCH_LEN, SLOT_LEN, WRITE,
+};
 use crate::{emit, say, Line};
 
 /// Flash, store scratch buffer and event log writer.
@@ -95,7 +97,7 @@ impl Persist {
             self.flash.bytes_written
         ));
         say(format_args!(
-            "memory store scratch_bytes={SLOT_LEN} encode_buffer_bytes=0 max_snapshot_bytes={} ram_flash_bytes={FLASH_LEN} (stands in for flash: 2 slots of {SLOT_LEN} + log {LOG_LEN})",
+            "memory store scratch_bytes={SCRATCH_LEN} encode_buffer_bytes=0 max_snapshot_bytes={} ram_flash_bytes={FLASH_LEN} (stands in for flash: 2 slots of {SLOT_LEN} + log {LOG_LEN})",
             steadycal_core::snapshot::MAX_SNAPSHOT_LEN
         ));
         finish(&mut self.flash, self.scratch, channel, self.last_save)
@@ -105,7 +107,7 @@ impl Persist {
 #[cfg(not(feature = "footprint-baseline"))]
 fn save(
     flash: &mut RamNorFlash,
-    scratch: &mut [u8; SLOT_LEN],
+    scratch: &mut [u8; SCRATCH_LEN],
     channel: &Channel,
 ) -> Result<Option<steadycal_core::store::SlotInfo>, &'static str> {
     let mut store = steadycal_core::store::SnapshotStore::new(flash, 0, SLOT_LEN as u32)
@@ -119,7 +121,7 @@ fn save(
 #[cfg(feature = "footprint-baseline")]
 fn save(
     _flash: &mut RamNorFlash,
-    _scratch: &mut [u8; SLOT_LEN],
+    _scratch: &mut [u8; SCRATCH_LEN],
     channel: &Channel,
 ) -> Result<Option<steadycal_core::store::SlotInfo>, &'static str> {
     core::hint::black_box(channel);
@@ -129,7 +131,7 @@ fn save(
 #[cfg(feature = "footprint-baseline")]
 fn finish(
     _flash: &mut RamNorFlash,
-    _scratch: &mut [u8; SLOT_LEN],
+    _scratch: &mut [u8; SCRATCH_LEN],
     _channel: &mut Channel,
     _last: Option<steadycal_core::store::SlotInfo>,
 ) -> Result<(), &'static str> {
@@ -139,7 +141,7 @@ fn finish(
 #[cfg(not(feature = "footprint-baseline"))]
 fn finish(
     flash: &mut RamNorFlash,
-    scratch: &mut [u8; SLOT_LEN],
+    scratch: &mut [u8; SCRATCH_LEN],
     channel: &mut Channel,
     last: Option<steadycal_core::store::SlotInfo>,
 ) -> Result<(), &'static str> {

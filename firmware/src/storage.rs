@@ -15,9 +15,9 @@
 //! One slot is the smallest whole number of sectors that holds the core's bound on the
 //! snapshot of a `Monitor<f32>` (`MAX_SNAPSHOT_LEN`) with the store's sequence number and
 //! CRC (checked at compile time): one sector. The store's scratch buffer ([`SCRATCH`], in
-//! `.bss`) is one slot long (the store asks for a whole slot), and the store encodes a
-//! snapshot straight into it, so no separate encode buffer is needed. With 2 KiB sectors a
-//! slot would be two sectors: the same 4 KiB.
+//! `.bss`) holds one record of that size ([`SCRATCH_LEN`], the core's
+//! `SnapshotStore::scratch_len_for(MAX_SNAPSHOT_LEN)`), not a whole sector, and the store
+//! encodes a snapshot straight into it, so no separate encode buffer is needed.
 //!
 //! The flash cells live in `.bss` (zeroed at reset) and are erased to 0xFF when taken, like
 //! a blank part; they stand in for flash and are not RAM a real board would spend.
@@ -34,8 +34,11 @@ pub const SECTOR: usize = 4096;
 pub const WRITE: usize = 4;
 /// Sectors of one snapshot slot.
 pub const SLOT_SECTORS: usize = (SEQ_LEN + MAX_SNAPSHOT_LEN + CRC_LEN).div_ceil(SECTOR);
-/// Bytes of one snapshot slot (and of the store's scratch buffer).
+/// Bytes of one snapshot slot.
 pub const SLOT_LEN: usize = SLOT_SECTORS * SECTOR;
+/// Bytes of the store's scratch buffer: one record of the largest snapshot (sequence
+/// number, snapshot, slot CRC), rounded to the write unit.
+pub const SCRATCH_LEN: usize = (SEQ_LEN + MAX_SNAPSHOT_LEN + CRC_LEN).div_ceil(WRITE) * WRITE;
 /// Sectors of the event log region.
 pub const LOG_SECTORS: usize = 2;
 /// Start of the event log region.
@@ -51,11 +54,11 @@ const _: () = assert!(SLOT_LEN >= SEQ_LEN + MAX_SNAPSHOT_LEN + CRC_LEN);
 pub const SNAPSHOT_EVERY: u32 = 1000;
 
 static mut CELLS: [u8; FLASH_LEN] = [0; FLASH_LEN];
-static mut SCRATCH: [u8; SLOT_LEN] = [0; SLOT_LEN];
+static mut SCRATCH: [u8; SCRATCH_LEN] = [0; SCRATCH_LEN];
 static mut TAKEN: bool = false;
 
-/// The store's scratch buffer (one slot).
-pub type Scratch = &'static mut [u8; SLOT_LEN];
+/// The store's scratch buffer (one record).
+pub type Scratch = &'static mut [u8; SCRATCH_LEN];
 
 /// What the RAM flash refuses.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
