@@ -198,6 +198,10 @@ fn describe_monitor<R: Real + Display>(monitor: &Monitor<R>) -> Value {
         "samples": counters.samples,
         "checks": counters.checks,
         "readings": counters.readings,
+        // Samples without a reference that got no reading (before the fit is determined).
+        "without_reading": counters
+            .samples
+            .saturating_sub(counters.checks + counters.readings + counters.rejected),
         "rejected": counters.rejected,
         "rung": monitor.rung().name(),
         "params": {
@@ -239,7 +243,7 @@ pub fn human(file: &str, description: &Value) -> String {
     format!(
         "{file}: steadycal snapshot, format version {}, {} bytes ({} payload), CRC-32 {}\n  \
          monitor: {}, {} parameters, {} spread bins, queue of {}\n  \
-         counted: {} samples, {} checks, {} readings, {} rejected\n  \
+         counted: {} samples, {} checks, {} readings, {} without a reading, {} rejected\n  \
          calibration: rung {}, offset {}, gain {}, quadratic {}, temperature {}\n  \
          alarms raised: {}",
         get("format_version"),
@@ -253,6 +257,7 @@ pub fn human(file: &str, description: &Value) -> String {
         get("samples"),
         get("checks"),
         get("readings"),
+        get("without_reading"),
         get("rejected"),
         get("rung").as_str().unwrap_or("?"),
         params["offset"],
