@@ -274,7 +274,13 @@ def compare(expected, actual, path, problems, tolerance=1e-9):
             problems.append(f"{path}: keys differ")
             return
         for key in expected:
-            compare(expected[key], actual[key], f"{path}.{key}", problems, tolerance)
+            # A maximum-likelihood lambda is the output of an optimizer (Brent): it is
+            # reproducible only to the optimizer's tolerance, and numpy's summation takes
+            # CPU-dependent SIMD paths (measured: the committed values, made on an AMD EPYC
+            # machine, recompute 1.8e-7 relative apart on an Intel Xeon). Every closed-form
+            # statistic keeps the 1e-9 tolerance; the Rust tests compare lambda to 1e-4.
+            key_tolerance = max(tolerance, 1e-6) if key == "lambda" else tolerance
+            compare(expected[key], actual[key], f"{path}.{key}", problems, key_tolerance)
     elif isinstance(expected, list):
         if len(expected) != len(actual):
             problems.append(f"{path}: lengths differ")
