@@ -471,11 +471,7 @@ pub fn run_report(run: &RunData) -> Result<String> {
 
     // Timeline.
     let mut rows: Vec<String> = Vec::new();
-    let order = model::ALARM_KINDS.iter().copied().chain([
-        "transform_changed",
-        "mean_misfit",
-        "sample_rejected",
-    ]);
+    let order = model::alarm_kinds().chain(["transform_changed", "mean_misfit", "sample_rejected"]);
     for kind in order {
         let present = run
             .events

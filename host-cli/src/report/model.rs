@@ -16,6 +16,7 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{bail, Context, Result};
 use serde_json::Value;
+use steadycal_core::event::AlarmKind;
 use steadycal_core::monitor::MonitorConfig;
 
 use super::checks::{self, CheckRow};
@@ -37,17 +38,14 @@ pub struct EventRow {
     pub detail: String,
 }
 
-/// Event kinds that raise an alarm which a `cleared` event ends.
-pub const ALARM_KINDS: [&str; 8] = [
-    "bias_shift",
-    "gain_drift",
-    "offset_drift",
-    "spread_jump",
-    "signal_stuck",
-    "signal_out_of_range",
-    "reference_gap",
-    "spread_tracks_level",
-];
+/// Event kinds that raise an alarm which a `cleared` event ends: every alarm kind of the
+/// core except `mean_misfit`, which is reported and never cleared.
+pub fn alarm_kinds() -> impl Iterator<Item = &'static str> {
+    AlarmKind::ALL
+        .into_iter()
+        .filter(|kind| *kind != AlarmKind::MeanMisfit)
+        .map(AlarmKind::name)
+}
 
 impl EventRow {
     /// Reads one JSON event object.
@@ -89,7 +87,7 @@ impl EventRow {
 
     /// True for a raise of an alarm that a `cleared` event ends.
     pub fn raises_alarm(&self) -> bool {
-        ALARM_KINDS.contains(&self.kind.as_str())
+        alarm_kinds().any(|kind| kind == self.kind)
     }
 }
 
