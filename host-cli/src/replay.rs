@@ -64,6 +64,9 @@ pub struct ReplayOptions {
     pub warnings: bool,
     /// Snapshots and device logs: resume, save, input format, log output.
     pub persist: PersistOptions,
+    /// Parse the CSV on a second thread (default). `fleet` turns it off: there the
+    /// channels run in parallel, one thread each. The results are the same either way.
+    pub pipelined: bool,
 }
 
 /// What kind of input a feed is.
@@ -112,6 +115,7 @@ impl ReplayOptions {
             progress: false,
             warnings: true,
             persist: PersistOptions::default(),
+            pipelined: true,
         }
     }
 }
@@ -446,9 +450,11 @@ pub fn replay(options: &ReplayOptions) -> Result<ReplayResult> {
     }
     let input: Box<dyn Read + Send> = Box::new(reader);
     let feed = CsvFeed::new(file, input, &options.columns)?;
-    match options.precision {
-        Precision::F32 => replay_pipelined::<f32>(feed, options),
-        Precision::F64 => replay_pipelined::<f64>(feed, options),
+    match (options.precision, options.pipelined) {
+        (Precision::F32, true) => replay_pipelined::<f32>(feed, options),
+        (Precision::F64, true) => replay_pipelined::<f64>(feed, options),
+        (Precision::F32, false) => replay_inline::<f32>(feed, options),
+        (Precision::F64, false) => replay_inline::<f64>(feed, options),
     }
 }
 
@@ -530,6 +536,26 @@ where
         let rows = receiver.into_iter().flatten();
         replay_rows::<R>(rows, &file, options)
     })
+}
+
+/// The same replay with the CSV parsed on the calling thread, row by row.
+fn replay_inline<R>(
+    mut feed: CsvFeed<Box<dyn Read + Send>>,
+    options: &ReplayOptions,
+) -> Result<ReplayResult>
+where
+    R: Real + FromStr + Display,
+{
+    let file = feed.file().to_string();
+    let rows = std::iter::from_fn(|| {
+        let next = feed.next_sample::<R>()?;
+        Some(ParsedRow {
+            next,
+            line: feed.line(),
+            bytes: feed.bytes_read(),
+        })
+    });
+    replay_rows::<R>(rows, &file, options)
 }
 
 fn write_reading<R: Real + Display>(

@@ -300,6 +300,7 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
             device_log_out: Some(log_path.clone()),
             ..Default::default()
         },
+        pipelined: true,
     };
     let result = replay(&options).expect("host replay");
     assert!(

@@ -127,6 +127,9 @@ fn channel(args: &FleetArgs, feed: &Path) -> FleetRow {
     options.precision = args.monitor.precision;
     options.columns = resolved.columns;
     options.warnings = false;
+    // Channels run in parallel on the pool, one thread each: no parser thread per channel,
+    // so `--jobs N` keeps N cores busy and no more.
+    options.pipelined = false;
     let result = match replay::replay(&options) {
         Ok(result) => result,
         Err(error) => return failed(format!("{error:#}")),
