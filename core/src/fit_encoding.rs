@@ -226,29 +226,17 @@ mod tests {
     fn refuses_shapes_the_fit_cannot_have() {
         let fit = trained::<3>(2);
         let mut buf = [0u8; 256];
-        let bytes = postcard::to_slice(&fit, &mut buf).unwrap().to_vec_free();
+        let bytes = std::vec::Vec::from(&*postcard::to_slice(&fit, &mut buf).unwrap());
         // dim = 0 and dim > P.
-        let mut zero = bytes;
+        let mut zero = bytes.clone();
         zero[0] = 0;
         assert!(postcard::from_bytes::<RecursiveFit<f64, 3>>(&zero).is_err());
-        let mut big = bytes;
+        let mut big = bytes.clone();
         big[0] = 4;
         assert!(postcard::from_bytes::<RecursiveFit<f64, 3>>(&big).is_err());
         // A sequence length that does not match dim.
         let mut wrong = bytes;
         wrong[1] += 1;
         assert!(postcard::from_bytes::<RecursiveFit<f64, 3>>(&wrong).is_err());
-    }
-
-    /// Copies a slice into a fixed array (no alloc in the core's tests either).
-    trait ToFixed {
-        fn to_vec_free(&self) -> [u8; 64];
-    }
-    impl ToFixed for [u8] {
-        fn to_vec_free(&self) -> [u8; 64] {
-            let mut out = [0u8; 64];
-            out[..self.len()].copy_from_slice(self);
-            out
-        }
     }
 }

@@ -517,13 +517,9 @@ where
     std::thread::scope(|scope| {
         scope.spawn(move || {
             let mut batch = Vec::with_capacity(BATCH_ROWS);
-            while let Some(next) = feed.next_sample::<R>() {
-                let stop = next.is_err() && !options.skip_bad_rows;
-                batch.push(ParsedRow {
-                    next,
-                    line: feed.line(),
-                    bytes: feed.bytes_read(),
-                });
+            for row in parsed_rows::<R>(&mut feed) {
+                let stop = row.next.is_err() && !options.skip_bad_rows;
+                batch.push(row);
                 if batch.len() == BATCH_ROWS || stop {
                     let full = std::mem::replace(&mut batch, Vec::with_capacity(BATCH_ROWS));
                     if sender.send(full).is_err() || stop {
@@ -547,15 +543,21 @@ where
     R: Real + FromStr + Display,
 {
     let file = feed.file().to_string();
-    let rows = std::iter::from_fn(|| {
+    replay_rows::<R>(parsed_rows::<R>(&mut feed), &file, options)
+}
+
+/// The feed's rows, each with its line and the bytes read so far.
+fn parsed_rows<R: Real + FromStr>(
+    feed: &mut CsvFeed<Box<dyn Read + Send>>,
+) -> impl Iterator<Item = ParsedRow<R>> + '_ {
+    std::iter::from_fn(move || {
         let next = feed.next_sample::<R>()?;
         Some(ParsedRow {
             next,
             line: feed.line(),
             bytes: feed.bytes_read(),
         })
-    });
-    replay_rows::<R>(rows, &file, options)
+    })
 }
 
 fn write_reading<R: Real + Display>(
