@@ -269,7 +269,9 @@ impl Real for f32 {
     }
     #[inline]
     fn sqrt(self) -> Self {
-        libm::sqrtf(self)
+        // The FPU's instruction on hard-float Arm, libm elsewhere: the same bits (IEEE 754
+        // requires a correctly rounded square root).
+        steadycal_fpu::sqrt_f32(self)
     }
     #[inline]
     fn abs(self) -> Self {

@@ -23,6 +23,7 @@ mod counter;
 mod lines;
 mod log;
 mod persist;
+mod sqrt_check;
 mod storage;
 
 use core::fmt::Write;
@@ -68,6 +69,11 @@ fn run() -> Result<(), &'static str> {
     let (loop_instructions, loop_ticks) = counter.calibrate();
     say(format_args!(
         "counter instructions={loop_instructions} ticks={loop_ticks}"
+    ));
+
+    let (sqrt_inputs, sqrt_mismatches) = sqrt_check::run();
+    say(format_args!(
+        "sqrt_check inputs={sqrt_inputs} mismatches={sqrt_mismatches}"
     ));
 
     let mut monitor = Channel::new(LEVEL_LOW, LEVEL_HIGH)?;

@@ -475,6 +475,12 @@ fn check_persistence(
     assert_eq!(field(line, "read_back_events"), host_events.to_string());
 
     board_line(printed, "restore ok");
+    let sqrt_line = board_line(printed, "sqrt_check");
+    assert_eq!(
+        field(sqrt_line, "mismatches"),
+        "0",
+        "the board's square root differs from libm: {sqrt_line}"
+    );
     eprintln!(
         "final snapshot: {} bytes equal on board and host; {line}",
         host_snapshot.len()
