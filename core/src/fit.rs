@@ -139,12 +139,16 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     /// pads them); they meet zero parameters and are not otherwise read.
     #[inline]
     pub fn update(&mut self, x: &[R; P], y: R, weight: R) -> Result<R, FitError> {
-        if !Self::all_finite(x, y) {
+        if !(Self::all_finite(x, y) && weight.is_finite()) {
             return Err(FitError::NonFinite);
         }
-        let prediction = self.predict(x);
+        if !(weight > R::ZERO) {
+            return Err(FitError::NonPositiveWeight);
+        }
+        let residual = y - self.predict(x);
         let inverse_beta = R::ONE / self.config.forgetting;
-        self.update_checked(x, y, weight, prediction, inverse_beta)
+        self.update_relative_variance(x, residual, R::ONE / weight, inverse_beta)?;
+        Ok(residual)
     }
 
     /// True when every regressor and the response are finite.
@@ -159,40 +163,37 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         probe.is_finite()
     }
 
-    /// [`RecursiveFit::update`] for a caller that has checked `x` and `y` with
-    /// [`RecursiveFit::all_finite`], computed the a-priori prediction `xᵀθ` with
-    /// [`RecursiveFit::predict`] on the same state and `x`, and `1/β` (so that several fits
-    /// fed the same check share that work).
+    /// The update for a caller that has checked `x` with [`RecursiveFit::all_finite`] and
+    /// computed the a-priori `residual = y − xᵀθ` on the same state: `relative_variance` is
+    /// `1/w`, the sample's variance relative to the fit's σ² (a positive value; a non-finite
+    /// one is refused like any update that would leave a non-finite state), and
+    /// `inverse_beta` is `1/β` (so that several fits fed the same check share that work).
     #[inline]
-    pub(crate) fn update_checked(
+    pub(crate) fn update_relative_variance(
         &mut self,
         x: &[R; P],
-        y: R,
-        weight: R,
-        prediction: R,
+        residual: R,
+        relative_variance: R,
         inverse_beta: R,
-    ) -> Result<R, FitError> {
-        if !weight.is_finite() {
-            return Err(FitError::NonFinite);
-        }
-        if !(weight > R::ZERO) {
-            return Err(FitError::NonPositiveWeight);
-        }
-        let residual = y - prediction;
+    ) -> Result<(), FitError> {
+        // Measurement variance β/w of Bierman's observational update.
+        let alpha0 = self.config.forgetting * relative_variance;
         // The loops run over the dimension in use; the common dimensions are written out
         // (the same operations in the same order, so the same bits).
         match self.dim() {
-            2 if P >= 2 => self.update_two(x, weight, residual, inverse_beta),
-            3 if P >= 3 => self.update_three(x, weight, residual, inverse_beta),
-            n => self.update_dim(n, x, weight, residual, inverse_beta),
+            2 if P >= 2 => self.update_two(x, alpha0, residual, inverse_beta),
+            3 if P >= 3 => self.update_three(x, alpha0, residual, inverse_beta),
+            n => self.update_dim(n, x, alpha0, residual, inverse_beta),
         }
     }
 
-    /// The weighted SSE after an update, or `None` when the update produced a non-finite
-    /// value (`probe` is a sum of the new values times zero).
+    /// The weighted SSE after an update, `β·(J + e·(e/α))` with `correction = e/α`, or
+    /// `None` when the update produced a non-finite value (`probe` is a sum of the new
+    /// values, and of `α`, times zero: an `α` that overflowed would otherwise pass as a
+    /// zero gain).
     #[inline(always)]
-    fn new_sse(&self, residual: R, alpha: R, probe: R) -> Option<R> {
-        let sse = self.config.forgetting * (self.weighted_sse + residual * residual / alpha);
+    fn new_sse(&self, residual: R, correction: R, probe: R) -> Option<R> {
+        let sse = self.config.forgetting * (self.weighted_sse + residual * correction);
         (probe + sse * R::ZERO).is_finite().then_some(sse)
     }
 
@@ -226,30 +227,33 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     fn update_two(
         &mut self,
         x: &[R; P],
-        weight: R,
+        alpha0: R,
         residual: R,
         inverse_beta: R,
-    ) -> Result<R, FitError> {
-        let beta = self.config.forgetting;
+    ) -> Result<(), FitError> {
         let u01 = self.u[0][1];
         let f0 = x[0];
         let f1 = x[1] + u01 * x[0];
         let g0 = self.d[0] * f0;
         let g1 = self.d[1] * f1;
-        let alpha0 = beta / weight;
+        // j = 0
         let alpha1 = alpha0 + f0 * g0;
-        let d0 = self.d[0] * (alpha0 / alpha1);
+        let inverse1 = R::ONE / alpha1;
+        let d0 = self.d[0] * (alpha0 * inverse1);
+        // j = 1
         let alpha = alpha1 + f1 * g1;
-        let p1 = -f1 / alpha1;
-        let d1 = self.d[1] * (alpha1 / alpha);
+        let inverse = R::ONE / alpha;
+        let d1 = self.d[1] * (alpha1 * inverse);
+        let p1 = -f1 * inverse1;
         let new_u01 = u01 + g0 * p1;
         let gain0 = g0 + u01 * g1;
         let gain1 = g1;
-        let correction = residual / alpha;
+        let correction = residual * inverse;
         let theta0 = self.theta[0] + gain0 * correction;
         let theta1 = self.theta[1] + gain1 * correction;
         let probe = theta0 * R::ZERO + theta1 * R::ZERO + new_u01 * R::ZERO;
-        let Some(sse) = self.new_sse(residual, alpha, probe) else {
+        let probe = probe + d0 * R::ZERO + d1 * R::ZERO + alpha * R::ZERO;
+        let Some(sse) = self.new_sse(residual, correction, probe) else {
             return Err(FitError::NonFinite);
         };
         self.d[0] = self.forget(d0, inverse_beta);
@@ -258,7 +262,7 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         self.theta[1] = theta1;
         self.u[0][1] = new_u01;
         self.commit(sse);
-        Ok(residual)
+        Ok(())
     }
 
     /// [`RecursiveFit::update_dim`] written out for three parameters (the same operations
@@ -267,11 +271,10 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     fn update_three(
         &mut self,
         x: &[R; P],
-        weight: R,
+        alpha0: R,
         residual: R,
         inverse_beta: R,
-    ) -> Result<R, FitError> {
-        let beta = self.config.forgetting;
+    ) -> Result<(), FitError> {
         let (u01, u02, u12) = (self.u[0][1], self.u[0][2], self.u[1][2]);
         let f0 = x[0];
         let f1 = x[1] + u01 * x[0];
@@ -279,27 +282,29 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         let g0 = self.d[0] * f0;
         let g1 = self.d[1] * f1;
         let g2 = self.d[2] * f2;
-        let alpha0 = beta / weight;
         // j = 0
         let alpha1 = alpha0 + f0 * g0;
-        let d0 = self.d[0] * (alpha0 / alpha1);
+        let inverse1 = R::ONE / alpha1;
+        let d0 = self.d[0] * (alpha0 * inverse1);
         // j = 1
         let alpha2 = alpha1 + f1 * g1;
-        let p1 = -f1 / alpha1;
-        let d1 = self.d[1] * (alpha1 / alpha2);
+        let inverse2 = R::ONE / alpha2;
+        let d1 = self.d[1] * (alpha1 * inverse2);
+        let p1 = -f1 * inverse1;
         let new_u01 = u01 + g0 * p1;
         let gain0 = g0 + u01 * g1;
         let gain1 = g1;
         // j = 2
         let alpha = alpha2 + f2 * g2;
-        let p2 = -f2 / alpha2;
-        let d2 = self.d[2] * (alpha2 / alpha);
+        let inverse = R::ONE / alpha;
+        let d2 = self.d[2] * (alpha2 * inverse);
+        let p2 = -f2 * inverse2;
         let new_u02 = u02 + gain0 * p2;
         let gain0 = gain0 + u02 * g2;
         let new_u12 = u12 + gain1 * p2;
         let gain1 = gain1 + u12 * g2;
         let gain2 = g2;
-        let correction = residual / alpha;
+        let correction = residual * inverse;
         let theta0 = self.theta[0] + gain0 * correction;
         let theta1 = self.theta[1] + gain1 * correction;
         let theta2 = self.theta[2] + gain2 * correction;
@@ -309,7 +314,8 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
             + new_u01 * R::ZERO
             + new_u02 * R::ZERO
             + new_u12 * R::ZERO;
-        let Some(sse) = self.new_sse(residual, alpha, probe) else {
+        let probe = probe + d0 * R::ZERO + d1 * R::ZERO + d2 * R::ZERO + alpha * R::ZERO;
+        let Some(sse) = self.new_sse(residual, correction, probe) else {
             return Err(FitError::NonFinite);
         };
         self.d[0] = self.forget(d0, inverse_beta);
@@ -322,21 +328,22 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         self.u[0][2] = new_u02;
         self.u[1][2] = new_u12;
         self.commit(sse);
-        Ok(residual)
+        Ok(())
     }
 
-    /// Bierman's update for any dimension `n ≤ P` (loops over the parameters in use).
+    /// Bierman's update for any dimension `n ≤ P` (loops over the parameters in use), with
+    /// measurement variance `alpha0 = β/w`. One reciprocal per parameter: `1/α_j` serves
+    /// `D_j`'s update and, at the next parameter, `p = −f/α_j`.
     #[inline(never)]
     fn update_dim(
         &mut self,
         n: usize,
         x: &[R; P],
-        weight: R,
+        alpha0: R,
         residual: R,
         inverse_beta: R,
-    ) -> Result<R, FitError> {
+    ) -> Result<(), FitError> {
         let n = n.min(P);
-        let beta = self.config.forgetting;
 
         // f = Uᵀx, g = D f.
         let mut f = [R::ZERO; P];
@@ -350,47 +357,56 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
             g[j] = self.d[j] * value;
         }
 
-        // Bierman's observational update with measurement variance β/w.
+        // Bierman's observational update.
         let mut u = self.u;
         let mut d = self.d;
         let mut gain = [R::ZERO; P];
-        let mut alpha = beta / weight;
+        let mut alpha = alpha0;
+        let mut inverse_previous = R::ZERO;
         for j in 0..n {
             let alpha_previous = alpha;
             alpha += f[j] * g[j];
-            let p = -f[j] / alpha_previous;
-            d[j] *= alpha_previous / alpha;
-            for i in 0..j {
-                let u_old = u[i][j];
-                u[i][j] = u_old + gain[i] * p;
-                gain[i] += u_old * g[j];
+            let inverse = R::ONE / alpha;
+            d[j] *= alpha_previous * inverse;
+            if j > 0 {
+                let p = -f[j] * inverse_previous;
+                for i in 0..j {
+                    let u_old = u[i][j];
+                    u[i][j] = u_old + gain[i] * p;
+                    gain[i] += u_old * g[j];
+                }
             }
             gain[j] = g[j];
+            inverse_previous = inverse;
         }
-        let correction = residual / alpha;
+        let correction = residual * inverse_previous;
         let mut theta = self.theta;
         let mut probe = R::ZERO;
         for j in 0..n {
             theta[j] += gain[j] * correction;
             probe += theta[j] * R::ZERO;
         }
-        // Forgetting, with the wind-up ceiling and the positivity floor (parameters in use).
-        for value in d.iter_mut().take(n) {
-            *value = self.forget(*value, inverse_beta);
-        }
         for j in 1..n {
             for i in 0..j {
                 probe += u[i][j] * R::ZERO;
             }
         }
-        let Some(sse) = self.new_sse(residual, alpha, probe) else {
+        for value in d.iter().take(n) {
+            probe += *value * R::ZERO;
+        }
+        probe += alpha * R::ZERO;
+        let Some(sse) = self.new_sse(residual, correction, probe) else {
             return Err(FitError::NonFinite);
         };
+        // Forgetting, with the wind-up ceiling and the positivity floor (parameters in use).
+        for value in d.iter_mut().take(n) {
+            *value = self.forget(*value, inverse_beta);
+        }
         self.theta = theta;
         self.u = u;
         self.d = d;
         self.commit(sse);
-        Ok(residual)
+        Ok(())
     }
 
     /// θ (entries past `dim` are zero).

@@ -39,6 +39,8 @@ pub struct LadderConfig<R> {
     /// Levels are divided by this scale before transforming (for example the geometric
     /// mean of the working range).
     pub level_scale: R,
+    /// `1 / level_scale`: the scaling is a multiplication on every check.
+    pub inverse_level_scale: R,
     /// Smallest scaled prediction used for a weight (keeps weights bounded near the origin).
     pub level_floor: R,
     /// Checks before the likelihood sums start (the fits are still poor before).
@@ -106,14 +108,20 @@ struct RungPass<'a, R, const P: usize> {
     x: &'a [R; P],
     raw: R,
     raw_level: R,
-    counting: bool,
-    raw_transforms: Option<([R; RUNG_COUNT], R)>,
-    comparable: bool,
+    /// The likelihood sums have started and the raw value is above the origin: every rung
+    /// computes its transformed residual.
+    comparing: bool,
+    /// `g_λ(raw)` on every rung (zeros when not `comparing`).
+    raw_transforms: [R; RUNG_COUNT],
+    /// Every power rung's own prediction is above the origin so far.
+    predictions_positive: bool,
     transformed: &'a mut [R; RUNG_COUNT],
     /// `x` and `raw` are finite (checked once for every rung's fit).
     fit_inputs_finite: bool,
     /// `1/β`, shared by every rung's fit.
     inverse_beta: R,
+    /// Scaled levels below this floor take it for the rung weights.
+    level_floor: R,
 }
 
 /// Shadow fits on every rung, and the choice between them.
@@ -174,17 +182,27 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         self.checks > config.warm_up
     }
 
-    /// The scaled level `(value − origin) / scale`.
+    /// The scaled level `(value − origin) / scale`, computed as a product with
+    /// `inverse_level_scale`.
     #[inline]
     pub fn scaled_level(config: &LadderConfig<R>, value: R) -> R {
-        (value - config.level_origin) / config.level_scale
+        (value - config.level_origin) * config.inverse_level_scale
     }
 
-    /// Weight of `rung` at raw-scale prediction `prediction` (bounded below by the floor).
+    /// Relative variance `1/w` of `rung` at raw-scale prediction `prediction`, with the
+    /// scaled level bounded below by the floor (a NaN level takes the floor).
+    #[inline]
+    pub fn relative_variance(config: &LadderConfig<R>, rung: Rung, prediction: R) -> R {
+        let scaled = Self::scaled_level(config, prediction);
+        let floor = config.level_floor;
+        rung.relative_variance(if scaled > floor { scaled } else { floor })
+    }
+
+    /// Weight `w` of `rung` at raw-scale prediction `prediction` (the scaled level bounded
+    /// below by the floor): the reciprocal of [`PowerLadder::relative_variance`].
     #[inline]
     pub fn weight(config: &LadderConfig<R>, rung: Rung, prediction: R) -> R {
-        let scaled = Self::scaled_level(config, prediction).max(config.level_floor);
-        rung.weight(scaled)
+        R::ONE / Self::relative_variance(config, rung, prediction)
     }
 
     /// Puts the fit configuration back into every rung's fit after decoding (the fits'
@@ -255,8 +273,8 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         let fit = &self.rungs[rung.index()].fit;
         let prediction = fit.predict(x);
         let variance = fit.residual_variance();
-        let weight = Self::weight(config, rung, prediction);
-        let spread = variance * (R::ONE / weight + fit.leverage(x));
+        let relative = Self::relative_variance(config, rung, prediction);
+        let spread = variance * (relative + fit.leverage(x));
         let standardized = if fit.updates() as usize > fit.dim() && spread > R::ZERO {
             Some((raw - prediction) / spread.sqrt())
         } else {
@@ -330,7 +348,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         // cannot enter the likelihood comparison.
         let raw_transforms = Rung::apply_every(raw_level);
         let below_origin = raw_transforms.is_none();
-        let comparable = !below_origin;
+        let (raw_transforms, ln_raw) = raw_transforms.unwrap_or(([R::ZERO; RUNG_COUNT], R::ZERO));
         let mut transformed = [R::ZERO; RUNG_COUNT];
         // One call per rung with the rung a constant, so each call compiles to that rung's
         // own transform and weight (no dispatch, no loop).
@@ -338,25 +356,31 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             x,
             raw,
             raw_level,
-            counting,
+            comparing: counting && !below_origin,
             raw_transforms,
-            comparable,
+            predictions_positive: true,
             transformed: &mut transformed,
             fit_inputs_finite: RecursiveFit::all_finite(x, raw),
             inverse_beta: R::ONE / config.fit.forgetting,
+            level_floor: config.level_floor,
         };
-        self.step_rung(config, Rung::Identity, &mut pass);
+        self.step_rung(Rung::Identity, config, &mut pass);
         if !below_origin {
-            self.step_rung(config, Rung::Sqrt, &mut pass);
-            self.step_rung(config, Rung::Log, &mut pass);
-            self.step_rung(config, Rung::InvSqrt, &mut pass);
-            self.step_rung(config, Rung::Inverse, &mut pass);
+            self.step_rung(Rung::Sqrt, config, &mut pass);
+            self.step_rung(Rung::Log, config, &mut pass);
+            self.step_rung(Rung::InvSqrt, config, &mut pass);
+            self.step_rung(Rung::Inverse, config, &mut pass);
         }
-        let comparable = pass.comparable;
+        // Comparable when every rung had its transformed residual and all are finite (a
+        // non-finite value makes the sum of v·0 NaN).
+        let comparable = pass.comparing && pass.predictions_positive && {
+            let [a, b, c, d, e] = transformed;
+            (a * R::ZERO + b * R::ZERO + c * R::ZERO + d * R::ZERO + e * R::ZERO).is_finite()
+        };
         self.checks = self.checks.saturating_add(1);
 
         let mut switch = None;
-        if let (true, true, Some((_, ln_raw))) = (counting, comparable, raw_transforms) {
+        if comparable {
             let beta = config.fit.forgetting;
             self.sample_weight = beta * self.sample_weight + R::ONE;
             self.log_level_sum = beta * self.log_level_sum + ln_raw;
@@ -379,42 +403,52 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         }
     }
 
-    /// One rung's part of a check: its transformed residual (while the sample is still
-    /// comparable on every rung) and its fit update.
+    /// One rung's part of a check: its transformed residual (when the check is being
+    /// compared) and its fit update.
     #[inline(always)]
-    fn step_rung(&mut self, config: &LadderConfig<R>, rung: Rung, pass: &mut RungPass<'_, R, P>) {
+    fn step_rung(&mut self, rung: Rung, config: &LadderConfig<R>, pass: &mut RungPass<'_, R, P>) {
         let state = &mut self.rungs[rung.index()];
         let rung_prediction = state.fit.predict(pass.x);
         let level = Self::scaled_level(config, rung_prediction);
-        if pass.counting && pass.comparable {
-            // Transformed residual against the a-priori prediction of this rung.
-            match (pass.raw_transforms, rung.apply(level)) {
-                (Some((g_raw, _)), Some(g_fit)) => {
-                    pass.transformed[rung.index()] = g_raw[rung.index()] - g_fit
-                }
-                _ => pass.comparable = false,
+        if pass.comparing {
+            // Transformed residual against the a-priori prediction of this rung. A power
+            // rung's prediction must be above the origin (checked here; a NaN or infinite
+            // transform is caught by the finiteness probe over all five).
+            let two = R::TWO;
+            let g_fit = match rung {
+                Rung::Identity => level - R::ONE,
+                Rung::Sqrt => two * (level.sqrt() - R::ONE),
+                Rung::Log => level.ln(),
+                Rung::InvSqrt => two * (R::ONE - R::ONE / level.sqrt()),
+                Rung::Inverse => R::ONE - R::ONE / level,
+            };
+            if rung.needs_positive() {
+                pass.predictions_positive &= level > R::ZERO;
             }
+            pass.transformed[rung.index()] = pass.raw_transforms[rung.index()] - g_fit;
         }
         // During warm-up a rung's own prediction can be far off (even negative after two
         // checks), and a weight taken there would dominate the fit for thousands of checks;
         // the observed level is the safe start (iteratively reweighted least squares starts
         // the same way).
-        let weight_level = if pass.counting { level } else { pass.raw_level };
-        // The floor is positive and finite (validated); a NaN level gets the floor, as
-        // with `Real::max`.
-        let floor = config.level_floor;
-        let weight = rung.weight(if weight_level > floor {
+        let weight_level = if pass.comparing {
+            level
+        } else {
+            pass.raw_level
+        };
+        // The floor is positive and finite (validated); a NaN level gets the floor.
+        let floor = pass.level_floor;
+        let relative_variance = rung.relative_variance(if weight_level > floor {
             weight_level
         } else {
             floor
         });
-        // A refused update (non-finite weight) leaves the rung as it was.
+        // A refused update (a non-finite result) leaves the rung as it was.
         if pass.fit_inputs_finite {
-            let _ = state.fit.update_checked(
+            let _ = state.fit.update_relative_variance(
                 pass.x,
-                pass.raw,
-                weight,
-                rung_prediction,
+                pass.raw - rung_prediction,
+                relative_variance,
                 pass.inverse_beta,
             );
         }

@@ -259,6 +259,7 @@ impl<R: Real> MonitorConfig<R> {
             },
             level_origin: self.level_origin,
             level_scale: scale,
+            inverse_level_scale: R::ONE / scale,
             level_floor: self.level_low / scale,
             warm_up: self.warm_up,
             switch_margin: self.switch_margin,
@@ -909,9 +910,9 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         let prediction = fit.predict(&x);
         let slope = basis.slope(&theta, value);
         let rung = self.ladder.active();
-        let weight = PowerLadder::<R, P>::weight(&self.ladder_config, rung, prediction);
-        let variance =
-            fit.residual_variance() * (R::ONE / weight + fit.leverage(&x)) / (slope * slope);
+        let relative =
+            PowerLadder::<R, P>::relative_variance(&self.ladder_config, rung, prediction);
+        let variance = fit.residual_variance() * (relative + fit.leverage(&x)) / (slope * slope);
         let standard_uncertainty = variance.sqrt();
         if !(value.is_finite() && standard_uncertainty.is_finite()) {
             return None;

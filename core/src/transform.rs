@@ -254,6 +254,30 @@ impl Rung {
         }
     }
 
+    /// Relative variance of the transform-both-sides fit at scaled level `u`, the reciprocal
+    /// of [`Rung::weight`]: `u^(2−2λ)` (1, `u`, `u²`, `u³`, `u⁴`), by multiplication only.
+    /// For `u > 0` it is positive (or `+∞` past the range of the type); the caller keeps
+    /// `u` above a positive floor.
+    ///
+    /// ```
+    /// use steadycal_core::transform::Rung;
+    /// assert_eq!(Rung::Log.relative_variance(3.0f64), 9.0);
+    /// assert_eq!(Rung::Inverse.relative_variance(2.0f32), 16.0);
+    /// ```
+    #[inline(always)]
+    pub fn relative_variance<R: Real>(self, u: R) -> R {
+        match self {
+            Rung::Identity => R::ONE,
+            Rung::Sqrt => u,
+            Rung::Log => u * u,
+            Rung::InvSqrt => u * u * u,
+            Rung::Inverse => {
+                let square = u * u;
+                square * square
+            }
+        }
+    }
+
     /// Log-Jacobian `(λ − 1)·ln u` of the transform at `u`, given `ln u`.
     #[inline]
     pub fn log_jacobian<R: Real>(self, ln_u: R) -> R {
