@@ -480,7 +480,25 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
 
     /// One observation of a detector alarm; emits the raise (built by `event` with the
     /// rule's severity) or the `cleared` event.
+    #[inline(always)]
     fn observe_alarm(
+        &mut self,
+        seq: u64,
+        kind: AlarmKind,
+        present: bool,
+        event: impl FnOnce(Severity) -> EventKind<R>,
+        outcome: &mut Outcome<R>,
+    ) {
+        // Nothing to do for an absent signal on an idle alarm (most observations).
+        if !present && self.detectors.alarms.is_idle(kind) {
+            return;
+        }
+        self.observe_alarm_episode(seq, kind, present, event, outcome);
+    }
+
+    /// [`Monitor::observe_alarm`] while an episode is under way or the signal is present.
+    #[inline(never)]
+    fn observe_alarm_episode(
         &mut self,
         seq: u64,
         kind: AlarmKind,

@@ -205,6 +205,14 @@ impl AlarmBoard {
         transition
     }
 
+    /// True when `kind` has no episode under way: an observation without its signal then
+    /// changes nothing and raises nothing (the common case, checked first on every sample).
+    #[inline(always)]
+    pub fn is_idle(&self, kind: AlarmKind) -> bool {
+        let state = &self.states[kind.index()];
+        state.present == 0 && !state.raised
+    }
+
     /// True while any kind is raised.
     #[inline]
     pub fn any_raised(&self) -> bool {
