@@ -45,6 +45,7 @@ use crc::{Crc, CRC_32_ISO_HDLC};
 
 use crate::monitor::{ConfigError, Monitor};
 use crate::real::Real;
+use crate::wire;
 
 /// The four bytes every snapshot starts with.
 pub const MAGIC: [u8; 4] = *b"SCsn";
@@ -338,10 +339,10 @@ impl<'a> Snapshot<'a> {
             });
         }
         let payload = self.payload();
-        let (mut monitor, rest): (Monitor<R, P, BINS, Q>, &[u8]) =
-            postcard::take_from_bytes(payload).map_err(|_| SnapshotError::MalformedPayload)?;
-        if !rest.is_empty() {
-            return Err(SnapshotError::PayloadLeftover { unused: rest.len() });
+        let (mut monitor, unused): (Monitor<R, P, BINS, Q>, usize) =
+            wire::take_from_bytes(payload).map_err(|_| SnapshotError::MalformedPayload)?;
+        if unused != 0 {
+            return Err(SnapshotError::PayloadLeftover { unused });
         }
         monitor.complete_restored()?;
         Ok(monitor)
@@ -368,9 +369,8 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             return Err(too_small);
         }
         let payload_room = capacity - HEADER_LEN - CRC_LEN;
-        let payload_len = postcard::to_slice(self, &mut out[HEADER_LEN..HEADER_LEN + payload_room])
-            .map_err(|_| too_small)?
-            .len();
+        let payload_len = wire::to_slice(self, &mut out[HEADER_LEN..HEADER_LEN + payload_room])
+            .map_err(|_| too_small)?;
         let header = Header {
             version: FORMAT_VERSION,
             layout: Layout::of::<R, P, BINS, Q>(),
