@@ -7,7 +7,8 @@
 //!
 //! ```text
 //! frame  = COBS(record ++ crc16) 0x00
-//! record = postcard encoding of a `Record<R>`
+//! record = postcard encoding of a `Record<R>` (written and read by the core's serde-free
+//!          codec, `crate::wire`, which produces the same bytes)
 //! crc16  = CRC-16/IBM-SDLC of the record bytes, u16 little-endian
 //! ```
 //!

@@ -12,14 +12,16 @@
 //! 8       1     BINS   (spread bins)
 //! 9       1     Q      (event queue capacity)
 //! 10      4     payload length n, u32 little-endian
-//! 14      n     payload: the Monitor, postcard (serde) encoding
+//! 14      n     payload: the Monitor in postcard's wire format (see crate::wire)
 //! 14+n    4     CRC-32/ISO-HDLC of bytes 0 .. 14+n, u32 little-endian
 //! ```
 //!
 //! The payload is the monitor whole: configuration, every rung's fit, the spread profile,
 //! the mean check, the detectors and their alarm states, the baseline, the waiting events
-//! and the counters. postcard writes floats as their raw IEEE 754 bits, so a restore is
-//! bit-exact: a monitor restored from a snapshot behaves exactly as the one that wrote it.
+//! and the counters. The bytes are those postcard + the serde derives write, produced and
+//! read by the core's own serde-free codec (`crate::wire`, smaller on a board; a property
+//! test checks both agree). Floats are their raw IEEE 754 bits, so a restore is bit-exact:
+//! a monitor restored from a snapshot behaves exactly as the one that wrote it.
 //!
 //! # Invariants
 //! - [`Snapshot::parse`] and [`Monitor::restore`] never panic, whatever the bytes; each way
