@@ -172,3 +172,7 @@ mod tests {
         assert!(!check.armed());
     }
 }
+
+/// The snapshot codec of this module's state (private fields; see `crate::wire`).
+#[path = "wire/adequacy.rs"]
+mod wire_codec;

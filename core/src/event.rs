@@ -367,3 +367,7 @@ impl<R: Real, const Q: usize> EventQueue<R, Q> {
         self.dropped
     }
 }
+
+/// The snapshot codec of this module's state (private fields; see `crate::wire`).
+#[path = "wire/event.rs"]
+mod wire_codec;

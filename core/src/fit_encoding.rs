@@ -1,4 +1,6 @@
-//! The serde encoding of a [`RecursiveFit`]: only what the fit uses.
+//! The encoding of a [`RecursiveFit`]: only what the fit uses. Two implementations of
+//! the same bytes: serde (`Serialize`/`Deserialize`, for the host) and [`Wire`] (the
+//! snapshot codec, without serde; see [`crate::wire`]).
 //!
 //! A fit of `dim` parameters in a const-generic capacity `P` stores `θ[..dim]`, `D[..dim]`,
 //! the strict upper triangle of the unit triangular factor `U` of that dimension (row by
@@ -14,7 +16,7 @@
 //!
 //! # Invariants
 //! - Decoding refuses `dim = 0`, `dim > P` and a sequence of any other length than the one
-//!   `dim` implies, so a decoded fit has the shape its loops expect.
+//!   `dim` implies, so a decoded fit has the shape its loops expect (both codecs).
 
 use core::fmt;
 use core::marker::PhantomData;
@@ -25,6 +27,7 @@ use serde::{Deserialize, Deserializer, Serialize, Serializer};
 
 use crate::fit::{FitConfig, RecursiveFit};
 use crate::real::Real;
+use crate::wire::{Reader, Wire, Writer};
 
 /// Numbers written for a fit of `dim` parameters.
 const fn used_len(dim: usize) -> usize {
@@ -173,6 +176,52 @@ impl<'de, R: Real, const P: usize> Visitor<'de> for FitVisitor<R, P> {
 impl<'de, R: Real, const P: usize> Deserialize<'de> for RecursiveFit<R, P> {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
         deserializer.deserialize_tuple(3, FitVisitor::<R, P>(PhantomData))
+    }
+}
+
+impl<R: Real, const P: usize> Wire for RecursiveFit<R, P> {
+    fn put(&self, w: &mut Writer<'_>) {
+        let dim = self.dim();
+        self.dim.put(w);
+        w.varint(used_len(dim) as u64);
+        for x in &self.theta[..dim] {
+            x.put(w);
+        }
+        for x in &self.d[..dim] {
+            x.put(w);
+        }
+        for i in 0..dim {
+            for x in &self.u[i][i + 1..dim] {
+                x.put(w);
+            }
+        }
+        self.weighted_sse.put(w);
+        self.effective.put(w);
+        self.updates.put(w);
+    }
+
+    fn get(r: &mut Reader<'_>) -> Self {
+        let mut dim = r.byte() as usize;
+        if dim == 0 || dim > P || r.len() != used_len(dim) {
+            r.fail();
+            dim = 1;
+        }
+        let mut fit = RecursiveFit::<R, P>::new(dim, placeholder_config());
+        for x in fit.theta[..dim].iter_mut() {
+            *x = R::get(r);
+        }
+        for x in fit.d[..dim].iter_mut() {
+            *x = R::get(r);
+        }
+        for i in 0..dim {
+            for x in fit.u[i][i + 1..dim].iter_mut() {
+                *x = R::get(r);
+            }
+        }
+        fit.weighted_sse = R::get(r);
+        fit.effective = R::get(r);
+        fit.updates = u32::get(r);
+        fit
     }
 }
 

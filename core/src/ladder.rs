@@ -484,3 +484,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         })
     }
 }
+
+/// The snapshot codec of this module's state (private fields; see `crate::wire`).
+#[path = "wire/ladder.rs"]
+mod wire_codec;

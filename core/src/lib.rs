@@ -43,3 +43,4 @@ pub mod snapshot;
 pub mod spread;
 pub mod store;
 pub mod transform;
+mod wire;

@@ -1075,3 +1075,7 @@ mod tests {
         assert!(monitor.drift_status().unwrap().gain_signal());
     }
 }
+
+/// The snapshot codec of this module's state (private fields; see `crate::wire`).
+#[path = "wire/monitor.rs"]
+mod wire_codec;

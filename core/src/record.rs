@@ -7,7 +7,8 @@
 //!
 //! ```text
 //! frame  = COBS(record ++ crc16) 0x00
-//! record = postcard encoding of a `Record<R>`
+//! record = postcard encoding of a `Record<R>` (written and read by the core's serde-free
+//!          codec, `crate::wire`, which produces the same bytes)
 //! crc16  = CRC-16/IBM-SDLC of the record bytes, u16 little-endian
 //! ```
 //!
@@ -32,6 +33,7 @@ use serde::{Deserialize, Serialize};
 use crate::event::Event;
 use crate::real::Real;
 use crate::sample::Sample;
+use crate::wire;
 
 /// The magic of a [`Record::Start`] record.
 pub const LOG_MAGIC: [u8; 4] = *b"SClg";
@@ -130,9 +132,8 @@ impl RecordError {
 /// ```
 pub fn encode_frame<R: Real>(record: &Record<R>, out: &mut [u8]) -> Result<usize, RecordError> {
     let mut raw = [0u8; MAX_RECORD_LEN + 2];
-    let len = postcard::to_slice(record, &mut raw[..MAX_RECORD_LEN])
-        .map_err(|_| RecordError::TooLong)?
-        .len();
+    let len =
+        wire::to_slice(record, &mut raw[..MAX_RECORD_LEN]).map_err(|_| RecordError::TooLong)?;
     let crc = CRC16.checksum(&raw[..len]);
     raw[len..len + 2].copy_from_slice(&crc.to_le_bytes());
     let body = cobs::try_encode(&raw[..len + 2], out).map_err(|_| RecordError::BufferTooSmall)?;
@@ -154,9 +155,9 @@ pub fn decode_frame<R: Real>(frame: &mut [u8]) -> Result<Record<R>, RecordError>
     if CRC16.checksum(bytes) != u16::from_le_bytes([crc[0], crc[1]]) {
         return Err(RecordError::BadCrc);
     }
-    let (record, rest): (Record<R>, &[u8]) =
-        postcard::take_from_bytes(bytes).map_err(|_| RecordError::Malformed)?;
-    if !rest.is_empty() {
+    let (record, unused): (Record<R>, usize) =
+        wire::take_from_bytes(bytes).map_err(|_| RecordError::Malformed)?;
+    if unused != 0 {
         return Err(RecordError::Leftover);
     }
     if let Record::Start(start) = record {

@@ -12,14 +12,16 @@
 //! 8       1     BINS   (spread bins)
 //! 9       1     Q      (event queue capacity)
 //! 10      4     payload length n, u32 little-endian
-//! 14      n     payload: the Monitor, postcard (serde) encoding
+//! 14      n     payload: the Monitor in postcard's wire format (see crate::wire)
 //! 14+n    4     CRC-32/ISO-HDLC of bytes 0 .. 14+n, u32 little-endian
 //! ```
 //!
 //! The payload is the monitor whole: configuration, every rung's fit, the spread profile,
 //! the mean check, the detectors and their alarm states, the baseline, the waiting events
-//! and the counters. postcard writes floats as their raw IEEE 754 bits, so a restore is
-//! bit-exact: a monitor restored from a snapshot behaves exactly as the one that wrote it.
+//! and the counters. The bytes are those postcard + the serde derives write, produced and
+//! read by the core's own serde-free codec (`crate::wire`, smaller on a board; a property
+//! test checks both agree). Floats are their raw IEEE 754 bits, so a restore is bit-exact:
+//! a monitor restored from a snapshot behaves exactly as the one that wrote it.
 //!
 //! # Invariants
 //! - [`Snapshot::parse`] and [`Monitor::restore`] never panic, whatever the bytes; each way
@@ -45,6 +47,7 @@ use crc::{Crc, CRC_32_ISO_HDLC};
 
 use crate::monitor::{ConfigError, Monitor};
 use crate::real::Real;
+use crate::wire;
 
 /// The four bytes every snapshot starts with.
 pub const MAGIC: [u8; 4] = *b"SCsn";
@@ -338,10 +341,10 @@ impl<'a> Snapshot<'a> {
             });
         }
         let payload = self.payload();
-        let (mut monitor, rest): (Monitor<R, P, BINS, Q>, &[u8]) =
-            postcard::take_from_bytes(payload).map_err(|_| SnapshotError::MalformedPayload)?;
-        if !rest.is_empty() {
-            return Err(SnapshotError::PayloadLeftover { unused: rest.len() });
+        let (mut monitor, unused): (Monitor<R, P, BINS, Q>, usize) =
+            wire::take_from_bytes(payload).map_err(|_| SnapshotError::MalformedPayload)?;
+        if unused != 0 {
+            return Err(SnapshotError::PayloadLeftover { unused });
         }
         monitor.complete_restored()?;
         Ok(monitor)
@@ -368,9 +371,8 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             return Err(too_small);
         }
         let payload_room = capacity - HEADER_LEN - CRC_LEN;
-        let payload_len = postcard::to_slice(self, &mut out[HEADER_LEN..HEADER_LEN + payload_room])
-            .map_err(|_| too_small)?
-            .len();
+        let payload_len = wire::to_slice(self, &mut out[HEADER_LEN..HEADER_LEN + payload_room])
+            .map_err(|_| too_small)?;
         let header = Header {
             version: FORMAT_VERSION,
             layout: Layout::of::<R, P, BINS, Q>(),

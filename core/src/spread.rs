@@ -936,3 +936,7 @@ mod tests {
         }
     }
 }
+
+/// The snapshot codec of this module's state (private fields; see `crate::wire`).
+#[path = "wire/spread.rs"]
+mod wire_codec;

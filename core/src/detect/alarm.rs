@@ -312,3 +312,7 @@ mod tests {
         assert_eq!(bad.first_invalid(), Some(AlarmKind::GainDrift));
     }
 }
+
+/// The snapshot codec of this module's state (private fields; see `crate::wire`).
+#[path = "../wire/alarm.rs"]
+mod wire_codec;

@@ -173,3 +173,7 @@ mod tests {
         assert!(!no_interval.is_valid());
     }
 }
+
+/// The snapshot codec of this module's state (private fields; see `crate::wire`).
+#[path = "../wire/cusum.rs"]
+mod wire_codec;

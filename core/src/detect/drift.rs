@@ -476,3 +476,7 @@ mod tests {
             .is_none());
     }
 }
+
+/// The snapshot codec of this module's state (private fields; see `crate::wire`).
+#[path = "../wire/drift.rs"]
+mod wire_codec;

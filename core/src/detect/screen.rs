@@ -278,3 +278,7 @@ mod tests {
         assert_eq!(screen.observe_time(&config, 100.0, false), None);
     }
 }
+
+/// The snapshot codec of this module's state (private fields; see `crate::wire`).
+#[path = "../wire/screen.rs"]
+mod wire_codec;

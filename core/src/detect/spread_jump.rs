@@ -157,3 +157,7 @@ mod tests {
         assert_eq!(cusum.update(&config, f64::NAN), None);
     }
 }
+
+/// The snapshot codec of this module's state (private fields; see `crate::wire`).
+#[path = "../wire/spread_jump.rs"]
+mod wire_codec;

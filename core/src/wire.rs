@@ -1,0 +1,623 @@
+//! A hand-written encoder and decoder of the snapshot payload and the device-log records
+//! that writes exactly the bytes `postcard` (with the serde derives of the state types)
+//! writes, without serde.
+//!
+//! Why: on the board, the serde/postcard code of the whole `Monitor` (visitors, field
+//! identifiers, error plumbing, one monomorphized path per type) took most of the core's
+//! flash (see `firmware/README.md`, "Footprint"). This module is straight-line code per
+//! type. The serde derives stay on every type for the host (JSON, TOML, tests) and are
+//! dead code the linker drops on a board.
+//!
+//! # Wire format (postcard 1.x, as the serde derives drive it)
+//! - `u8` one raw byte; `bool` one byte, 0 or 1.
+//! - `u16`, `u32`, `u64`, `usize` (sequence lengths): unsigned LEB128 varints of at most
+//!   3, 5, 10 bytes (`usize` as `u32` on 32-bit targets, `u64` on 64-bit ones); on the
+//!   last allowed byte only the bits the type still has may be set. Overlong but
+//!   in-range encodings are accepted, as postcard accepts them.
+//! - `f32`/`f64`: raw IEEE 754 bits, little-endian, so every bit (NaN payloads included)
+//!   comes back.
+//! - `Option<T>`: a tag byte 0 (`None`) or 1 (`Some`, then `T`).
+//! - enums: the variant index as a `u32` varint, then the variant's fields.
+//! - structs, tuples and fixed arrays: their fields in order, no length, no names.
+//! - sequences (the event queue, a fit's numbers): a `usize` length, then the elements.
+//!
+//! # Invariants
+//! - Decoding never panics: every read is bounds-checked and any fault (bytes ending, a
+//!   bad tag, bool, varint or variant index, a length the type cannot hold) is a [`Bad`].
+//! - For every value, [`Wire::put`] writes the bytes `postcard::to_slice` writes, and
+//!   [`Wire::get`] accepts exactly the inputs `postcard::take_from_bytes` accepts, with the
+//!   same value (the property tests in `core/tests/wire_equivalence.rs` check both).
+//! - Types with private fields get their impl in a child module of their own module
+//!   (files `core/src/wire/*.rs`), so no field changes visibility.
+
+use core::any::Any;
+
+use crate::basis::Basis;
+use crate::detect::alarm::{AlarmRule, AlarmRules};
+use crate::detect::cusum::CusumConfig;
+use crate::detect::drift::{Baseline, DriftConfig, DriftStatus};
+use crate::detect::screen::ScreenConfig;
+use crate::detect::spread_jump::SpreadJumpConfig;
+use crate::detect::{DetectConfig, DetectorCounts, Detectors};
+use crate::event::{AlarmKind, Direction, Event, EventKind, RejectReason, Severity};
+use crate::fit::FitConfig;
+use crate::ladder::RungState;
+use crate::monitor::{Counters, MonitorConfig};
+use crate::real::Real;
+use crate::record::{LogStart, Record};
+use crate::sample::Sample;
+use crate::spread::{SpreadConfig, SpreadExponent};
+use crate::transform::Rung;
+
+/// The output buffer is full.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) struct Full;
+
+/// The input does not decode.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) struct Bad;
+
+/// Writes into a byte slice, front to back. A write past the end sets a sticky flag
+/// (checked once, by [`to_slice`]) instead of returning an error per field: one branch in
+/// the writer rather than one per field in every encoder keeps the code small.
+pub(crate) struct Writer<'a> {
+    out: &'a mut [u8],
+    at: usize,
+    full: bool,
+}
+
+impl<'a> Writer<'a> {
+    /// A writer at the start of `out`.
+    pub(crate) fn new(out: &'a mut [u8]) -> Self {
+        Writer {
+            out,
+            at: 0,
+            full: false,
+        }
+    }
+
+    /// Appends one byte (or marks the writer full).
+    #[inline(never)]
+    pub(crate) fn byte(&mut self, value: u8) {
+        match self.out.get_mut(self.at) {
+            Some(slot) => {
+                *slot = value;
+                self.at += 1;
+            }
+            None => self.full = true,
+        }
+    }
+
+    /// Appends the `len` low bytes of `bits`, little-endian (a float's raw bits).
+    #[inline(never)]
+    pub(crate) fn bits(&mut self, bits: u64, len: usize) {
+        for byte in bits.to_le_bytes().iter().take(len) {
+            self.byte(*byte);
+        }
+    }
+
+    /// Appends an unsigned LEB128 varint.
+    #[inline(never)]
+    pub(crate) fn varint(&mut self, mut value: u64) {
+        while value >= 0x80 {
+            self.byte(value as u8 | 0x80);
+            value >>= 7;
+        }
+        self.byte(value as u8);
+    }
+}
+
+/// Reads a byte slice, front to back. A fault (bytes ending, a bad tag, varint or
+/// length) sets a sticky flag and the readers return zeros from then on, so decoders are
+/// straight-line code; [`take_from_bytes`] checks the flag once at the end. Every loop a
+/// decoder runs is bounded by a capacity of the type, never by a length read from the
+/// input, so a fault cannot make decoding run long.
+pub(crate) struct Reader<'a> {
+    bytes: &'a [u8],
+    at: usize,
+    bad: bool,
+}
+
+impl<'a> Reader<'a> {
+    /// A reader at the start of `bytes`.
+    pub(crate) fn new(bytes: &'a [u8]) -> Self {
+        Reader {
+            bytes,
+            at: 0,
+            bad: false,
+        }
+    }
+
+    /// Marks the input as not decodable.
+    pub(crate) fn fail(&mut self) {
+        self.bad = true;
+    }
+
+    /// The next byte (0 once the input has failed or ended).
+    #[inline(never)]
+    pub(crate) fn byte(&mut self) -> u8 {
+        match self.bytes.get(self.at) {
+            Some(&value) if !self.bad => {
+                self.at += 1;
+                value
+            }
+            _ => {
+                self.bad = true;
+                0
+            }
+        }
+    }
+
+    /// `len` bytes as the low bytes of a little-endian integer (a float's raw bits).
+    #[inline(never)]
+    pub(crate) fn bits(&mut self, len: usize) -> u64 {
+        let mut bits = 0u64;
+        for i in 0..len.min(8) {
+            bits |= u64::from(self.byte()) << (8 * i);
+        }
+        bits
+    }
+
+    /// A varint of an unsigned type of `bits` bits (16, 32 or 64): at most
+    /// `ceil(bits / 7)` bytes, and the last of those carries only the bits left.
+    #[inline(never)]
+    pub(crate) fn varint(&mut self, bits: u32) -> u64 {
+        let max_len = bits.div_ceil(7);
+        let last_max = (1u8 << (bits % 7)) - 1;
+        let mut out = 0u64;
+        for i in 0..max_len {
+            let byte = self.byte();
+            out |= u64::from(byte & 0x7f) << (7 * i);
+            if byte & 0x80 == 0 {
+                if i == max_len - 1 && byte > last_max {
+                    break;
+                }
+                return out;
+            }
+        }
+        self.bad = true;
+        0
+    }
+
+    /// A sequence length (`usize` varint of this target's pointer width).
+    pub(crate) fn len(&mut self) -> usize {
+        self.varint(usize::BITS) as usize
+    }
+
+    /// An enum variant index (`u32` varint).
+    pub(crate) fn variant(&mut self) -> u32 {
+        self.varint(32) as u32
+    }
+}
+
+/// A value with a postcard-compatible encoding.
+pub(crate) trait Wire: Sized {
+    /// Appends the encoding of `self`.
+    fn put(&self, w: &mut Writer<'_>);
+    /// Reads one value (any value when the reader fails; the caller then discards it).
+    fn get(r: &mut Reader<'_>) -> Self;
+}
+
+/// The encoding of `value` into `out`; returns the length written.
+pub(crate) fn to_slice<T: Wire>(value: &T, out: &mut [u8]) -> Result<usize, Full> {
+    let mut w = Writer::new(out);
+    value.put(&mut w);
+    if w.full {
+        return Err(Full);
+    }
+    Ok(w.at)
+}
+
+/// One value from the front of `bytes`, and the number of bytes left after it.
+pub(crate) fn take_from_bytes<T: Wire>(bytes: &[u8]) -> Result<(T, usize), Bad> {
+    let mut r = Reader::new(bytes);
+    let value = T::get(&mut r);
+    if r.bad {
+        return Err(Bad);
+    }
+    Ok((value, bytes.len() - r.at))
+}
+
+impl<R: Real> Wire for R {
+    #[inline]
+    fn put(&self, w: &mut Writer<'_>) {
+        w.bits(self.to_bits_u64(), (R::BITS / 8) as usize);
+    }
+
+    #[inline]
+    fn get(r: &mut Reader<'_>) -> Self {
+        // `Real` is implemented for `f32` and `f64` only; the downcast is resolved at
+        // compile time and keeps every bit (a NaN payload too), which a conversion
+        // through `f64` would not promise.
+        let bits = r.bits((R::BITS / 8) as usize);
+        let mut value = R::ZERO;
+        let slot: &mut dyn Any = &mut value;
+        if let Some(x) = slot.downcast_mut::<f32>() {
+            *x = f32::from_bits(bits as u32);
+        } else if let Some(x) = slot.downcast_mut::<f64>() {
+            *x = f64::from_bits(bits);
+        } else {
+            r.fail();
+        }
+        value
+    }
+}
+
+impl Wire for u8 {
+    #[inline]
+    fn put(&self, w: &mut Writer<'_>) {
+        w.byte(*self);
+    }
+    #[inline]
+    fn get(r: &mut Reader<'_>) -> Self {
+        r.byte()
+    }
+}
+
+impl Wire for bool {
+    #[inline]
+    fn put(&self, w: &mut Writer<'_>) {
+        w.byte(u8::from(*self));
+    }
+    #[inline]
+    fn get(r: &mut Reader<'_>) -> Self {
+        let byte = r.byte();
+        if byte > 1 {
+            r.fail();
+        }
+        byte == 1
+    }
+}
+
+macro_rules! wire_uint {
+    ($($ty:ty),*) => {$(
+        impl Wire for $ty {
+            #[inline]
+            fn put(&self, w: &mut Writer<'_>) {
+                w.varint(u64::from(*self));
+            }
+            #[inline]
+            fn get(r: &mut Reader<'_>) -> Self {
+                // In range by the last-byte check of `varint`.
+                r.varint(<$ty>::BITS) as $ty
+            }
+        }
+    )*};
+}
+wire_uint!(u16, u32, u64);
+
+impl<T: Wire> Wire for Option<T> {
+    fn put(&self, w: &mut Writer<'_>) {
+        match self {
+            None => w.byte(0),
+            Some(value) => {
+                w.byte(1);
+                value.put(w);
+            }
+        }
+    }
+    fn get(r: &mut Reader<'_>) -> Self {
+        match r.byte() {
+            0 => None,
+            1 => Some(T::get(r)),
+            _ => {
+                r.fail();
+                None
+            }
+        }
+    }
+}
+
+impl<T: Wire + Copy + Default, const N: usize> Wire for [T; N] {
+    fn put(&self, w: &mut Writer<'_>) {
+        for value in self {
+            value.put(w);
+        }
+    }
+    fn get(r: &mut Reader<'_>) -> Self {
+        let mut out = [T::default(); N];
+        for value in out.iter_mut() {
+            *value = T::get(r);
+        }
+        out
+    }
+}
+
+/// `Wire` for a struct: its fields in declaration order, every field listed.
+macro_rules! wire_struct {
+    (impl[$($gen:tt)*] $ty:ty { $($field:ident),* $(,)? }) => {
+        impl<$($gen)*> $crate::wire::Wire for $ty {
+            fn put(&self, w: &mut $crate::wire::Writer<'_>) {
+                $( $crate::wire::Wire::put(&self.$field, w); )*
+            }
+            fn get(r: &mut $crate::wire::Reader<'_>) -> Self {
+                Self { $( $field: $crate::wire::Wire::get(r), )* }
+            }
+        }
+    };
+}
+pub(crate) use wire_struct;
+
+/// `Wire` for an enum of unit variants, listed in declaration order.
+macro_rules! wire_unit_enum {
+    ($ty:ident { $($variant:ident),* $(,)? }) => {
+        impl Wire for $ty {
+            fn put(&self, w: &mut Writer<'_>) {
+                w.varint(*self as u64);
+            }
+            fn get(r: &mut Reader<'_>) -> Self {
+                const ALL: &[$ty] = &[$($ty::$variant),*];
+                match ALL.get(r.variant() as usize) {
+                    Some(&value) => value,
+                    None => {
+                        r.fail();
+                        ALL[0]
+                    }
+                }
+            }
+        }
+    };
+}
+
+wire_unit_enum!(Rung {
+    Identity,
+    Sqrt,
+    Log,
+    InvSqrt,
+    Inverse
+});
+wire_unit_enum!(Severity { Info, Warn, Alarm });
+wire_unit_enum!(Direction { Up, Down });
+wire_unit_enum!(RejectReason {
+    NonFiniteRaw,
+    NonFiniteReference,
+    NonFiniteTemperature,
+    BelowOrigin,
+    OutOfRange,
+    Spike,
+    Stuck,
+});
+wire_unit_enum!(AlarmKind {
+    BiasShift,
+    GainDrift,
+    OffsetDrift,
+    SpreadJump,
+    SignalStuck,
+    SignalOutOfRange,
+    ReferenceGap,
+    SpreadTracksLevel,
+    MeanMisfit,
+});
+
+wire_struct!(impl[R: Real] Basis<R> {
+    quadratic, temperature, reference_scale, temperature_reference, temperature_scale
+});
+wire_struct!(impl[R: Real] FitConfig<R> { forgetting, initial_variance });
+wire_struct!(impl[R: Real] MonitorConfig<R> {
+    basis, forgetting, initial_variance, level_origin, level_low, level_high, warm_up,
+    switch_margin, switch_hold, initial_rung, spread_threshold, spread_every,
+    mean_check_after, mean_check_min_per_bin, mean_check_z, interval_z, coverage_factor,
+    detect,
+});
+wire_struct!(impl[R: Real] DetectConfig<R> { screen, cusum, spread_jump, drift, alarms });
+wire_struct!(impl[R: Real] ScreenConfig<R> {
+    raw_low, raw_high, stuck_run, stuck_window, stuck_response, spike_bound,
+    spike_run_limit, reference_gap_seconds,
+});
+wire_struct!(impl[R: Real] CusumConfig<R> { reference_value, decision_interval });
+wire_struct!(impl[R: Real] SpreadJumpConfig<R> { reference_value, decision_interval });
+wire_struct!(impl[R: Real] DriftConfig<R> {
+    gain_tolerance_percent, offset_tolerance, wald_quantiles, freeze_after, every
+});
+wire_struct!(impl[] AlarmRule { severity, raise_after, clear_after });
+wire_struct!(impl[] AlarmRules {
+    bias_shift, gain_drift, offset_drift, spread_jump, signal_stuck, signal_out_of_range,
+    reference_gap,
+});
+wire_struct!(impl[R: Real] SpreadConfig<R> { level_low, level_high, forgetting });
+wire_struct!(impl[R: Real] SpreadExponent<R> { k, standard_error, bins_used });
+wire_struct!(impl[R: Real, const P: usize] RungState<R, P> { fit, transformed_sse });
+wire_struct!(impl[] Counters { samples, checks, rejected, below_origin, readings });
+wire_struct!(impl[] DetectorCounts {
+    spikes, out_of_range, stuck_samples, unresponsive_windows, cusum_checks, cusum_signals,
+    spread_jump_signals, drift_evaluations, drift_significant, gap_samples,
+});
+wire_struct!(impl[R: Real] Detectors<R> { screen, cusum, spread_jump, drift, alarms, counts });
+wire_struct!(impl[R: Real] Baseline<R> { parameters, covariance });
+wire_struct!(impl[R: Real] DriftStatus<R> {
+    gain_change, gain_uncertainty, offset_change, offset_uncertainty, wald, threshold, dof,
+    significant, gain_beyond_tolerance, offset_beyond_tolerance,
+});
+wire_struct!(impl[R: Real] Event<R> { seq, kind });
+wire_struct!(impl[R: Real] Sample<R> { seq, t, raw, reference, temperature });
+wire_struct!(impl[] LogStart { magic, version, real_bits });
+
+impl<R: Real> Wire for EventKind<R> {
+    fn put(&self, w: &mut Writer<'_>) {
+        match self {
+            EventKind::SpreadTracksLevel { k, k_low, k_high } => {
+                w.byte(0);
+                k.put(w);
+                k_low.put(w);
+                k_high.put(w);
+            }
+            EventKind::TransformChanged { from, to, gain } => {
+                w.byte(1);
+                from.put(w);
+                to.put(w);
+                gain.put(w);
+            }
+            EventKind::MeanMisfit {
+                rung,
+                statistic,
+                dof,
+                suggest_quadratic,
+                suggest_temperature,
+            } => {
+                w.byte(2);
+                rung.put(w);
+                statistic.put(w);
+                dof.put(w);
+                suggest_quadratic.put(w);
+                suggest_temperature.put(w);
+            }
+            EventKind::SampleRejected { reason } => {
+                w.byte(3);
+                reason.put(w);
+            }
+            EventKind::BiasShift {
+                direction,
+                size,
+                severity,
+            } => {
+                w.byte(4);
+                direction.put(w);
+                size.put(w);
+                severity.put(w);
+            }
+            EventKind::GainDrift {
+                change,
+                uncertainty,
+                severity,
+            } => {
+                w.byte(5);
+                change.put(w);
+                uncertainty.put(w);
+                severity.put(w);
+            }
+            EventKind::OffsetDrift {
+                change,
+                uncertainty,
+                severity,
+            } => {
+                w.byte(6);
+                change.put(w);
+                uncertainty.put(w);
+                severity.put(w);
+            }
+            EventKind::SpreadJump { ratio, severity } => {
+                w.byte(7);
+                ratio.put(w);
+                severity.put(w);
+            }
+            EventKind::SignalStuck { run, severity } => {
+                w.byte(8);
+                run.put(w);
+                severity.put(w);
+            }
+            EventKind::SignalOutOfRange { raw, severity } => {
+                w.byte(9);
+                raw.put(w);
+                severity.put(w);
+            }
+            EventKind::ReferenceGap { seconds, severity } => {
+                w.byte(10);
+                seconds.put(w);
+                severity.put(w);
+            }
+            EventKind::Cleared { alarm } => {
+                w.byte(11);
+                alarm.put(w);
+            }
+        }
+    }
+
+    fn get(r: &mut Reader<'_>) -> Self {
+        match r.variant() {
+            0 => EventKind::SpreadTracksLevel {
+                k: Wire::get(r),
+                k_low: Wire::get(r),
+                k_high: Wire::get(r),
+            },
+            1 => EventKind::TransformChanged {
+                from: Wire::get(r),
+                to: Wire::get(r),
+                gain: Wire::get(r),
+            },
+            2 => EventKind::MeanMisfit {
+                rung: Wire::get(r),
+                statistic: Wire::get(r),
+                dof: Wire::get(r),
+                suggest_quadratic: Wire::get(r),
+                suggest_temperature: Wire::get(r),
+            },
+            3 => EventKind::SampleRejected {
+                reason: Wire::get(r),
+            },
+            4 => EventKind::BiasShift {
+                direction: Wire::get(r),
+                size: Wire::get(r),
+                severity: Wire::get(r),
+            },
+            5 => EventKind::GainDrift {
+                change: Wire::get(r),
+                uncertainty: Wire::get(r),
+                severity: Wire::get(r),
+            },
+            6 => EventKind::OffsetDrift {
+                change: Wire::get(r),
+                uncertainty: Wire::get(r),
+                severity: Wire::get(r),
+            },
+            7 => EventKind::SpreadJump {
+                ratio: Wire::get(r),
+                severity: Wire::get(r),
+            },
+            8 => EventKind::SignalStuck {
+                run: Wire::get(r),
+                severity: Wire::get(r),
+            },
+            9 => EventKind::SignalOutOfRange {
+                raw: Wire::get(r),
+                severity: Wire::get(r),
+            },
+            10 => EventKind::ReferenceGap {
+                seconds: Wire::get(r),
+                severity: Wire::get(r),
+            },
+            11 => EventKind::Cleared {
+                alarm: Wire::get(r),
+            },
+            _ => {
+                r.fail();
+                EventKind::Cleared {
+                    alarm: AlarmKind::BiasShift,
+                }
+            }
+        }
+    }
+}
+
+impl<R: Real> Wire for Record<R> {
+    fn put(&self, w: &mut Writer<'_>) {
+        match self {
+            Record::Start(start) => {
+                w.byte(0);
+                start.put(w);
+            }
+            Record::Sample(sample) => {
+                w.byte(1);
+                sample.put(w);
+            }
+            Record::Event(event) => {
+                w.byte(2);
+                event.put(w);
+            }
+        }
+    }
+
+    fn get(r: &mut Reader<'_>) -> Self {
+        match r.variant() {
+            0 => Record::Start(Wire::get(r)),
+            1 => Record::Sample(Wire::get(r)),
+            2 => Record::Event(Wire::get(r)),
+            _ => {
+                r.fail();
+                Record::Start(LogStart::new::<R>())
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests;

@@ -1,0 +1,288 @@
+//! Equivalence of the hand-written codec with postcard + serde: the same bytes for random
+//! monitor states and records, the same verdict (and value) on damaged and random input.
+
+use std::vec::Vec;
+
+use proptest::prelude::*;
+use serde::de::DeserializeOwned;
+use serde::Serialize;
+
+use super::{take_from_bytes, to_slice, Wire};
+use crate::event::{AlarmKind, Direction, Event, EventKind, RejectReason, Severity};
+use crate::monitor::{Monitor, MonitorConfig};
+use crate::real::Real;
+use crate::record::{LogStart, Record};
+use crate::sample::Sample;
+use crate::transform::Rung;
+
+/// postcard's bytes for `value`.
+fn reference<T: Serialize>(value: &T) -> Vec<u8> {
+    let mut buffer = std::vec![0u8; 1 << 14];
+    let len = postcard::to_slice(value, &mut buffer).unwrap().len();
+    buffer.truncate(len);
+    buffer
+}
+
+/// The codec's bytes for `value`.
+fn ours<T: Wire>(value: &T) -> Vec<u8> {
+    let mut buffer = std::vec![0u8; 1 << 14];
+    let len = to_slice(value, &mut buffer).unwrap();
+    buffer.truncate(len);
+    buffer
+}
+
+/// Both decoders on `bytes`: same verdict, and when both decode, the same bytes left and
+/// the same value (compared by its postcard re-encoding).
+fn same_decoding<T: Wire + Serialize + DeserializeOwned>(
+    bytes: &[u8],
+) -> Result<(), TestCaseError> {
+    let theirs = postcard::take_from_bytes::<T>(bytes);
+    let mine = take_from_bytes::<T>(bytes);
+    match (theirs, mine) {
+        (Err(_), Err(_)) => Ok(()),
+        (Ok((a, rest)), Ok((b, unused))) => {
+            prop_assert_eq!(rest.len(), unused);
+            prop_assert_eq!(reference(&a), reference(&b));
+            Ok(())
+        }
+        (theirs, mine) => Err(TestCaseError::fail(std::format!(
+            "postcard ok: {}, codec ok: {} on {bytes:02x?}",
+            theirs.is_ok(),
+            mine.is_ok()
+        ))),
+    }
+}
+
+/// One step of a random feed: a level index, a noise draw, and what kind of sample.
+type Step = (u8, i8, u8);
+
+fn monitor<R: Real, const P: usize>(shape: u8, baseline: bool, steps: &[Step]) -> Monitor<R, P> {
+    let mut config = MonitorConfig::<R>::default_for_range(R::ONE, R::from_f64(100.0));
+    if P >= 3 {
+        config.basis.quadratic = shape == 1;
+        config.basis.temperature = shape == 2;
+    }
+    let mut monitor: Monitor<R, P> = Monitor::new(config).unwrap();
+    if baseline {
+        monitor
+            .set_baseline([R::from_f64(0.3), R::TWO, R::ZERO, R::ZERO], None)
+            .unwrap();
+    }
+    for (i, &(level, noise, kind)) in steps.iter().enumerate() {
+        let seq = i as u64;
+        let reference = R::from_f64(1.0 + f64::from(level % 40) * 2.5);
+        let raw = R::from_f64(0.3)
+            + R::TWO * reference
+            + R::from_f64(f64::from(noise) * 0.01) * reference;
+        let mut sample = match kind % 8 {
+            0..=4 => Sample::check(seq, seq as f64, raw, reference),
+            5 => Sample::reading(seq, seq as f64, raw),
+            6 => Sample::check(
+                seq,
+                seq as f64,
+                R::from_f64(f64::from(noise) * 1e6),
+                reference,
+            ),
+            _ => Sample::check(seq, seq as f64 * 1e3, raw, R::NAN),
+        };
+        sample.temperature = Some(R::from_f64(15.0 + f64::from(kind % 11)));
+        monitor.push(&sample);
+        if kind % 3 == 0 {
+            while monitor.pop_event().is_some() {}
+        }
+    }
+    monitor
+}
+
+fn check_monitor<R: Real, const P: usize>(
+    shape: u8,
+    baseline: bool,
+    steps: &[Step],
+    flips: &[(usize, u8)],
+) -> Result<(), TestCaseError> {
+    let monitor = monitor::<R, P>(shape, baseline, steps);
+    let bytes = ours(&monitor);
+    prop_assert_eq!(&bytes, &reference(&monitor));
+    // Decoding gives back the same state, every byte of it.
+    let (back, unused) = take_from_bytes::<Monitor<R, P>>(&bytes).unwrap();
+    prop_assert_eq!(unused, 0);
+    prop_assert_eq!(ours(&back), bytes.clone());
+    // Damaged: both decoders agree.
+    let mut damaged = bytes.clone();
+    for &(at, value) in flips {
+        let at = at % damaged.len();
+        damaged[at] = value;
+    }
+    same_decoding::<Monitor<R, P>>(&damaged)?;
+    let cut = flips.first().map_or(0, |&(at, _)| at % (bytes.len() + 1));
+    same_decoding::<Monitor<R, P>>(&bytes[..cut])
+}
+
+fn event_kind<R: Real>(variant: u8, a: f64, b: f64, small: u8, run: u32) -> EventKind<R> {
+    let rung = Rung::ALL[usize::from(small) % Rung::ALL.len()];
+    let severity = [Severity::Info, Severity::Warn, Severity::Alarm][usize::from(small) % 3];
+    let (a, b) = (R::from_f64(a), R::from_f64(b));
+    match variant % 12 {
+        0 => EventKind::SpreadTracksLevel {
+            k: a,
+            k_low: b,
+            k_high: a,
+        },
+        1 => EventKind::TransformChanged {
+            from: rung,
+            to: Rung::Log,
+            gain: a,
+        },
+        2 => EventKind::MeanMisfit {
+            rung,
+            statistic: a,
+            dof: small,
+            suggest_quadratic: small & 1 == 1,
+            suggest_temperature: small & 2 == 2,
+        },
+        3 => EventKind::SampleRejected {
+            reason: [
+                RejectReason::NonFiniteRaw,
+                RejectReason::NonFiniteReference,
+                RejectReason::NonFiniteTemperature,
+                RejectReason::BelowOrigin,
+                RejectReason::OutOfRange,
+                RejectReason::Spike,
+                RejectReason::Stuck,
+            ][usize::from(small) % 7],
+        },
+        4 => EventKind::BiasShift {
+            direction: if small & 1 == 1 {
+                Direction::Up
+            } else {
+                Direction::Down
+            },
+            size: a,
+            severity,
+        },
+        5 => EventKind::GainDrift {
+            change: a,
+            uncertainty: b,
+            severity,
+        },
+        6 => EventKind::OffsetDrift {
+            change: a,
+            uncertainty: b,
+            severity,
+        },
+        7 => EventKind::SpreadJump { ratio: a, severity },
+        8 => EventKind::SignalStuck { run, severity },
+        9 => EventKind::SignalOutOfRange { raw: a, severity },
+        10 => EventKind::ReferenceGap {
+            seconds: b.to_f64(),
+            severity,
+        },
+        _ => EventKind::Cleared {
+            alarm: AlarmKind::ALL[usize::from(small) % AlarmKind::COUNT],
+        },
+    }
+}
+
+#[allow(clippy::too_many_arguments)]
+fn check_record<R: Real>(
+    which: u8,
+    seq: u64,
+    a: f64,
+    b: f64,
+    small: u8,
+    run: u32,
+    options: (bool, bool),
+    flips: &[(usize, u8)],
+) -> Result<(), TestCaseError> {
+    let record: Record<R> = match which % 3 {
+        0 => Record::Start(LogStart {
+            magic: *b"SClg",
+            version: run as u16,
+            real_bits: small,
+        }),
+        1 => Record::Sample(Sample {
+            seq,
+            t: b,
+            raw: R::from_f64(a),
+            reference: options.0.then(|| R::from_f64(b)),
+            temperature: options.1.then(|| R::from_f64(a)),
+        }),
+        _ => Record::Event(Event {
+            seq,
+            kind: event_kind(small, a, b, small, run),
+        }),
+    };
+    let bytes = ours(&record);
+    prop_assert_eq!(&bytes, &reference(&record));
+    let (back, unused) = take_from_bytes::<Record<R>>(&bytes).unwrap();
+    prop_assert_eq!(unused, 0);
+    prop_assert_eq!(back, record);
+    let mut damaged = bytes.clone();
+    for &(at, value) in flips {
+        let at = at % damaged.len();
+        damaged[at] = value;
+    }
+    same_decoding::<Record<R>>(&damaged)
+}
+
+fn steps() -> impl Strategy<Value = Vec<Step>> {
+    proptest::collection::vec(any::<Step>(), 0..400)
+}
+
+fn flips() -> impl Strategy<Value = Vec<(usize, u8)>> {
+    proptest::collection::vec(any::<(usize, u8)>(), 1..6)
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(48))]
+
+    #[test]
+    fn monitor_f32_p2(baseline in any::<bool>(), steps in steps(), flips in flips()) {
+        check_monitor::<f32, 2>(0, baseline, &steps, &flips)?;
+    }
+
+    #[test]
+    fn monitor_f32_p3(shape in 0u8..3, baseline in any::<bool>(), steps in steps(), flips in flips()) {
+        check_monitor::<f32, 3>(shape, baseline, &steps, &flips)?;
+    }
+
+    #[test]
+    fn monitor_f64_p2(baseline in any::<bool>(), steps in steps(), flips in flips()) {
+        check_monitor::<f64, 2>(0, baseline, &steps, &flips)?;
+    }
+
+    #[test]
+    fn monitor_f64_p3(shape in 0u8..3, baseline in any::<bool>(), steps in steps(), flips in flips()) {
+        check_monitor::<f64, 3>(shape, baseline, &steps, &flips)?;
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(2000))]
+
+    #[test]
+    fn records_match_postcard(
+        which in any::<u8>(), seq in any::<u64>(), a in any::<f64>(), b in any::<f64>(),
+        small in any::<u8>(), run in any::<u32>(), options in any::<(bool, bool)>(),
+        flips in flips(),
+    ) {
+        check_record::<f32>(which, seq, a, b, small, run, options, &flips)?;
+        check_record::<f64>(which, seq, a, b, small, run, options, &flips)?;
+    }
+
+    #[test]
+    fn random_bytes_decode_alike(bytes in proptest::collection::vec(any::<u8>(), 0..64)) {
+        same_decoding::<Record<f32>>(&bytes)?;
+        same_decoding::<Record<f64>>(&bytes)?;
+        same_decoding::<u16>(&bytes)?;
+        same_decoding::<u32>(&bytes)?;
+        same_decoding::<u64>(&bytes)?;
+        same_decoding::<Option<bool>>(&bytes)?;
+    }
+
+    #[test]
+    fn random_payloads_decode_alike(bytes in proptest::collection::vec(any::<u8>(), 0..1500)) {
+        same_decoding::<Monitor<f32>>(&bytes)?;
+        same_decoding::<Monitor<f64, 2>>(&bytes)?;
+    }
+}
