@@ -187,6 +187,27 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         }
     }
 
+    /// [`RecursiveFit::predict`] for a fit whose caller knows it uses two parameters (the
+    /// same sum in the same order).
+    #[inline(always)]
+    pub(crate) fn predict_two(&self, x: &[R; P]) -> R {
+        x[0] * self.theta[0] + x[1] * self.theta[1]
+    }
+
+    /// [`RecursiveFit::update_relative_variance`] for a fit whose caller has checked that it
+    /// uses two parameters (`dim() == 2`, so `P ≥ 2`): the written-out update, inlined.
+    #[inline(always)]
+    pub(crate) fn update_relative_variance_two(
+        &mut self,
+        x: &[R; P],
+        residual: R,
+        relative_variance: R,
+        inverse_beta: R,
+    ) -> Result<(), FitError> {
+        let alpha0 = self.config.forgetting * relative_variance;
+        self.update_two(x, alpha0, residual, inverse_beta)
+    }
+
     /// The weighted SSE after an update, `β·(J + e·(e/α))` with `correction = e/α`, or
     /// `None` when the update produced a non-finite value (`probe` is a sum of the new
     /// values, and of `α`, times zero: an `α` that overflowed would otherwise pass as a
@@ -490,8 +511,9 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
 
     /// Weighted residual variance σ² = weighted SSE / max(effective samples − dim, 1).
     pub fn residual_variance(&self) -> R {
-        let dof = (self.effective - R::from_u32(self.dim as u32)).max(R::ONE);
-        self.weighted_sse / dof
+        // Both terms are finite counts: a plain comparison (no NaN to order).
+        let dof = self.effective - R::from_u32(self.dim as u32);
+        self.weighted_sse / if dof > R::ONE { dof } else { R::ONE }
     }
 
     /// Exponentially weighted residual sum of squares.

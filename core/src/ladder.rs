@@ -262,7 +262,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
     /// A rung's a-priori prediction and standardized residual
     /// `(raw − f) / √(σ²·(1/w(f) + xᵀPx))` for a check, without changing anything.
     /// The standardized residual is `None` until that rung's fit has a residual variance.
-    #[inline]
+    #[inline(always)]
     pub fn standardized_on(
         &self,
         config: &LadderConfig<R>,
@@ -364,12 +364,12 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             inverse_beta: R::ONE / config.fit.forgetting,
             level_floor: config.level_floor,
         };
-        self.step_rung(Rung::Identity, config, &mut pass);
-        if !below_origin {
-            self.step_rung(Rung::Sqrt, config, &mut pass);
-            self.step_rung(Rung::Log, config, &mut pass);
-            self.step_rung(Rung::InvSqrt, config, &mut pass);
-            self.step_rung(Rung::Inverse, config, &mut pass);
+        // Every rung's fit has the ladder's dimension; the straight line (two parameters)
+        // takes the written-out update inlined into each rung's pass.
+        if P >= 2 && self.rungs[0].fit.dim() == 2 {
+            self.step_every_rung::<true>(config, &mut pass, below_origin);
+        } else {
+            self.step_every_rung::<false>(config, &mut pass, below_origin);
         }
         // Comparable when every rung had its transformed residual and all are finite (a
         // non-finite value makes the sum of v·0 NaN).
@@ -403,12 +403,39 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         }
     }
 
-    /// One rung's part of a check: its transformed residual (when the check is being
-    /// compared) and its fit update.
+    /// Every rung's part of a check (only `identity` when the value is below the origin).
+    /// `TWO`: the fits use two parameters.
     #[inline(always)]
-    fn step_rung(&mut self, rung: Rung, config: &LadderConfig<R>, pass: &mut RungPass<'_, R, P>) {
+    fn step_every_rung<const TWO: bool>(
+        &mut self,
+        config: &LadderConfig<R>,
+        pass: &mut RungPass<'_, R, P>,
+        below_origin: bool,
+    ) {
+        self.step_rung::<TWO>(Rung::Identity, config, pass);
+        if !below_origin {
+            self.step_rung::<TWO>(Rung::Sqrt, config, pass);
+            self.step_rung::<TWO>(Rung::Log, config, pass);
+            self.step_rung::<TWO>(Rung::InvSqrt, config, pass);
+            self.step_rung::<TWO>(Rung::Inverse, config, pass);
+        }
+    }
+
+    /// One rung's part of a check: its transformed residual (when the check is being
+    /// compared) and its fit update. `TWO`: the fit uses two parameters.
+    #[inline(always)]
+    fn step_rung<const TWO: bool>(
+        &mut self,
+        rung: Rung,
+        config: &LadderConfig<R>,
+        pass: &mut RungPass<'_, R, P>,
+    ) {
         let state = &mut self.rungs[rung.index()];
-        let rung_prediction = state.fit.predict(pass.x);
+        let rung_prediction = if TWO {
+            state.fit.predict_two(pass.x)
+        } else {
+            state.fit.predict(pass.x)
+        };
         let level = Self::scaled_level(config, rung_prediction);
         if pass.comparing {
             // Transformed residual against the a-priori prediction of this rung. A power
@@ -445,12 +472,22 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         });
         // A refused update (a non-finite result) leaves the rung as it was.
         if pass.fit_inputs_finite {
-            let _ = state.fit.update_relative_variance(
-                pass.x,
-                pass.raw - rung_prediction,
-                relative_variance,
-                pass.inverse_beta,
-            );
+            let residual = pass.raw - rung_prediction;
+            let _ = if TWO {
+                state.fit.update_relative_variance_two(
+                    pass.x,
+                    residual,
+                    relative_variance,
+                    pass.inverse_beta,
+                )
+            } else {
+                state.fit.update_relative_variance(
+                    pass.x,
+                    residual,
+                    relative_variance,
+                    pass.inverse_beta,
+                )
+            };
         }
     }
 

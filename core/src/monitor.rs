@@ -330,6 +330,11 @@ pub struct Monitor<R, const P: usize = 3, const BINS: usize = 16, const Q: usize
     spread_raised: bool,
     last_exponent: Option<SpreadExponent<R>>,
     detectors: Detectors<R>,
+    /// `ALARM`/`WARNING` for the alarms raised now: derived from the alarm states, updated
+    /// at each raise and clear, so a sample does not scan every alarm; not in a snapshot
+    /// (rebuilt by `complete_restored`).
+    #[serde(skip, default = "Flags::empty")]
+    alarm_flags: Flags,
 }
 
 impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, BINS, Q> {
@@ -348,6 +353,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             spread_raised: false,
             last_exponent: None,
             detectors: Detectors::new(),
+            alarm_flags: Flags::empty(),
         })
     }
 
@@ -370,6 +376,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         if *self.spread.config() != self.config.spread() || !fits_agree {
             return Err(SnapshotError::InconsistentState);
         }
+        self.alarm_flags = self.raised_alarm_flags();
         Ok(())
     }
 
@@ -511,8 +518,12 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             .alarms
             .observe(&self.config.detect.alarms, kind, present)
         {
-            Some(Transition::Raised(severity)) => self.raise(seq, event(severity), outcome),
+            Some(Transition::Raised(severity)) => {
+                self.alarm_flags = self.raised_alarm_flags();
+                self.raise(seq, event(severity), outcome)
+            }
             Some(Transition::Cleared) => {
+                self.alarm_flags = self.raised_alarm_flags();
                 self.raise(seq, EventKind::Cleared { alarm: kind }, outcome)
             }
             None => {}
@@ -561,10 +572,14 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         outcome
     }
 
+    #[inline(always)]
     fn flag_alarms(&self, outcome: &mut Outcome<R>) {
-        if !self.detectors.alarms.any_raised() {
-            return;
-        }
+        outcome.flags.insert(self.alarm_flags);
+    }
+
+    /// `ALARM` and `WARNING` for the severities of the alarms raised now.
+    fn raised_alarm_flags(&self) -> Flags {
+        let mut flags = Flags::empty();
         for severity in self
             .detectors
             .alarms
@@ -573,11 +588,12 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             .flatten()
         {
             match severity {
-                Severity::Alarm => outcome.flags.insert(Flags::ALARM),
-                Severity::Warn => outcome.flags.insert(Flags::WARNING),
+                Severity::Alarm => flags.insert(Flags::ALARM),
+                Severity::Warn => flags.insert(Flags::WARNING),
                 Severity::Info => {}
             }
         }
+        flags
     }
 
     /// The sample-level screen (reference gap, physical range, stuck signal). Returns true

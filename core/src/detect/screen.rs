@@ -145,10 +145,20 @@ impl<R: Real> Screen<R> {
             self.window_prediction_low = prediction;
             self.window_prediction_high = prediction;
         } else {
-            self.window_raw_low = self.window_raw_low.min(raw);
-            self.window_raw_high = self.window_raw_high.max(raw);
-            self.window_prediction_low = self.window_prediction_low.min(prediction);
-            self.window_prediction_high = self.window_prediction_high.max(prediction);
+            // Every value here is finite (raw screened, prediction checked above): plain
+            // comparisons.
+            if raw < self.window_raw_low {
+                self.window_raw_low = raw;
+            }
+            if raw > self.window_raw_high {
+                self.window_raw_high = raw;
+            }
+            if prediction < self.window_prediction_low {
+                self.window_prediction_low = prediction;
+            }
+            if prediction > self.window_prediction_high {
+                self.window_prediction_high = prediction;
+            }
         }
         self.window_checks += 1;
         if self.window_checks < config.stuck_window {
@@ -176,10 +186,16 @@ impl<R: Real> Screen<R> {
         t: f64,
         is_check: bool,
     ) -> Option<f64> {
+        if is_check {
+            if t.is_finite() {
+                self.last_check_t = t;
+            }
+            return None;
+        }
         if !t.is_finite() {
             return None;
         }
-        if is_check || self.last_check_t.is_nan() {
+        if self.last_check_t.is_nan() {
             self.last_check_t = t;
             return None;
         }

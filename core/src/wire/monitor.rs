@@ -1,6 +1,7 @@
 //! [`Wire`] for the monitor: a child of `monitor` for its private fields; the bytes are
 //! postcard's (see [`crate::wire`]). The derived `ladder_config` is not written; decoding
-//! puts a placeholder there, which `complete_restored` replaces.
+//! puts a placeholder there, which `complete_restored` replaces; so are the derived
+//! `alarm_flags`.
 
 use super::{unset_ladder_config, Monitor};
 use crate::real::Real;
@@ -31,6 +32,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Wire for Monito
             spread_raised: Wire::get(r),
             last_exponent: Wire::get(r),
             detectors: Wire::get(r),
+            alarm_flags: crate::sample::Flags::empty(),
         }
     }
 }
