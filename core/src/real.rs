@@ -105,6 +105,10 @@ pub trait Real:
     /// Truncation toward zero to an index, saturating at both ends (NaN gives 0), without
     /// a detour through `f64`.
     fn to_index(self) -> usize;
+    /// True for a finite value above zero (false for NaN and for ±0): one unsigned
+    /// comparison of the bit pattern, whose order is the numbers' order for positive
+    /// values.
+    fn is_positive_finite(self) -> bool;
 
     /// The larger of two values; a NaN argument loses to a number.
     #[inline]
@@ -204,6 +208,10 @@ impl Real for f64 {
     fn to_index(self) -> usize {
         self as usize
     }
+    #[inline]
+    fn is_positive_finite(self) -> bool {
+        self.to_bits().wrapping_sub(1) < f64::INFINITY.to_bits() - 1
+    }
 }
 
 impl Real for f32 {
@@ -293,6 +301,10 @@ impl Real for f32 {
     fn to_index(self) -> usize {
         self as usize
     }
+    #[inline]
+    fn is_positive_finite(self) -> bool {
+        self.to_bits().wrapping_sub(1) < f32::INFINITY.to_bits() - 1
+    }
 }
 
 #[cfg(test)]
@@ -352,6 +364,32 @@ mod tests {
                     "pow({base},{e})"
                 );
             }
+        }
+    }
+
+    #[test]
+    fn bit_comparisons_agree_with_float_comparisons() {
+        let values = [
+            0.0f32,
+            -0.0,
+            1e-45,
+            1e-38,
+            0.5,
+            1.0,
+            3.0,
+            1e6,
+            1e30,
+            f32::MAX,
+            f32::INFINITY,
+            -1.0,
+            -f32::INFINITY,
+            f32::NAN,
+            -f32::NAN,
+        ];
+        for &v in &values {
+            assert_eq!(Real::is_positive_finite(v), v.is_finite() && v > 0.0, "{v}");
+            let w = v as f64;
+            assert_eq!(Real::is_positive_finite(w), w.is_finite() && w > 0.0, "{w}");
         }
     }
 }

@@ -65,7 +65,7 @@ pub const EXPONENT_MIN_BINS: u8 = 3;
 
 /// True for a finite number above zero (false for NaN).
 fn is_positive_finite<R: Real>(value: R) -> bool {
-    value.is_finite() && value > R::ZERO
+    value.is_positive_finite()
 }
 
 /// Settings of a [`SpreadProfile`].
