@@ -5,6 +5,8 @@
 //! both sides through it (Carroll & Ruppert): its residual is `g_λ(raw) − g_λ(f)`. To first
 //! order that is weighted least squares with weight `g_λ'(f)² = f^(2λ−2)`, so each rung is a
 //! [`RecursiveFit`] updated with that weight evaluated at the rung's own current prediction.
+//! The fit takes the weight's reciprocal, the relative variance `f^(2−2λ)`
+//! ([`Rung::relative_variance`]), which needs multiplications only.
 //! A transform therefore changes how the scatter is treated and never bends the line. The
 //! regressor is never transformed.
 //!
@@ -196,13 +198,6 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         let scaled = Self::scaled_level(config, prediction);
         let floor = config.level_floor;
         rung.relative_variance(if scaled > floor { scaled } else { floor })
-    }
-
-    /// Weight `w` of `rung` at raw-scale prediction `prediction` (the scaled level bounded
-    /// below by the floor): the reciprocal of [`PowerLadder::relative_variance`].
-    #[inline]
-    pub fn weight(config: &LadderConfig<R>, rung: Rung, prediction: R) -> R {
-        R::ONE / Self::relative_variance(config, rung, prediction)
     }
 
     /// Puts the fit configuration back into every rung's fit after decoding (the fits'

@@ -316,6 +316,8 @@ mod tests {
                 assert!((rung.derivative(u) - derivative).abs() <= 1e-12 * derivative);
                 let weight = libm::pow(u, 2.0 * lambda - 2.0);
                 assert!((rung.weight(u) - weight).abs() <= 1e-12 * weight);
+                let relative = rung.relative_variance(u);
+                assert!((relative * weight - 1.0).abs() <= 1e-12, "{rung:?} {u}");
             }
         }
     }
