@@ -51,7 +51,9 @@ else
   cargo build --release --target "$target" "$@" >&2
   elf=target/$target/release/steadycal-firmware
 fi
-feed=$(stat -c %s "$(ls -t target/"$target"/release/build/steadycal-firmware-*/out/feed.log | head -n1)")
+# Every device log a build of this target wrote (fast-math builds write their own); the
+# one embedded in the ELF is found by content.
+feeds=$(ls -t target/"$target"/release/build/steadycal-firmware-*/out/feed.log | tr '\n' ' ')
 root=$(cd .. && pwd)
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
@@ -71,12 +73,18 @@ EOF
 llvm-symbolizer --inlining --obj="$elf" <"$work/addresses" >"$work/frames"
 
 echo "target $target $*"
-python3 - "$elf" "$work" "$root" "$feed" <<'EOF'
+python3 - "$elf" "$work" "$root" $feeds <<'EOF'
 import bisect, os, re, struct, sys
 from collections import defaultdict
 
-elf, work, root, feed_len = sys.argv[1], sys.argv[2], sys.argv[3], int(sys.argv[4])
+elf, work, root = sys.argv[1], sys.argv[2], sys.argv[3]
 data = open(elf, "rb").read()
+feed, feed_len = b"", -1
+for path in sys.argv[4:]:
+    candidate = open(path, "rb").read()
+    if data.find(candidate) >= 0:
+        feed, feed_len = candidate, len(candidate)
+        break
 
 # Sections: name -> (address, file offset, size).
 sections = {}
@@ -106,6 +114,10 @@ for line in open(work + "/symbols"):
     elif kind == "OBJECT" and ro_a <= value < ro_a + ro_n and size > 0:
         objects.append((value, size, name))
 func_starts = sorted(funcs)
+# The device log by content (on some targets it has no symbol of its own).
+at = data.find(feed, ro_o, ro_o + ro_n) if feed else -1
+if at >= 0 and not any(o[0] == ro_a + at - ro_o and o[1] == feed_len for o in objects):
+    objects.append((ro_a + at - ro_o, feed_len, "(device log)"))
 objects.sort()
 obj_starts = [o[0] for o in objects]
 
