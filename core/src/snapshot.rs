@@ -330,6 +330,11 @@ impl<'a> Snapshot<'a> {
     }
 
     /// Decodes the monitor (layout, payload and state checked).
+    ///
+    /// Out of line: inlined into a caller with a stack frame above 4 KiB (a board's
+    /// restore path holding a second monitor), every field store of the decoder needs an
+    /// extra address instruction.
+    #[inline(never)]
     pub fn monitor<R: Real, const P: usize, const BINS: usize, const Q: usize>(
         &self,
     ) -> Result<Monitor<R, P, BINS, Q>, SnapshotError> {
