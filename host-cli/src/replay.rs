@@ -21,7 +21,7 @@ use steadycal_core::record::Record;
 use steadycal_core::sample::{Flags, Outcome, Sample};
 use steadycal_core::transform::Rung;
 
-use crate::feed::{ColumnNames, CsvFeed, FeedError};
+use crate::feed::{Batch, ColumnNames, CsvFeed, FeedError, FeedFloat};
 
 /// The caution every report and summary carries.
 pub const CAUTION: &str = "steadycal supports, and does not replace, calibration under the applicable standards, local codes and licensed practice; an alarm cleared by the tool is not a certified calibration.";
@@ -510,27 +510,52 @@ fn replay_pipelined<R>(
     options: &ReplayOptions,
 ) -> Result<ReplayResult>
 where
-    R: Real + FromStr + Display + Send,
+    R: FeedFloat + Display,
 {
     let file = feed.file().to_string();
-    let (sender, receiver) = std::sync::mpsc::sync_channel::<Vec<ParsedRow<R>>>(BATCHES_IN_FLIGHT);
+    let (sender, receiver) = std::sync::mpsc::sync_channel::<Batch<R>>(BATCHES_IN_FLIGHT);
+    // Emptied batches go back to the parsing thread, so no batch is allocated after the
+    // first few.
+    let (recycle, recycled) = std::sync::mpsc::sync_channel::<Batch<R>>(BATCHES_IN_FLIGHT + 2);
     std::thread::scope(|scope| {
-        scope.spawn(move || {
-            let mut batch = Vec::with_capacity(BATCH_ROWS);
-            for row in parsed_rows::<R>(&mut feed) {
-                let stop = row.next.is_err() && !options.skip_bad_rows;
-                batch.push(row);
-                if batch.len() == BATCH_ROWS || stop {
-                    let full = std::mem::replace(&mut batch, Vec::with_capacity(BATCH_ROWS));
-                    if sender.send(full).is_err() || stop {
-                        return;
+        scope.spawn(move || loop {
+            let mut batch = recycled
+                .try_recv()
+                .unwrap_or_else(|_| Batch::with_capacity(BATCH_ROWS));
+            batch.clear();
+            let more = feed.fill_batch(&mut batch, BATCH_ROWS, options.skip_bad_rows);
+            if sender.send(batch).is_err() || !more {
+                return;
+            }
+        });
+        let mut run = Run::<R>::start(&file, options, false)?;
+        'batches: for mut batch in receiver {
+            run.progress(batch.bytes);
+            if batch.errors.is_empty() {
+                for (sample, &line) in batch.samples.iter().zip(&batch.lines) {
+                    run.good(*sample, line)?;
+                }
+            } else {
+                let mut errors = batch.errors.drain(..).peekable();
+                for (index, (sample, &line)) in batch.samples.iter().zip(&batch.lines).enumerate() {
+                    while let Some((_, error)) = errors.next_if(|(at, _)| *at == index) {
+                        if !run.bad(error) {
+                            break 'batches;
+                        }
+                    }
+                    run.good(*sample, line)?;
+                }
+                for (_, error) in errors.by_ref() {
+                    if !run.bad(error) {
+                        break 'batches;
                     }
                 }
             }
-            let _ = sender.send(batch);
-        });
-        let rows = receiver.into_iter().flatten();
-        replay_rows::<R>(rows, &file, options)
+            let _ = recycle.try_send(batch);
+        }
+        run.finish(|map| {
+            map.insert("input_format".into(), json!(InputFormat::Csv));
+        })
     })
 }
 
@@ -540,14 +565,14 @@ fn replay_inline<R>(
     options: &ReplayOptions,
 ) -> Result<ReplayResult>
 where
-    R: Real + FromStr + Display,
+    R: FeedFloat + Display,
 {
     let file = feed.file().to_string();
     replay_rows::<R>(parsed_rows::<R>(&mut feed), &file, options)
 }
 
 /// The feed's rows, each with its line and the bytes read so far.
-fn parsed_rows<R: Real + FromStr>(
+fn parsed_rows<R: FeedFloat>(
     feed: &mut CsvFeed<Box<dyn Read + Send>>,
 ) -> impl Iterator<Item = ParsedRow<R>> + '_ {
     std::iter::from_fn(move || {
@@ -665,74 +690,134 @@ where
     R: Real + FromStr + Display,
     I: Iterator<Item = ParsedRow<R>>,
 {
-    let mut engine = start_engine::<R>(options)?;
-    // A resumed CSV replay numbers its rows on from the samples the snapshot counted, so
-    // that two halves number their events like one whole run.
-    let seq_offset = if !device_log && options.persist.resume.is_some() {
-        engine.monitor.counters().samples
-    } else {
-        0
-    };
-    let mut log_out = options
-        .persist
-        .device_log_out
-        .as_deref()
-        .map(|path| {
-            create_output(path)
-                .and_then(|out| Ok(crate::device_log::DeviceLogWriter::<R>::new(out)?))
-        })
-        .transpose()?;
-    let mut events_out = options.events.as_deref().map(create_output).transpose()?;
-    let mut readings_out = options.readings.as_deref().map(create_output).transpose()?;
-    if let Some(out) = readings_out.as_mut() {
-        writeln!(
-            out,
-            "seq,t,raw,value,standard_uncertainty,expanded_uncertainty,rung,flags"
-        )?;
-    }
-    let mut checks_out = options.checks.as_deref().map(create_output).transpose()?;
-    if let Some(out) = checks_out.as_mut() {
-        writeln!(out, "{}", crate::report::checks::HEADER)?;
-    }
-    let bar = progress_bar(options);
-    let mut error = None;
-    let mut skipped: Vec<SkippedRow> = Vec::new();
-    let mut skipped_count: u64 = 0;
-    let mut rows: u64 = 0;
-    for ParsedRow { next, line, bytes } in rows_in.by_ref() {
-        rows += 1;
-        if rows.is_multiple_of(65_536) {
-            if let Some(bar) = &bar {
-                bar.set_position(bytes);
-            }
+    let mut run = Run::<R>::start(file, options, device_log)?;
+    for row in rows_in.by_ref() {
+        if !run.row(row)? {
+            break;
         }
-        let sample = match next {
-            Ok(mut sample) => {
-                sample.seq += seq_offset;
-                sample
-            }
-            Err(feed_error) => {
-                if options.skip_bad_rows && feed_error.line().is_some() {
-                    if options.warnings && skipped_count == 0 {
-                        eprintln!("steadycal: warning: skipping bad row: {feed_error} (every skipped line is listed in the summary)");
-                    }
-                    skipped_count += 1;
-                    if skipped.len() < LIST_LIMIT {
-                        skipped.push(SkippedRow {
-                            line: feed_error.line().unwrap_or(0),
-                            error: feed_error.to_string(),
-                        });
-                    }
-                    continue;
-                }
-                error = Some(feed_error);
-                break;
-            }
+    }
+    run.finish(|map| finish(&rows_in, map))
+}
+
+/// A replay under way: the engine, the outputs and the bookkeeping of the rows seen.
+struct Run<'a, R: Real> {
+    file: &'a str,
+    options: &'a ReplayOptions,
+    device_log: bool,
+    engine: Engine<R>,
+    seq_offset: u64,
+    log_out: Option<crate::device_log::DeviceLogWriter<R>>,
+    events_out: Option<Box<dyn Write>>,
+    readings_out: Option<Box<dyn Write>>,
+    checks_out: Option<Box<dyn Write>>,
+    bar: Option<indicatif::ProgressBar>,
+    error: Option<FeedError>,
+    skipped: Vec<SkippedRow>,
+    skipped_count: u64,
+    rows: u64,
+}
+
+impl<'a, R: Real + Display> Run<'a, R> {
+    fn start(file: &'a str, options: &'a ReplayOptions, device_log: bool) -> Result<Self> {
+        let engine = start_engine::<R>(options)?;
+        // A resumed CSV replay numbers its rows on from the samples the snapshot counted,
+        // so that two halves number their events like one whole run.
+        let seq_offset = if !device_log && options.persist.resume.is_some() {
+            engine.monitor.counters().samples
+        } else {
+            0
         };
+        let log_out = options
+            .persist
+            .device_log_out
+            .as_deref()
+            .map(|path| {
+                create_output(path)
+                    .and_then(|out| Ok(crate::device_log::DeviceLogWriter::<R>::new(out)?))
+            })
+            .transpose()?;
+        let events_out = options.events.as_deref().map(create_output).transpose()?;
+        let mut readings_out = options.readings.as_deref().map(create_output).transpose()?;
+        if let Some(out) = readings_out.as_mut() {
+            writeln!(
+                out,
+                "seq,t,raw,value,standard_uncertainty,expanded_uncertainty,rung,flags"
+            )?;
+        }
+        let mut checks_out = options.checks.as_deref().map(create_output).transpose()?;
+        if let Some(out) = checks_out.as_mut() {
+            writeln!(out, "{}", crate::report::checks::HEADER)?;
+        }
+        Ok(Run {
+            file,
+            options,
+            device_log,
+            engine,
+            seq_offset,
+            log_out,
+            events_out,
+            readings_out,
+            checks_out,
+            bar: progress_bar(options),
+            error: None,
+            skipped: Vec::new(),
+            skipped_count: 0,
+            rows: 0,
+        })
+    }
+
+    /// Moves the progress bar to `bytes` read.
+    fn progress(&self, bytes: u64) {
+        if let Some(bar) = &self.bar {
+            bar.set_position(bytes);
+        }
+    }
+
+    /// One row, good or bad; false when the run stops here.
+    fn row(&mut self, row: ParsedRow<R>) -> Result<bool> {
+        if (self.rows + 1).is_multiple_of(65_536) {
+            self.progress(row.bytes);
+        }
+        match row.next {
+            Ok(sample) => {
+                self.good(sample, row.line)?;
+                Ok(true)
+            }
+            Err(error) => Ok(self.bad(error)),
+        }
+    }
+
+    /// A bad row: skipped and listed with `--skip-bad-rows` (when it is about one line),
+    /// otherwise the error that stops the run. False when the run stops.
+    fn bad(&mut self, feed_error: FeedError) -> bool {
+        self.rows += 1;
+        if self.options.skip_bad_rows && feed_error.line().is_some() {
+            if self.options.warnings && self.skipped_count == 0 {
+                eprintln!("steadycal: warning: skipping bad row: {feed_error} (every skipped line is listed in the summary)");
+            }
+            self.skipped_count += 1;
+            if self.skipped.len() < LIST_LIMIT {
+                self.skipped.push(SkippedRow {
+                    line: feed_error.line().unwrap_or(0),
+                    error: feed_error.to_string(),
+                });
+            }
+            return true;
+        }
+        self.error = Some(feed_error);
+        false
+    }
+
+    /// A good row, on `line`: time order, the core, and every output.
+    #[inline]
+    fn good(&mut self, mut sample: Sample<R>, line: u64) -> Result<()> {
+        self.rows += 1;
+        sample.seq += self.seq_offset;
         // `seq` stays the 0-based data-row index, skipped rows included, so an event points
         // at its line (line = seq + 2 for a one-line header).
+        let engine = &mut self.engine;
         let step = engine.time_order.check(sample.t, line);
-        if step != TimeStep::Forward && options.warnings {
+        if step != TimeStep::Forward && self.options.warnings {
             let order = &engine.time_order;
             if (step == TimeStep::Repeated && order.repeated == 1)
                 || (step == TimeStep::Backwards && order.backwards == 1)
@@ -743,19 +828,21 @@ where
                     "is before the previous row's time"
                 };
                 eprintln!(
-                    "steadycal: warning: {file}:{line}: time {} {what}; every such row is counted in the summary (`time_order`)",
-                    sample.t
+                    "steadycal: warning: {}:{line}: time {} {what}; every such row is counted in the summary (`time_order`)",
+                    self.file, sample.t
                 );
             }
         }
         let t = sample.t;
-        let before = match checks_out {
+        let before = match self.checks_out {
             Some(_) => crate::report::checks::before(&engine.monitor, &sample),
             None => None,
         };
-        if let Some(log) = log_out.as_mut() {
+        if let Some(log) = self.log_out.as_mut() {
             log.write(&Record::Sample(sample))?;
         }
+        let log_out = &mut self.log_out;
+        let events_out = &mut self.events_out;
         let outcome = engine.push(&sample, |event| {
             if let Some(log) = log_out.as_mut() {
                 log.write(&Record::Event(*event))?;
@@ -768,91 +855,113 @@ where
                 None => Ok(()),
             }
         })?;
-        if let Some(out) = readings_out.as_mut() {
+        if let Some(out) = self.readings_out.as_mut() {
             if sample.reference.is_none() {
                 write_reading(out.as_mut(), &sample, &outcome, engine.monitor.rung())?;
             }
         }
-        if let (Some(out), Some(before)) = (checks_out.as_mut(), before) {
+        if let (Some(out), Some(before)) = (self.checks_out.as_mut(), before) {
             if !outcome.flags.contains(Flags::REJECTED) {
                 crate::report::checks::write_row(out.as_mut(), &engine.monitor, &sample, &before)?;
             }
         }
+        Ok(())
     }
-    if let Some(bar) = bar {
-        bar.finish_and_clear();
-    }
-    if rows == 0 && error.is_none() {
-        error = Some(if device_log {
-            FeedError::NoRecords {
-                file: file.to_string(),
-            }
-        } else {
-            FeedError::NoRows {
-                file: file.to_string(),
-            }
-        });
-    }
-    if let Some(mut out) = events_out {
-        out.flush()?;
-    }
-    if let Some(mut out) = readings_out {
-        out.flush()?;
-    }
-    if let Some(mut out) = checks_out {
-        out.flush()?;
-    }
-    if let Some(mut log) = log_out {
-        log.flush()?;
-    }
-    // The state after the last good row is saved even when a bad row stopped the run.
-    let snapshot_bytes = match &options.persist.save_snapshot {
-        Some(path) => Some(crate::snapshot_file::write(path, &engine.monitor)?),
-        None => None,
-    };
-    let mut summary = engine.summary(file, options.precision, error.as_ref());
-    if let Value::Object(map) = &mut summary {
-        map.insert("rows_skipped".into(), json!(skipped_count));
-        map.insert("skipped_rows".into(), json!(skipped));
-        map.insert(
-            "resumed_from".into(),
-            json!(options
-                .persist
-                .resume
-                .as_ref()
-                .map(|p| p.display().to_string())),
-        );
-        map.insert(
-            "snapshot".into(),
-            match (&options.persist.save_snapshot, snapshot_bytes) {
-                (Some(path), Some(bytes)) => {
-                    json!({"file": path.display().to_string(), "bytes": bytes})
-                }
-                _ => Value::Null,
-            },
-        );
-        finish(&rows_in, map);
-    }
-    if options.warnings {
-        let order = &engine.time_order;
-        if order.repeated + order.backwards > 0 {
-            eprintln!(
-                "steadycal: warning: {file}: {} rows repeat the previous time, {} go backwards",
-                order.repeated, order.backwards
-            );
+
+    /// Flushes the outputs, saves the snapshot and writes the summary; `extra` adds the
+    /// input's own summary entries.
+    fn finish(self, extra: impl FnOnce(&mut Map<String, Value>)) -> Result<ReplayResult> {
+        let Run {
+            file,
+            options,
+            device_log,
+            engine,
+            log_out,
+            events_out,
+            readings_out,
+            checks_out,
+            bar,
+            mut error,
+            skipped,
+            skipped_count,
+            rows,
+            ..
+        } = self;
+        if let Some(bar) = bar {
+            bar.finish_and_clear();
         }
+        if rows == 0 && error.is_none() {
+            error = Some(if device_log {
+                FeedError::NoRecords {
+                    file: file.to_string(),
+                }
+            } else {
+                FeedError::NoRows {
+                    file: file.to_string(),
+                }
+            });
+        }
+        if let Some(mut out) = events_out {
+            out.flush()?;
+        }
+        if let Some(mut out) = readings_out {
+            out.flush()?;
+        }
+        if let Some(mut out) = checks_out {
+            out.flush()?;
+        }
+        if let Some(mut log) = log_out {
+            log.flush()?;
+        }
+        // The state after the last good row is saved even when a bad row stopped the run.
+        let snapshot_bytes = match &options.persist.save_snapshot {
+            Some(path) => Some(crate::snapshot_file::write(path, &engine.monitor)?),
+            None => None,
+        };
+        let mut summary = engine.summary(file, options.precision, error.as_ref());
+        if let Value::Object(map) = &mut summary {
+            map.insert("rows_skipped".into(), json!(skipped_count));
+            map.insert("skipped_rows".into(), json!(skipped));
+            map.insert(
+                "resumed_from".into(),
+                json!(options
+                    .persist
+                    .resume
+                    .as_ref()
+                    .map(|p| p.display().to_string())),
+            );
+            map.insert(
+                "snapshot".into(),
+                match (&options.persist.save_snapshot, snapshot_bytes) {
+                    (Some(path), Some(bytes)) => {
+                        json!({"file": path.display().to_string(), "bytes": bytes})
+                    }
+                    _ => Value::Null,
+                },
+            );
+            extra(map);
+        }
+        if options.warnings {
+            let order = &engine.time_order;
+            if order.repeated + order.backwards > 0 {
+                eprintln!(
+                    "steadycal: warning: {file}: {} rows repeat the previous time, {} go backwards",
+                    order.repeated, order.backwards
+                );
+            }
+        }
+        if let Some(path) = &options.summary {
+            let mut out = create_output(path)?;
+            serde_json::to_writer_pretty(&mut out, &summary)?;
+            out.write_all(b"\n")?;
+            out.flush()?;
+        }
+        Ok(ReplayResult {
+            summary,
+            error,
+            raised: engine.raised,
+        })
     }
-    if let Some(path) = &options.summary {
-        let mut out = create_output(path)?;
-        serde_json::to_writer_pretty(&mut out, &summary)?;
-        out.write_all(b"\n")?;
-        out.flush()?;
-    }
-    Ok(ReplayResult {
-        summary,
-        error,
-        raised: engine.raised,
-    })
 }
 
 /// The summary document of a monitor after a run.
