@@ -13,6 +13,8 @@ use std::path::Path;
 use std::str::FromStr;
 
 use steadycal_core::real::Real;
+
+use crate::decimal::{parse_cell, DecimalFloat};
 use steadycal_core::sample::Sample;
 
 /// Where a value sits in a feed file.
@@ -141,14 +143,189 @@ struct ColumnIndex {
     temperature: Option<usize>,
 }
 
+/// Bytes read from the input at a time.
+pub const READ_BLOCK: usize = 256 << 10;
+
+/// What a feed column is used for.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Role {
+    Skip,
+    Time,
+    Raw,
+    Reference,
+    Temperature,
+}
+
+/// Whether the input is exhausted (same states as the csv crate's reader keeps).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum InputState {
+    Open,
+    End,
+    Failed,
+}
+
+/// The float types a feed is parsed into: `f32` and `f64`.
+pub trait FeedFloat: Real + FromStr + DecimalFloat + Send {}
+impl FeedFloat for f32 {}
+impl FeedFloat for f64 {}
+
 /// A streaming reader of a CSV feed.
+///
+/// Records are split by `csv_core`, the state machine under the `csv` crate, driven the way
+/// the `csv` crate's reader drives it (same record positions, same field-count check). A
+/// row that is a plain line of unquoted numeric cells takes a fast path that splits and
+/// parses it straight from the read buffer; any other row (quotes, carriage returns, blank
+/// lines, blank or non-numeric cells, the wrong number of fields, a row cut by the end of
+/// the buffer) is read by the state machine and parsed cell by cell, which words every
+/// error.
 pub struct CsvFeed<R: Read> {
     file: String,
-    reader: csv::Reader<R>,
+    input: R,
+    buffer: Box<[u8]>,
+    /// Unread bytes are `buffer[start..end]`.
+    start: usize,
+    end: usize,
+    /// The input returned end of file (no further reads).
+    input_done: bool,
+    state: InputState,
+    core: csv_core::Reader,
+    /// Bytes consumed by the record reader.
+    byte: u64,
+    /// Records read, the header included.
+    records: u64,
+    /// The header's field count.
+    expected_fields: Option<u64>,
+    /// The last byte consumed ended a line (the fast path starts only there).
+    after_newline: bool,
+    roles: Box<[Role]>,
     columns: ColumnIndex,
     names: ColumnNames,
     record: csv::ByteRecord,
+    fields: Vec<u8>,
+    ends: Vec<usize>,
     row: u64,
+    /// 1-based line of the last record read (0 before the first).
+    line: u64,
+}
+
+/// Cells of a row read by the fast path.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct FastRow<T> {
+    /// The time cell, when the feed has one.
+    pub t: Option<f64>,
+    /// The raw cell.
+    pub raw: T,
+    /// The reference cell (`None` when empty or absent).
+    pub reference: Option<T>,
+    /// The temperature cell (`None` when empty or absent).
+    pub temperature: Option<T>,
+    /// Bytes of the row, its `\n` included.
+    pub len: usize,
+}
+
+/// Splits and parses one plain row at the start of `bytes` (see [`CsvFeed`]); `None` sends
+/// the row to the general path.
+#[inline(always)]
+fn fast_row<T: DecimalFloat>(bytes: &[u8], roles: &[Role]) -> Option<FastRow<T>> {
+    let mut row = FastRow {
+        t: None,
+        raw: T::ZERO,
+        reference: None,
+        temperature: None,
+        len: 0,
+    };
+    if *bytes.first()? == b'\n' {
+        // A blank line, which the record reader skips.
+        return None;
+    }
+    let mut at = 0;
+    let last = roles.len() - 1;
+    for (index, role) in roles.iter().enumerate() {
+        let delimiter = if index == last { b'\n' } else { b',' };
+        let rest = &bytes[at..];
+        match role {
+            Role::Skip => {
+                let length = rest
+                    .iter()
+                    .position(|&b| matches!(b, b',' | b'\n' | b'"' | b'\r'))?;
+                if rest[length] != delimiter {
+                    return None;
+                }
+                at += length + 1;
+            }
+            Role::Time => {
+                let (value, length) = parse_cell::<f64>(rest, delimiter)?;
+                row.t = Some(value);
+                at += length;
+            }
+            Role::Raw => {
+                let (value, length) = parse_cell::<T>(rest, delimiter)?;
+                row.raw = value;
+                at += length;
+            }
+            Role::Reference | Role::Temperature => {
+                let (value, length) = if *rest.first()? == delimiter {
+                    (None, 1)
+                } else {
+                    let (value, length) = parse_cell::<T>(rest, delimiter)?;
+                    (Some(value), length)
+                };
+                if *role == Role::Reference {
+                    row.reference = value;
+                } else {
+                    row.temperature = value;
+                }
+                at += length;
+            }
+        }
+    }
+    row.len = at;
+    Some(row)
+}
+
+/// Rows parsed in one go for the engine: samples in feed order with their lines, and the
+/// bad rows between them.
+#[derive(Debug)]
+pub struct Batch<R> {
+    /// The good rows.
+    pub samples: Vec<Sample<R>>,
+    /// 1-based line of each good row.
+    pub lines: Vec<u64>,
+    /// Bad rows: `(i, error)` comes before `samples[i]` (after the last sample when
+    /// `i == samples.len()`), in feed order.
+    pub errors: Vec<(usize, FeedError)>,
+    /// Bytes of input read after the batch.
+    pub bytes: u64,
+}
+
+impl<R> Batch<R> {
+    /// An empty batch with room for `rows` rows.
+    pub fn with_capacity(rows: usize) -> Self {
+        Batch {
+            samples: Vec::with_capacity(rows),
+            lines: Vec::with_capacity(rows),
+            errors: Vec::new(),
+            bytes: 0,
+        }
+    }
+
+    /// Empties the batch, keeping its memory.
+    pub fn clear(&mut self) {
+        self.samples.clear();
+        self.lines.clear();
+        self.errors.clear();
+        self.bytes = 0;
+    }
+
+    /// Rows in the batch, bad ones included.
+    pub fn len(&self) -> usize {
+        self.samples.len() + self.errors.len()
+    }
+
+    /// True when the batch holds no row.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
 }
 
 fn shorten(bytes: &[u8]) -> String {
@@ -188,13 +365,13 @@ impl CsvFeed<Box<dyn Read + Send>> {
     pub fn open(path: &Path, names: &ColumnNames) -> Result<Self, FeedError> {
         let file = path.display().to_string();
         let input: Box<dyn Read + Send> = if file == "-" {
-            Box::new(std::io::BufReader::with_capacity(1 << 16, std::io::stdin()))
+            Box::new(std::io::stdin())
         } else {
             let handle = std::fs::File::open(path).map_err(|source| FeedError::Io {
                 file: file.clone(),
                 source,
             })?;
-            Box::new(std::io::BufReader::with_capacity(1 << 16, handle))
+            Box::new(handle)
         };
         CsvFeed::new(file, input, names)
     }
@@ -203,16 +380,38 @@ impl CsvFeed<Box<dyn Read + Send>> {
 impl<R: Read> CsvFeed<R> {
     /// Reads the header of a feed from any reader.
     pub fn new(file: String, input: R, names: &ColumnNames) -> Result<Self, FeedError> {
-        let mut reader = csv::ReaderBuilder::new()
-            .has_headers(true)
-            .flexible(false)
-            .from_reader(input);
-        let header = match reader.byte_headers() {
-            Ok(header) => header.clone(),
-            Err(error) => return Err(csv_error(&file, error)),
+        let mut feed = CsvFeed {
+            file,
+            input,
+            buffer: vec![0; READ_BLOCK].into_boxed_slice(),
+            start: 0,
+            end: 0,
+            input_done: false,
+            state: InputState::Open,
+            core: csv_core::Reader::new(),
+            byte: 0,
+            records: 0,
+            expected_fields: None,
+            after_newline: false,
+            roles: Box::new([]),
+            columns: ColumnIndex {
+                time: None,
+                raw: 0,
+                reference: None,
+                temperature: None,
+            },
+            names: names.clone(),
+            record: csv::ByteRecord::new(),
+            fields: vec![0; 1024],
+            ends: vec![0; 64],
+            row: 0,
+            line: 0,
         };
+        feed.read_record()?;
+        let header = std::mem::take(&mut feed.record);
+        let file = &feed.file;
         if header.is_empty() || (header.len() == 1 && header[0].is_empty()) {
-            return Err(FeedError::Empty { file });
+            return Err(FeedError::Empty { file: file.clone() });
         }
         let find = |name: &str| {
             header.iter().position(|h| {
@@ -233,14 +432,36 @@ impl<R: Read> CsvFeed<R> {
             reference: find(&names.reference),
             temperature: find(&names.temperature),
         };
-        Ok(CsvFeed {
-            file,
-            reader,
-            columns,
-            names: names.clone(),
-            record: csv::ByteRecord::new(),
-            row: 0,
-        })
+        let mut roles = vec![Role::Skip; header.len()];
+        if let Some(index) = columns.time {
+            roles[index] = Role::Time;
+        }
+        roles[raw] = Role::Raw;
+        if let Some(index) = columns.reference {
+            roles[index] = Role::Reference;
+        }
+        if let Some(index) = columns.temperature {
+            roles[index] = Role::Temperature;
+        }
+        let shared = [
+            Some(raw),
+            columns.time,
+            columns.reference,
+            columns.temperature,
+        ];
+        let distinct = shared
+            .iter()
+            .flatten()
+            .enumerate()
+            .all(|(i, a)| shared.iter().flatten().skip(i + 1).all(|b| a != b));
+        feed.roles = if distinct {
+            roles.into_boxed_slice()
+        } else {
+            // One column under two names: leave every row to the general path.
+            Box::new([])
+        };
+        feed.columns = columns;
+        Ok(feed)
     }
 
     /// The file name as given.
@@ -250,17 +471,138 @@ impl<R: Read> CsvFeed<R> {
 
     /// 1-based line number of the last record read (0 before the first).
     pub fn line(&self) -> u64 {
-        self.record.position().map(|p| p.line()).unwrap_or(0)
+        self.line
     }
 
     /// Bytes of input consumed so far (for progress bars).
     pub fn bytes_read(&self) -> u64 {
-        self.reader.position().byte()
+        self.byte
     }
 
     /// True when the feed has a time column.
     pub fn has_time(&self) -> bool {
         self.columns.time.is_some()
+    }
+
+    /// Reads one record with the state machine into `self.record`, as the `csv` crate's
+    /// `Reader::read_byte_record` does: `Ok(false)` at the end (and after an error reading
+    /// the input), a field count other than the header's is an error.
+    fn read_record(&mut self) -> Result<bool, FeedError> {
+        use csv_core::ReadRecordResult;
+        let line = self.core.line();
+        let mut position = csv::Position::new();
+        position
+            .set_byte(self.byte)
+            .set_line(line)
+            .set_record(self.records);
+        self.record.clear();
+        self.record.set_position(Some(position));
+        self.line = line;
+        if self.state != InputState::Open {
+            return Ok(false);
+        }
+        let (mut out_len, mut ends_len) = (0, 0);
+        loop {
+            if self.start == self.end && !self.input_done {
+                self.start = 0;
+                self.end = 0;
+                // The record reader strips a UTF-8 byte order mark only when its first
+                // input holds all three bytes and more (an input of the mark alone reads as
+                // the end): read four bytes before the first record, as a file read gives.
+                let wanted = if self.byte == 0 { 4 } else { 1 };
+                while self.end < wanted && !self.input_done {
+                    match self.input.read(&mut self.buffer[self.end..]) {
+                        Ok(0) => self.input_done = true,
+                        Ok(n) => self.end += n,
+                        Err(source) => {
+                            self.state = InputState::Failed;
+                            return Err(FeedError::Io {
+                                file: self.file.clone(),
+                                source,
+                            });
+                        }
+                    }
+                }
+            }
+            let input = &self.buffer[self.start..self.end];
+            let (result, read, written, ended) = self.core.read_record(
+                input,
+                &mut self.fields[out_len..],
+                &mut self.ends[ends_len..],
+            );
+            if read > 0 {
+                self.after_newline = input[read - 1] == b'\n';
+            }
+            self.start += read;
+            self.byte += read as u64;
+            out_len += written;
+            ends_len += ended;
+            match result {
+                ReadRecordResult::InputEmpty => {}
+                ReadRecordResult::OutputFull => {
+                    let length = self.fields.len().max(4) * 2;
+                    self.fields.resize(length, 0);
+                }
+                ReadRecordResult::OutputEndsFull => {
+                    let length = self.ends.len().max(4) * 2;
+                    self.ends.resize(length, 0);
+                }
+                ReadRecordResult::Record => {
+                    let mut from = 0;
+                    for &to in &self.ends[..ends_len] {
+                        self.record.push_field(&self.fields[from..to]);
+                        from = to;
+                    }
+                    self.records += 1;
+                    let count = ends_len as u64;
+                    return match self.expected_fields {
+                        None => {
+                            self.expected_fields = Some(count);
+                            Ok(true)
+                        }
+                        Some(expected) if expected == count => Ok(true),
+                        Some(expected) => Err(FeedError::BadRow {
+                            location: Location {
+                                file: self.file.clone(),
+                                line,
+                                column: 0,
+                            },
+                            message: format!(
+                                "{count} fields, expected {expected} as in the header"
+                            ),
+                        }),
+                    };
+                }
+                ReadRecordResult::End => {
+                    self.state = InputState::End;
+                    return Ok(false);
+                }
+            }
+        }
+    }
+
+    /// The next row by the fast path, when it is a plain one wholly in the buffer.
+    #[inline(always)]
+    fn next_fast<T: FeedFloat>(&mut self) -> Option<Sample<T>> {
+        if !self.after_newline || self.roles.is_empty() {
+            return None;
+        }
+        let row = fast_row::<T>(&self.buffer[self.start..self.end], &self.roles)?;
+        let line = self.core.line();
+        self.core.set_line(line + 1);
+        self.line = line;
+        self.start += row.len;
+        self.byte += row.len as u64;
+        self.records += 1;
+        let seq = self.row;
+        self.row += 1;
+        Some(Sample {
+            seq,
+            t: row.t.unwrap_or(seq as f64),
+            raw: row.raw,
+            reference: row.reference,
+            temperature: row.temperature,
+        })
     }
 
     fn location(&self, column: usize) -> Location {
@@ -351,13 +693,23 @@ impl<R: Read> CsvFeed<R> {
     }
 
     /// The next sample, `None` at the end of the feed. `seq` is the 0-based data-row index.
-    pub fn next_sample<T: Real + FromStr>(&mut self) -> Option<Result<Sample<T>, FeedError>> {
-        match self.reader.read_byte_record(&mut self.record) {
+    #[inline]
+    pub fn next_sample<T: FeedFloat>(&mut self) -> Option<Result<Sample<T>, FeedError>> {
+        if let Some(sample) = self.next_fast::<T>() {
+            return Some(Ok(sample));
+        }
+        self.next_general()
+    }
+
+    /// The next sample read by the state machine and parsed cell by cell.
+    #[inline(never)]
+    fn next_general<T: FeedFloat>(&mut self) -> Option<Result<Sample<T>, FeedError>> {
+        match self.read_record() {
             Ok(false) => return None,
             Ok(true) => {}
             Err(error) => {
                 self.row += 1;
-                return Some(Err(csv_error(&self.file, error)));
+                return Some(Err(error));
             }
         }
         let seq = self.row;
@@ -365,7 +717,44 @@ impl<R: Read> CsvFeed<R> {
         Some(self.parse_record(seq))
     }
 
-    fn parse_record<T: Real + FromStr>(&self, seq: u64) -> Result<Sample<T>, FeedError> {
+    /// Parses up to `rows` more rows into `batch` (which it does not clear). Returns false
+    /// when the feed is done: its end, an error reading it, or a bad row when `skip_bad` is
+    /// off (the bad row is the batch's last).
+    pub fn fill_batch<T: FeedFloat>(
+        &mut self,
+        batch: &mut Batch<T>,
+        rows: usize,
+        skip_bad: bool,
+    ) -> bool {
+        let target = batch.len() + rows;
+        let more = loop {
+            if batch.len() >= target {
+                break true;
+            }
+            if let Some(sample) = self.next_fast::<T>() {
+                batch.samples.push(sample);
+                batch.lines.push(self.line);
+                continue;
+            }
+            match self.next_general::<T>() {
+                None => break false,
+                Some(Ok(sample)) => {
+                    batch.samples.push(sample);
+                    batch.lines.push(self.line);
+                }
+                Some(Err(error)) => {
+                    batch.errors.push((batch.samples.len(), error));
+                    if !skip_bad {
+                        break false;
+                    }
+                }
+            }
+        };
+        batch.bytes = self.byte;
+        more
+    }
+
+    fn parse_record<T: FeedFloat>(&self, seq: u64) -> Result<Sample<T>, FeedError> {
         let columns = self.columns;
         let names = &self.names;
         let record = std::str::from_utf8(self.record.as_slice()).ok();
@@ -391,38 +780,6 @@ impl<R: Read> CsvFeed<R> {
             reference,
             temperature,
         })
-    }
-}
-
-fn csv_error(file: &str, error: csv::Error) -> FeedError {
-    let line = error.position().map(|p| p.line()).unwrap_or(0);
-    let location = Location {
-        file: file.to_string(),
-        line,
-        column: 0,
-    };
-    match error.into_kind() {
-        csv::ErrorKind::Io(source) => FeedError::Io {
-            file: file.to_string(),
-            source,
-        },
-        csv::ErrorKind::Utf8 { err, .. } => FeedError::BadRow {
-            location: Location {
-                column: err.field() + 1,
-                ..location
-            },
-            message: "invalid UTF-8, expected text".into(),
-        },
-        csv::ErrorKind::UnequalLengths {
-            expected_len, len, ..
-        } => FeedError::BadRow {
-            location,
-            message: format!("{len} fields, expected {expected_len} as in the header"),
-        },
-        other => FeedError::BadRow {
-            location,
-            message: format!("malformed CSV: {other:?}"),
-        },
     }
 }
 

@@ -1,5 +1,5 @@
 //! steadycal-cli: the host side of steadycal, as a library the `steadycal` binary is a thin
-//! layer over: feed reading ([`feed`]), the configuration file ([`config`]), replay and the
+//! layer over: feed reading ([`feed`], numeric cells in [`decimal`]), the configuration file ([`config`]), replay and the
 //! engine shared by every command ([`replay`]), the simulator ([`simulate`]), the batch
 //! assessment of a lab calibration run ([`assess`]), terminal conventions ([`terminal`]) and
 //! the subcommands with their arguments ([`commands`]), snapshot files ([`snapshot_file`])
@@ -9,6 +9,7 @@
 pub mod assess;
 pub mod commands;
 pub mod config;
+pub mod decimal;
 pub mod device_log;
 pub mod feed;
 pub mod replay;

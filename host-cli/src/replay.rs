@@ -21,7 +21,7 @@ use steadycal_core::record::Record;
 use steadycal_core::sample::{Flags, Outcome, Sample};
 use steadycal_core::transform::Rung;
 
-use crate::feed::{ColumnNames, CsvFeed, FeedError};
+use crate::feed::{Batch, ColumnNames, CsvFeed, FeedError, FeedFloat};
 
 /// The caution every report and summary carries.
 pub const CAUTION: &str = "steadycal supports, and does not replace, calibration under the applicable standards, local codes and licensed practice; an alarm cleared by the tool is not a certified calibration.";
@@ -123,36 +123,126 @@ impl ReplayOptions {
 /// A JSON number that prints the shortest decimal that round-trips in the float type used
 /// (so an f32 value prints as `0.1`, not `0.10000000149011612`).
 pub fn number<R: Real + Display>(value: R) -> Value {
-    if !value.is_finite() {
-        return Value::Null;
-    }
-    let shortest = value.to_string();
-    f64::from_str(&shortest)
-        .ok()
+    shortest_f64(value)
         .and_then(serde_json::Number::from_f64)
         .map(Value::Number)
         .unwrap_or(Value::Null)
 }
 
-/// One event as a JSON object: `seq`, `t`, `kind` and the event's fields.
-pub fn event_json<R: Real + Display>(event: &Event<R>, t: f64) -> Value {
-    let mut object = Map::new();
-    object.insert("seq".into(), json!(event.seq));
-    object.insert("t".into(), number(t));
-    object.insert("kind".into(), json!(event.kind.name()));
-    let mut put = |key: &str, value: Value| {
-        object.insert(key.into(), value);
+/// The `f64` that the shortest decimal of `value` in its own type reads as (`None` for
+/// nan and infinities): what [`number`] writes.
+fn shortest_f64<R: Real + Display>(value: R) -> Option<f64> {
+    if !value.is_finite() {
+        return None;
+    }
+    // In f64 the shortest decimal reads back as the value itself (`Display` round-trips).
+    let probe = 1.0 + f64::EPSILON;
+    if std::mem::size_of::<R>() == 8 && R::from_f64(probe).to_f64() == probe {
+        return Some(value.to_f64());
+    }
+    // Otherwise format it, on the stack when it fits.
+    let mut text = StackText::default();
+    if std::fmt::Write::write_fmt(&mut text, format_args!("{value}")).is_ok() {
+        return std::str::from_utf8(text.as_bytes()).ok()?.parse().ok();
+    }
+    f64::from_str(&value.to_string()).ok()
+}
+
+/// A short text formatted without allocating (`Err` when it does not fit).
+struct StackText {
+    bytes: [u8; 64],
+    len: usize,
+}
+
+impl Default for StackText {
+    fn default() -> Self {
+        StackText {
+            bytes: [0; 64],
+            len: 0,
+        }
+    }
+}
+
+impl StackText {
+    fn as_bytes(&self) -> &[u8] {
+        &self.bytes[..self.len]
+    }
+}
+
+impl std::fmt::Write for StackText {
+    fn write_str(&mut self, text: &str) -> std::fmt::Result {
+        let end = self.len + text.len();
+        if end > self.bytes.len() {
+            return Err(std::fmt::Error);
+        }
+        self.bytes[self.len..end].copy_from_slice(text.as_bytes());
+        self.len = end;
+        Ok(())
+    }
+}
+
+/// A value in an event's JSON object.
+#[derive(Clone, Copy, Debug)]
+enum Field {
+    /// A float as [`number`] writes it (`None` is null).
+    Number(Option<f64>),
+    /// An integer.
+    Integer(u64),
+    /// A name.
+    Text(&'static str),
+    /// A flag.
+    Flag(bool),
+}
+
+impl Field {
+    fn value(self) -> Value {
+        match self {
+            Field::Number(number) => number
+                .and_then(serde_json::Number::from_f64)
+                .map(Value::Number)
+                .unwrap_or(Value::Null),
+            Field::Integer(n) => json!(n),
+            Field::Text(text) => json!(text),
+            Field::Flag(flag) => json!(flag),
+        }
+    }
+}
+
+/// Most fields an event has (`mean_misfit`).
+const EVENT_FIELDS: usize = 8;
+
+/// The fields of one event's JSON object: `seq`, `t`, `kind` and the event's own, in the
+/// order of their keys (serde_json's map keeps its keys sorted), with their count.
+fn event_fields<R: Real + Display>(
+    event: &Event<R>,
+    t: f64,
+) -> ([(&'static str, Field); EVENT_FIELDS], usize) {
+    let mut fields = [("", Field::Flag(false)); EVENT_FIELDS];
+    let mut count = 0;
+    let mut put = |key: &'static str, value: Field| {
+        fields[count] = (key, value);
+        count += 1;
     };
+    let number = |value: R| Field::Number(shortest_f64(value));
+    let kind = Field::Text(event.kind.name());
+    let seq = Field::Integer(event.seq);
+    let time = Field::Number(shortest_f64(t));
     match event.kind {
         EventKind::SpreadTracksLevel { k, k_low, k_high } => {
             put("k", number(k));
-            put("k_low", number(k_low));
             put("k_high", number(k_high));
+            put("k_low", number(k_low));
+            put("kind", kind);
+            put("seq", seq);
+            put("t", time);
         }
         EventKind::TransformChanged { from, to, gain } => {
-            put("from", json!(from.name()));
-            put("to", json!(to.name()));
+            put("from", Field::Text(from.name()));
             put("gain", number(gain));
+            put("kind", kind);
+            put("seq", seq);
+            put("t", time);
+            put("to", Field::Text(to.name()));
         }
         EventKind::MeanMisfit {
             rung,
@@ -161,21 +251,32 @@ pub fn event_json<R: Real + Display>(event: &Event<R>, t: f64) -> Value {
             suggest_quadratic,
             suggest_temperature,
         } => {
-            put("rung", json!(rung.name()));
+            put("dof", Field::Integer(u64::from(dof)));
+            put("kind", kind);
+            put("rung", Field::Text(rung.name()));
+            put("seq", seq);
             put("statistic", number(statistic));
-            put("dof", json!(dof));
-            put("suggest_quadratic", json!(suggest_quadratic));
-            put("suggest_temperature", json!(suggest_temperature));
+            put("suggest_quadratic", Field::Flag(suggest_quadratic));
+            put("suggest_temperature", Field::Flag(suggest_temperature));
+            put("t", time);
         }
-        EventKind::SampleRejected { reason } => put("reason", json!(reason.name())),
+        EventKind::SampleRejected { reason } => {
+            put("kind", kind);
+            put("reason", Field::Text(reason.name()));
+            put("seq", seq);
+            put("t", time);
+        }
         EventKind::BiasShift {
             direction,
             size,
             severity,
         } => {
-            put("direction", json!(direction.name()));
+            put("direction", Field::Text(direction.name()));
+            put("kind", kind);
+            put("seq", seq);
+            put("severity", Field::Text(severity.name()));
             put("size", number(size));
-            put("severity", json!(severity.name()));
+            put("t", time);
         }
         EventKind::GainDrift {
             change,
@@ -188,28 +289,143 @@ pub fn event_json<R: Real + Display>(event: &Event<R>, t: f64) -> Value {
             severity,
         } => {
             put("change", number(change));
+            put("kind", kind);
+            put("seq", seq);
+            put("severity", Field::Text(severity.name()));
+            put("t", time);
             put("uncertainty", number(uncertainty));
-            put("severity", json!(severity.name()));
         }
         EventKind::SpreadJump { ratio, severity } => {
+            put("kind", kind);
             put("ratio", number(ratio));
-            put("severity", json!(severity.name()));
+            put("seq", seq);
+            put("severity", Field::Text(severity.name()));
+            put("t", time);
         }
         EventKind::SignalStuck { run, severity } => {
-            put("run", json!(run));
-            put("severity", json!(severity.name()));
+            put("kind", kind);
+            put("run", Field::Integer(u64::from(run)));
+            put("seq", seq);
+            put("severity", Field::Text(severity.name()));
+            put("t", time);
         }
         EventKind::SignalOutOfRange { raw, severity } => {
+            put("kind", kind);
             put("raw", number(raw));
-            put("severity", json!(severity.name()));
+            put("seq", seq);
+            put("severity", Field::Text(severity.name()));
+            put("t", time);
         }
         EventKind::ReferenceGap { seconds, severity } => {
-            put("seconds", number(seconds));
-            put("severity", json!(severity.name()));
+            put("kind", kind);
+            put("seconds", Field::Number(shortest_f64(seconds)));
+            put("seq", seq);
+            put("severity", Field::Text(severity.name()));
+            put("t", time);
         }
-        EventKind::Cleared { alarm } => put("alarm", json!(alarm.name())),
+        EventKind::Cleared { alarm } => {
+            put("alarm", Field::Text(alarm.name()));
+            put("kind", kind);
+            put("seq", seq);
+            put("t", time);
+        }
     }
+    debug_assert!(fields[..count].is_sorted_by_key(|(key, _)| *key));
+    (fields, count)
+}
+
+/// One event as a JSON object: `seq`, `t`, `kind` and the event's fields.
+pub fn event_json<R: Real + Display>(event: &Event<R>, t: f64) -> Value {
+    let (fields, count) = event_fields(event, t);
+    let object: Map<String, Value> = fields[..count]
+        .iter()
+        .map(|(key, field)| (key.to_string(), field.value()))
+        .collect();
     Value::Object(object)
+}
+
+/// Writes [`event_json`]'s object as `serde_json::to_writer` does (keys in order, no
+/// spaces), without building it: the events file of a run with many events is written
+/// several times faster. Keys and names are plain identifiers, written without escaping
+/// (the unit tests compare every kind and name with serde_json's output).
+pub fn write_event<R: Real + Display>(
+    out: &mut dyn Write,
+    event: &Event<R>,
+    t: f64,
+) -> std::io::Result<()> {
+    let (fields, count) = event_fields(event, t);
+    let mut line = LineBuffer::default();
+    if write_fields(&mut line, &fields[..count]).is_ok() {
+        return out.write_all(line.as_bytes());
+    }
+    // Longer than any event line can be; kept for safety.
+    serde_json::to_writer(&mut *out, &event_json(event, t))?;
+    Ok(())
+}
+
+fn write_fields(line: &mut LineBuffer, fields: &[(&'static str, Field)]) -> std::io::Result<()> {
+    line.write_all(b"{")?;
+    for (index, (key, field)) in fields.iter().enumerate() {
+        if index > 0 {
+            line.write_all(b",")?;
+        }
+        line.write_all(b"\"")?;
+        line.write_all(key.as_bytes())?;
+        line.write_all(b"\":")?;
+        match *field {
+            Field::Number(Some(number)) => serde_json::to_writer(&mut *line, &number)?,
+            Field::Number(None) => line.write_all(b"null")?,
+            Field::Integer(n) => serde_json::to_writer(&mut *line, &n)?,
+            Field::Text(text) => {
+                line.write_all(b"\"")?;
+                line.write_all(text.as_bytes())?;
+                line.write_all(b"\"")?;
+            }
+            Field::Flag(flag) => line.write_all(if flag { b"true" } else { b"false" })?,
+        }
+    }
+    line.write_all(b"}")
+}
+
+/// One event's line, gathered on the stack before it goes to the output in one write.
+struct LineBuffer {
+    bytes: [u8; 512],
+    len: usize,
+}
+
+impl Default for LineBuffer {
+    fn default() -> Self {
+        LineBuffer {
+            bytes: [0; 512],
+            len: 0,
+        }
+    }
+}
+
+impl LineBuffer {
+    fn as_bytes(&self) -> &[u8] {
+        &self.bytes[..self.len]
+    }
+}
+
+impl Write for LineBuffer {
+    fn write(&mut self, bytes: &[u8]) -> std::io::Result<usize> {
+        self.write_all(bytes)?;
+        Ok(bytes.len())
+    }
+    #[inline]
+    fn write_all(&mut self, bytes: &[u8]) -> std::io::Result<()> {
+        let end = self.len + bytes.len();
+        if end > self.bytes.len() {
+            return Err(std::io::ErrorKind::WriteZero.into());
+        }
+        self.bytes[self.len..end].copy_from_slice(bytes);
+        self.len = end;
+        Ok(())
+    }
+    fn flush(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
 }
 
 /// Opens an output (`-` is standard output).
@@ -510,27 +726,52 @@ fn replay_pipelined<R>(
     options: &ReplayOptions,
 ) -> Result<ReplayResult>
 where
-    R: Real + FromStr + Display + Send,
+    R: FeedFloat + Display,
 {
     let file = feed.file().to_string();
-    let (sender, receiver) = std::sync::mpsc::sync_channel::<Vec<ParsedRow<R>>>(BATCHES_IN_FLIGHT);
+    let (sender, receiver) = std::sync::mpsc::sync_channel::<Batch<R>>(BATCHES_IN_FLIGHT);
+    // Emptied batches go back to the parsing thread, so no batch is allocated after the
+    // first few.
+    let (recycle, recycled) = std::sync::mpsc::sync_channel::<Batch<R>>(BATCHES_IN_FLIGHT + 2);
     std::thread::scope(|scope| {
-        scope.spawn(move || {
-            let mut batch = Vec::with_capacity(BATCH_ROWS);
-            for row in parsed_rows::<R>(&mut feed) {
-                let stop = row.next.is_err() && !options.skip_bad_rows;
-                batch.push(row);
-                if batch.len() == BATCH_ROWS || stop {
-                    let full = std::mem::replace(&mut batch, Vec::with_capacity(BATCH_ROWS));
-                    if sender.send(full).is_err() || stop {
-                        return;
+        scope.spawn(move || loop {
+            let mut batch = recycled
+                .try_recv()
+                .unwrap_or_else(|_| Batch::with_capacity(BATCH_ROWS));
+            batch.clear();
+            let more = feed.fill_batch(&mut batch, BATCH_ROWS, options.skip_bad_rows);
+            if sender.send(batch).is_err() || !more {
+                return;
+            }
+        });
+        let mut run = Run::<R>::start(&file, options, false)?;
+        'batches: for mut batch in receiver {
+            run.progress(batch.bytes);
+            if batch.errors.is_empty() {
+                for (sample, &line) in batch.samples.iter().zip(&batch.lines) {
+                    run.good(*sample, line)?;
+                }
+            } else {
+                let mut errors = batch.errors.drain(..).peekable();
+                for (index, (sample, &line)) in batch.samples.iter().zip(&batch.lines).enumerate() {
+                    while let Some((_, error)) = errors.next_if(|(at, _)| *at == index) {
+                        if !run.bad(error) {
+                            break 'batches;
+                        }
+                    }
+                    run.good(*sample, line)?;
+                }
+                for (_, error) in errors.by_ref() {
+                    if !run.bad(error) {
+                        break 'batches;
                     }
                 }
             }
-            let _ = sender.send(batch);
-        });
-        let rows = receiver.into_iter().flatten();
-        replay_rows::<R>(rows, &file, options)
+            let _ = recycle.try_send(batch);
+        }
+        run.finish(|map| {
+            map.insert("input_format".into(), json!(InputFormat::Csv));
+        })
     })
 }
 
@@ -540,14 +781,14 @@ fn replay_inline<R>(
     options: &ReplayOptions,
 ) -> Result<ReplayResult>
 where
-    R: Real + FromStr + Display,
+    R: FeedFloat + Display,
 {
     let file = feed.file().to_string();
     replay_rows::<R>(parsed_rows::<R>(&mut feed), &file, options)
 }
 
 /// The feed's rows, each with its line and the bytes read so far.
-fn parsed_rows<R: Real + FromStr>(
+fn parsed_rows<R: FeedFloat>(
     feed: &mut CsvFeed<Box<dyn Read + Send>>,
 ) -> impl Iterator<Item = ParsedRow<R>> + '_ {
     std::iter::from_fn(move || {
@@ -665,74 +906,134 @@ where
     R: Real + FromStr + Display,
     I: Iterator<Item = ParsedRow<R>>,
 {
-    let mut engine = start_engine::<R>(options)?;
-    // A resumed CSV replay numbers its rows on from the samples the snapshot counted, so
-    // that two halves number their events like one whole run.
-    let seq_offset = if !device_log && options.persist.resume.is_some() {
-        engine.monitor.counters().samples
-    } else {
-        0
-    };
-    let mut log_out = options
-        .persist
-        .device_log_out
-        .as_deref()
-        .map(|path| {
-            create_output(path)
-                .and_then(|out| Ok(crate::device_log::DeviceLogWriter::<R>::new(out)?))
-        })
-        .transpose()?;
-    let mut events_out = options.events.as_deref().map(create_output).transpose()?;
-    let mut readings_out = options.readings.as_deref().map(create_output).transpose()?;
-    if let Some(out) = readings_out.as_mut() {
-        writeln!(
-            out,
-            "seq,t,raw,value,standard_uncertainty,expanded_uncertainty,rung,flags"
-        )?;
-    }
-    let mut checks_out = options.checks.as_deref().map(create_output).transpose()?;
-    if let Some(out) = checks_out.as_mut() {
-        writeln!(out, "{}", crate::report::checks::HEADER)?;
-    }
-    let bar = progress_bar(options);
-    let mut error = None;
-    let mut skipped: Vec<SkippedRow> = Vec::new();
-    let mut skipped_count: u64 = 0;
-    let mut rows: u64 = 0;
-    for ParsedRow { next, line, bytes } in rows_in.by_ref() {
-        rows += 1;
-        if rows.is_multiple_of(65_536) {
-            if let Some(bar) = &bar {
-                bar.set_position(bytes);
-            }
+    let mut run = Run::<R>::start(file, options, device_log)?;
+    for row in rows_in.by_ref() {
+        if !run.row(row)? {
+            break;
         }
-        let sample = match next {
-            Ok(mut sample) => {
-                sample.seq += seq_offset;
-                sample
-            }
-            Err(feed_error) => {
-                if options.skip_bad_rows && feed_error.line().is_some() {
-                    if options.warnings && skipped_count == 0 {
-                        eprintln!("steadycal: warning: skipping bad row: {feed_error} (every skipped line is listed in the summary)");
-                    }
-                    skipped_count += 1;
-                    if skipped.len() < LIST_LIMIT {
-                        skipped.push(SkippedRow {
-                            line: feed_error.line().unwrap_or(0),
-                            error: feed_error.to_string(),
-                        });
-                    }
-                    continue;
-                }
-                error = Some(feed_error);
-                break;
-            }
+    }
+    run.finish(|map| finish(&rows_in, map))
+}
+
+/// A replay under way: the engine, the outputs and the bookkeeping of the rows seen.
+struct Run<'a, R: Real> {
+    file: &'a str,
+    options: &'a ReplayOptions,
+    device_log: bool,
+    engine: Engine<R>,
+    seq_offset: u64,
+    log_out: Option<crate::device_log::DeviceLogWriter<R>>,
+    events_out: Option<Box<dyn Write>>,
+    readings_out: Option<Box<dyn Write>>,
+    checks_out: Option<Box<dyn Write>>,
+    bar: Option<indicatif::ProgressBar>,
+    error: Option<FeedError>,
+    skipped: Vec<SkippedRow>,
+    skipped_count: u64,
+    rows: u64,
+}
+
+impl<'a, R: Real + Display> Run<'a, R> {
+    fn start(file: &'a str, options: &'a ReplayOptions, device_log: bool) -> Result<Self> {
+        let engine = start_engine::<R>(options)?;
+        // A resumed CSV replay numbers its rows on from the samples the snapshot counted,
+        // so that two halves number their events like one whole run.
+        let seq_offset = if !device_log && options.persist.resume.is_some() {
+            engine.monitor.counters().samples
+        } else {
+            0
         };
+        let log_out = options
+            .persist
+            .device_log_out
+            .as_deref()
+            .map(|path| {
+                create_output(path)
+                    .and_then(|out| Ok(crate::device_log::DeviceLogWriter::<R>::new(out)?))
+            })
+            .transpose()?;
+        let events_out = options.events.as_deref().map(create_output).transpose()?;
+        let mut readings_out = options.readings.as_deref().map(create_output).transpose()?;
+        if let Some(out) = readings_out.as_mut() {
+            writeln!(
+                out,
+                "seq,t,raw,value,standard_uncertainty,expanded_uncertainty,rung,flags"
+            )?;
+        }
+        let mut checks_out = options.checks.as_deref().map(create_output).transpose()?;
+        if let Some(out) = checks_out.as_mut() {
+            writeln!(out, "{}", crate::report::checks::HEADER)?;
+        }
+        Ok(Run {
+            file,
+            options,
+            device_log,
+            engine,
+            seq_offset,
+            log_out,
+            events_out,
+            readings_out,
+            checks_out,
+            bar: progress_bar(options),
+            error: None,
+            skipped: Vec::new(),
+            skipped_count: 0,
+            rows: 0,
+        })
+    }
+
+    /// Moves the progress bar to `bytes` read.
+    fn progress(&self, bytes: u64) {
+        if let Some(bar) = &self.bar {
+            bar.set_position(bytes);
+        }
+    }
+
+    /// One row, good or bad; false when the run stops here.
+    fn row(&mut self, row: ParsedRow<R>) -> Result<bool> {
+        if (self.rows + 1).is_multiple_of(65_536) {
+            self.progress(row.bytes);
+        }
+        match row.next {
+            Ok(sample) => {
+                self.good(sample, row.line)?;
+                Ok(true)
+            }
+            Err(error) => Ok(self.bad(error)),
+        }
+    }
+
+    /// A bad row: skipped and listed with `--skip-bad-rows` (when it is about one line),
+    /// otherwise the error that stops the run. False when the run stops.
+    fn bad(&mut self, feed_error: FeedError) -> bool {
+        self.rows += 1;
+        if self.options.skip_bad_rows && feed_error.line().is_some() {
+            if self.options.warnings && self.skipped_count == 0 {
+                eprintln!("steadycal: warning: skipping bad row: {feed_error} (every skipped line is listed in the summary)");
+            }
+            self.skipped_count += 1;
+            if self.skipped.len() < LIST_LIMIT {
+                self.skipped.push(SkippedRow {
+                    line: feed_error.line().unwrap_or(0),
+                    error: feed_error.to_string(),
+                });
+            }
+            return true;
+        }
+        self.error = Some(feed_error);
+        false
+    }
+
+    /// A good row, on `line`: time order, the core, and every output.
+    #[inline]
+    fn good(&mut self, mut sample: Sample<R>, line: u64) -> Result<()> {
+        self.rows += 1;
+        sample.seq += self.seq_offset;
         // `seq` stays the 0-based data-row index, skipped rows included, so an event points
         // at its line (line = seq + 2 for a one-line header).
+        let engine = &mut self.engine;
         let step = engine.time_order.check(sample.t, line);
-        if step != TimeStep::Forward && options.warnings {
+        if step != TimeStep::Forward && self.options.warnings {
             let order = &engine.time_order;
             if (step == TimeStep::Repeated && order.repeated == 1)
                 || (step == TimeStep::Backwards && order.backwards == 1)
@@ -743,116 +1044,140 @@ where
                     "is before the previous row's time"
                 };
                 eprintln!(
-                    "steadycal: warning: {file}:{line}: time {} {what}; every such row is counted in the summary (`time_order`)",
-                    sample.t
+                    "steadycal: warning: {}:{line}: time {} {what}; every such row is counted in the summary (`time_order`)",
+                    self.file, sample.t
                 );
             }
         }
         let t = sample.t;
-        let before = match checks_out {
+        let before = match self.checks_out {
             Some(_) => crate::report::checks::before(&engine.monitor, &sample),
             None => None,
         };
-        if let Some(log) = log_out.as_mut() {
+        if let Some(log) = self.log_out.as_mut() {
             log.write(&Record::Sample(sample))?;
         }
+        let log_out = &mut self.log_out;
+        let events_out = &mut self.events_out;
         let outcome = engine.push(&sample, |event| {
             if let Some(log) = log_out.as_mut() {
                 log.write(&Record::Event(*event))?;
             }
             match events_out.as_mut() {
                 Some(out) => {
-                    serde_json::to_writer(&mut *out, &event_json(event, t))?;
+                    write_event(out.as_mut(), event, t)?;
                     out.write_all(b"\n")
                 }
                 None => Ok(()),
             }
         })?;
-        if let Some(out) = readings_out.as_mut() {
+        if let Some(out) = self.readings_out.as_mut() {
             if sample.reference.is_none() {
                 write_reading(out.as_mut(), &sample, &outcome, engine.monitor.rung())?;
             }
         }
-        if let (Some(out), Some(before)) = (checks_out.as_mut(), before) {
+        if let (Some(out), Some(before)) = (self.checks_out.as_mut(), before) {
             if !outcome.flags.contains(Flags::REJECTED) {
                 crate::report::checks::write_row(out.as_mut(), &engine.monitor, &sample, &before)?;
             }
         }
+        Ok(())
     }
-    if let Some(bar) = bar {
-        bar.finish_and_clear();
-    }
-    if rows == 0 && error.is_none() {
-        error = Some(if device_log {
-            FeedError::NoRecords {
-                file: file.to_string(),
-            }
-        } else {
-            FeedError::NoRows {
-                file: file.to_string(),
-            }
-        });
-    }
-    if let Some(mut out) = events_out {
-        out.flush()?;
-    }
-    if let Some(mut out) = readings_out {
-        out.flush()?;
-    }
-    if let Some(mut out) = checks_out {
-        out.flush()?;
-    }
-    if let Some(mut log) = log_out {
-        log.flush()?;
-    }
-    // The state after the last good row is saved even when a bad row stopped the run.
-    let snapshot_bytes = match &options.persist.save_snapshot {
-        Some(path) => Some(crate::snapshot_file::write(path, &engine.monitor)?),
-        None => None,
-    };
-    let mut summary = engine.summary(file, options.precision, error.as_ref());
-    if let Value::Object(map) = &mut summary {
-        map.insert("rows_skipped".into(), json!(skipped_count));
-        map.insert("skipped_rows".into(), json!(skipped));
-        map.insert(
-            "resumed_from".into(),
-            json!(options
-                .persist
-                .resume
-                .as_ref()
-                .map(|p| p.display().to_string())),
-        );
-        map.insert(
-            "snapshot".into(),
-            match (&options.persist.save_snapshot, snapshot_bytes) {
-                (Some(path), Some(bytes)) => {
-                    json!({"file": path.display().to_string(), "bytes": bytes})
-                }
-                _ => Value::Null,
-            },
-        );
-        finish(&rows_in, map);
-    }
-    if options.warnings {
-        let order = &engine.time_order;
-        if order.repeated + order.backwards > 0 {
-            eprintln!(
-                "steadycal: warning: {file}: {} rows repeat the previous time, {} go backwards",
-                order.repeated, order.backwards
-            );
+
+    /// Flushes the outputs, saves the snapshot and writes the summary; `extra` adds the
+    /// input's own summary entries.
+    fn finish(self, extra: impl FnOnce(&mut Map<String, Value>)) -> Result<ReplayResult> {
+        let Run {
+            file,
+            options,
+            device_log,
+            engine,
+            log_out,
+            events_out,
+            readings_out,
+            checks_out,
+            bar,
+            mut error,
+            skipped,
+            skipped_count,
+            rows,
+            ..
+        } = self;
+        if let Some(bar) = bar {
+            bar.finish_and_clear();
         }
+        if rows == 0 && error.is_none() {
+            error = Some(if device_log {
+                FeedError::NoRecords {
+                    file: file.to_string(),
+                }
+            } else {
+                FeedError::NoRows {
+                    file: file.to_string(),
+                }
+            });
+        }
+        if let Some(mut out) = events_out {
+            out.flush()?;
+        }
+        if let Some(mut out) = readings_out {
+            out.flush()?;
+        }
+        if let Some(mut out) = checks_out {
+            out.flush()?;
+        }
+        if let Some(mut log) = log_out {
+            log.flush()?;
+        }
+        // The state after the last good row is saved even when a bad row stopped the run.
+        let snapshot_bytes = match &options.persist.save_snapshot {
+            Some(path) => Some(crate::snapshot_file::write(path, &engine.monitor)?),
+            None => None,
+        };
+        let mut summary = engine.summary(file, options.precision, error.as_ref());
+        if let Value::Object(map) = &mut summary {
+            map.insert("rows_skipped".into(), json!(skipped_count));
+            map.insert("skipped_rows".into(), json!(skipped));
+            map.insert(
+                "resumed_from".into(),
+                json!(options
+                    .persist
+                    .resume
+                    .as_ref()
+                    .map(|p| p.display().to_string())),
+            );
+            map.insert(
+                "snapshot".into(),
+                match (&options.persist.save_snapshot, snapshot_bytes) {
+                    (Some(path), Some(bytes)) => {
+                        json!({"file": path.display().to_string(), "bytes": bytes})
+                    }
+                    _ => Value::Null,
+                },
+            );
+            extra(map);
+        }
+        if options.warnings {
+            let order = &engine.time_order;
+            if order.repeated + order.backwards > 0 {
+                eprintln!(
+                    "steadycal: warning: {file}: {} rows repeat the previous time, {} go backwards",
+                    order.repeated, order.backwards
+                );
+            }
+        }
+        if let Some(path) = &options.summary {
+            let mut out = create_output(path)?;
+            serde_json::to_writer_pretty(&mut out, &summary)?;
+            out.write_all(b"\n")?;
+            out.flush()?;
+        }
+        Ok(ReplayResult {
+            summary,
+            error,
+            raised: engine.raised,
+        })
     }
-    if let Some(path) = &options.summary {
-        let mut out = create_output(path)?;
-        serde_json::to_writer_pretty(&mut out, &summary)?;
-        out.write_all(b"\n")?;
-        out.flush()?;
-    }
-    Ok(ReplayResult {
-        summary,
-        error,
-        raised: engine.raised,
-    })
 }
 
 /// The summary document of a monitor after a run.
@@ -967,4 +1292,125 @@ pub fn detectors_json<R: Real>(monitor: &Monitor<R>) -> Value {
         "drift_significant": counts.drift_significant,
         "gap_samples": counts.gap_samples,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+    use steadycal_core::event::{Direction, RejectReason};
+
+    /// Every kind of event, with its floats taken from `values` in turn.
+    fn every_kind<R: Real>(values: &[R], small: u32) -> Vec<EventKind<R>> {
+        let v = |i: usize| values[i % values.len()];
+        let severity = [Severity::Info, Severity::Warn, Severity::Alarm][small as usize % 3];
+        let rung = Rung::ALL[small as usize % Rung::ALL.len()];
+        let mut kinds = vec![
+            EventKind::SpreadTracksLevel {
+                k: v(0),
+                k_low: v(1),
+                k_high: v(2),
+            },
+            EventKind::TransformChanged {
+                from: rung,
+                to: Rung::ALL[(small as usize + 1) % Rung::ALL.len()],
+                gain: v(3),
+            },
+            EventKind::MeanMisfit {
+                rung,
+                statistic: v(4),
+                dof: small as u8,
+                suggest_quadratic: small.is_multiple_of(2),
+                suggest_temperature: small.is_multiple_of(3),
+            },
+            EventKind::BiasShift {
+                direction: if small.is_multiple_of(2) {
+                    Direction::Up
+                } else {
+                    Direction::Down
+                },
+                size: v(5),
+                severity,
+            },
+            EventKind::GainDrift {
+                change: v(6),
+                uncertainty: v(7),
+                severity,
+            },
+            EventKind::OffsetDrift {
+                change: v(7),
+                uncertainty: v(6),
+                severity,
+            },
+            EventKind::SpreadJump {
+                ratio: v(1),
+                severity,
+            },
+            EventKind::SignalStuck {
+                run: small,
+                severity,
+            },
+            EventKind::SignalOutOfRange {
+                raw: v(2),
+                severity,
+            },
+            EventKind::ReferenceGap {
+                seconds: v(3).to_f64() * 1e3,
+                severity,
+            },
+        ];
+        for reason in [
+            RejectReason::NonFiniteRaw,
+            RejectReason::NonFiniteReference,
+            RejectReason::NonFiniteTemperature,
+            RejectReason::BelowOrigin,
+            RejectReason::OutOfRange,
+            RejectReason::Spike,
+            RejectReason::Stuck,
+        ] {
+            kinds.push(EventKind::SampleRejected { reason });
+        }
+        for alarm in AlarmKind::ALL {
+            kinds.push(EventKind::Cleared { alarm });
+        }
+        kinds
+    }
+
+    fn written<R: Real + Display>(event: &Event<R>, t: f64) -> (Vec<u8>, Vec<u8>) {
+        let mut direct = Vec::new();
+        write_event(&mut direct, event, t).unwrap();
+        let built = serde_json::to_vec(&event_json(event, t)).unwrap();
+        (direct, built)
+    }
+
+    proptest! {
+        #[test]
+        fn direct_event_lines_equal_serde_json(
+            singles in prop::collection::vec(any::<f32>(), 8),
+            doubles in prop::collection::vec(any::<f64>(), 8),
+            t in prop_oneof![any::<f64>(), 0.0..1e7f64],
+            seq in any::<u64>(),
+            small in 0u32..1000,
+        ) {
+            for kind in every_kind(&singles, small) {
+                let (direct, built) = written(&Event { seq, kind }, t);
+                prop_assert_eq!(String::from_utf8(direct), String::from_utf8(built));
+            }
+            for kind in every_kind(&doubles, small) {
+                let (direct, built) = written(&Event { seq, kind }, t);
+                prop_assert_eq!(String::from_utf8(direct), String::from_utf8(built));
+            }
+        }
+    }
+
+    #[test]
+    fn numbers_print_shortest_in_their_type() {
+        assert_eq!(number(0.1f32).to_string(), "0.1");
+        assert_eq!(number(0.1f64).to_string(), "0.1");
+        assert_eq!(number(-0.0f32).to_string(), "-0.0");
+        assert_eq!(number(f32::NAN), Value::Null);
+        assert_eq!(number(f64::NEG_INFINITY), Value::Null);
+        assert_eq!(number(f32::from_bits(1)).to_string(), "1e-45");
+        assert_eq!(number(f32::MAX).to_string(), "3.4028235e+38");
+    }
 }

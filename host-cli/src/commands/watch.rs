@@ -12,7 +12,6 @@ use std::fmt::Display;
 use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
-use std::str::FromStr;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{self, RecvTimeoutError};
 use std::sync::Arc;
@@ -89,7 +88,7 @@ pub fn run(args: WatchArgs) -> anyhow::Result<ExitCode> {
 
 fn watch<R>(args: &WatchArgs, resolved: Resolved) -> anyhow::Result<ExitCode>
 where
-    R: Real + FromStr + Display + Send + 'static,
+    R: crate::feed::FeedFloat + Display + 'static,
 {
     let mut engine = Engine::<R>::new(&resolved.config)?;
     let stop = Arc::new(AtomicBool::new(false));
