@@ -63,11 +63,6 @@ pub const KOENKER_MIN_SAMPLES: u32 = 10;
 /// Least number of usable bins for [`SpreadProfile::exponent`].
 pub const EXPONENT_MIN_BINS: u8 = 3;
 
-/// True for a finite number above zero (false for NaN).
-fn is_positive_finite<R: Real>(value: R) -> bool {
-    value.is_positive_finite()
-}
-
 /// Settings of a [`SpreadProfile`].
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct SpreadConfig<R> {
@@ -290,7 +285,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
     /// The bin a level falls in (end bins take levels outside the range); `None` for a
     /// level that is not finite or not positive.
     pub fn bin_of(&self, level: R) -> Option<usize> {
-        if !self.accepting || !is_positive_finite(level) {
+        if !self.accepting || !level.is_positive_finite() {
             return None;
         }
         Some(self.bin_of_log(level.ln()))
@@ -311,7 +306,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
     /// and non-finite residuals are ignored and return `false`; so is a residual whose
     /// square or update would overflow the accumulators.
     pub fn push(&mut self, level: R, residual: R) -> bool {
-        if !self.accepting || !is_positive_finite(level) || !residual.is_finite() {
+        if !self.accepting || !level.is_positive_finite() || !residual.is_finite() {
             return false;
         }
         let log_level = level.ln();
@@ -322,7 +317,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
     /// [`SpreadProfile::push`], returning [`SpreadProfile::bin_of`] the level (whether or not
     /// the residual was accepted): one logarithm serves both.
     pub fn push_binned(&mut self, level: R, residual: R) -> Option<usize> {
-        if !self.accepting || !is_positive_finite(level) {
+        if !self.accepting || !level.is_positive_finite() {
             return None;
         }
         let log_level = level.ln();
@@ -474,7 +469,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
             sxx += w * (x - mean_x).squared();
             sxy += w * (x - mean_x) * (y - mean_y);
         }
-        if !is_positive_finite(sxx) {
+        if !sxx.is_positive_finite() {
             return None;
         }
         let k = sxy / sxx;
@@ -498,7 +493,7 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
     /// `R²` is undefined and the result is `None`).
     pub fn koenker(&self) -> Option<KoenkerStatistic<R>> {
         let k = &self.koenker;
-        if !is_positive_finite(k.weight_squares) {
+        if !k.weight_squares.is_positive_finite() {
             return None;
         }
         let samples = k.weight * (k.weight / k.weight_squares);
