@@ -163,11 +163,13 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         probe.is_finite()
     }
 
-    /// The update for a caller that has checked `x` with [`RecursiveFit::all_finite`] and
-    /// computed the a-priori `residual = y − xᵀθ` on the same state: `relative_variance` is
-    /// `1/w`, the sample's variance relative to the fit's σ² (a positive value; a non-finite
-    /// one is refused like any update that would leave a non-finite state), and
+    /// The update for a caller that has computed the a-priori `residual = y − xᵀθ` on the
+    /// same state: `relative_variance` is `1/w`, the sample's variance relative to the
+    /// fit's σ² (a positive value), and
     /// `inverse_beta` is `1/β` (so that several fits fed the same check share that work).
+    /// A non-finite regressor, residual or relative variance needs no check beforehand:
+    /// it makes the new state non-finite, which the update refuses (leaving the fit as it
+    /// was), like any update that would overflow.
     #[inline]
     pub(crate) fn update_relative_variance(
         &mut self,
@@ -591,6 +593,47 @@ mod tests {
         assert_eq!(fit.parameters(), before.parameters());
         assert_eq!(fit.diagonal(), before.diagonal());
         assert_eq!(fit.updates(), 1);
+    }
+
+    /// The internal update takes no finiteness check beforehand: a non-finite regressor,
+    /// residual or relative variance must still be refused with the state untouched, on
+    /// every written-out dimension and the general loop.
+    #[test]
+    fn unchecked_update_refuses_non_finite_inputs() {
+        fn check<const P: usize>(dim: usize) {
+            let mut fit: RecursiveFit<f32, P> = RecursiveFit::new(dim, config(0.999, 1e6));
+            let mut x = [1.0f32; P];
+            for i in 0..5 {
+                x[dim - 1] = i as f32;
+                fit.update(&x, 2.0 + i as f32, 1.0).unwrap();
+            }
+            let (theta, diagonal, updates) = (fit.parameters(), fit.diagonal(), fit.updates());
+            let inverse_beta = 1.0 / 0.999;
+            for bad in [f32::NAN, f32::INFINITY, f32::NEG_INFINITY] {
+                for position in 0..dim {
+                    let mut x_bad = x;
+                    x_bad[position] = bad;
+                    let result = fit.update_relative_variance(&x_bad, 0.5, 1.0, inverse_beta);
+                    assert_eq!(
+                        result,
+                        Err(FitError::NonFinite),
+                        "dim {dim} x[{position}] = {bad}"
+                    );
+                }
+                assert!(fit
+                    .update_relative_variance(&x, bad, 1.0, inverse_beta)
+                    .is_err());
+                assert!(fit
+                    .update_relative_variance(&x, 0.5, bad, inverse_beta)
+                    .is_err());
+                assert_eq!(fit.parameters(), theta);
+                assert_eq!(fit.diagonal(), diagonal);
+                assert_eq!(fit.updates(), updates);
+            }
+        }
+        check::<2>(2);
+        check::<3>(3);
+        check::<4>(4);
     }
 
     #[test]

@@ -113,13 +113,13 @@ struct RungPass<'a, R, const P: usize> {
     /// The likelihood sums have started and the raw value is above the origin: every rung
     /// computes its transformed residual.
     comparing: bool,
-    /// `g_λ(raw)` on every rung (zeros when not `comparing`).
-    raw_transforms: [R; RUNG_COUNT],
+    /// `g_λ(raw)` on every rung on entry (zeros when the raw value is below the origin);
+    /// each rung's pass, when `comparing`, subtracts `g_λ` of its own prediction, leaving
+    /// the transformed residual. (Starting from the raw transforms spares zeroing an
+    /// array on every check.)
+    transformed: [R; RUNG_COUNT],
     /// Every power rung's own prediction is above the origin so far.
     predictions_positive: bool,
-    transformed: &'a mut [R; RUNG_COUNT],
-    /// `x` and `raw` are finite (checked once for every rung's fit).
-    fit_inputs_finite: bool,
     /// `1/β`, shared by every rung's fit.
     inverse_beta: R,
     /// Scaled levels below this floor take it for the rung weights.
@@ -228,6 +228,57 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
     /// The rung with the highest profile log-likelihood, and that log-likelihood.
     pub fn best(&self) -> Option<(Rung, R)> {
         Some(Self::best_of(self.active, &self.log_likelihoods()?))
+    }
+
+    /// The rung with the highest profile log-likelihood and its lead over the active rung
+    /// (zero when the active rung leads; `None` before the sums start), with one
+    /// exponential in place of a logarithm per rung.
+    ///
+    /// With `G = exp(Σ ln u / N)`, the weighted geometric mean of the scaled levels, the
+    /// profile log-likelihood is `ℓ(λ) = −(N/2)·ln(Q_λ/N)` where `Q_λ = RSS_λ·G^{2(1−λ)}`
+    /// (the residual sum of squares of the transform normalized by `G^{λ−1}`, Box and Cox
+    /// 1964, section 3): the best rung has the smallest `Q_λ` and leads the active one by
+    /// `(N/2)·ln(Q_active/Q_best)`. Each `Q_λ` is taken relative to the `log` rung's
+    /// (a factor `G^{−2λ}`, powers −2 to 2, to keep the products in range); when a product
+    /// over- or underflows, the log-likelihoods are compared directly.
+    fn leader(&self) -> Option<(Rung, R)> {
+        if !(self.sample_weight > R::ONE) {
+            return None;
+        }
+        let n = self.sample_weight;
+        let mean = (self.log_level_sum / n).exp();
+        let inverse = R::ONE / mean;
+        let mut normalized = [R::ZERO; RUNG_COUNT];
+        for (rung, q) in Rung::ALL.into_iter().zip(normalized.iter_mut()) {
+            let factor = match rung {
+                Rung::Identity => inverse * inverse,
+                Rung::Sqrt => inverse,
+                Rung::Log => R::ONE,
+                Rung::InvSqrt => mean,
+                Rung::Inverse => mean * mean,
+            };
+            *q = self.rungs[rung.index()]
+                .transformed_sse
+                .max(R::MIN_POSITIVE)
+                * factor;
+        }
+        if !normalized.iter().all(|q| q.is_positive_finite()) {
+            let likelihoods = self.log_likelihoods()?;
+            let (best, best_likelihood) = Self::best_of(self.active, &likelihoods);
+            return Some((best, best_likelihood - likelihoods[self.active.index()]));
+        }
+        let active = self.active;
+        let mut best = active;
+        for rung in Rung::ALL {
+            if normalized[rung.index()] < normalized[best.index()] {
+                best = rung;
+            }
+        }
+        if best == active {
+            return Some((active, R::ZERO));
+        }
+        let ratio = normalized[active.index()] / normalized[best.index()];
+        Some((best, n * R::HALF * ratio.ln()))
     }
 
     fn best_of(active: Rung, likelihoods: &[R; RUNG_COUNT]) -> (Rung, R) {
@@ -344,7 +395,6 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         let raw_transforms = Rung::apply_every(raw_level);
         let below_origin = raw_transforms.is_none();
         let (raw_transforms, ln_raw) = raw_transforms.unwrap_or(([R::ZERO; RUNG_COUNT], R::ZERO));
-        let mut transformed = [R::ZERO; RUNG_COUNT];
         // One call per rung with the rung a constant, so each call compiles to that rung's
         // own transform and weight (no dispatch, no loop).
         let mut pass = RungPass {
@@ -352,10 +402,8 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             raw,
             raw_level,
             comparing: counting && !below_origin,
-            raw_transforms,
+            transformed: raw_transforms,
             predictions_positive: true,
-            transformed: &mut transformed,
-            fit_inputs_finite: RecursiveFit::all_finite(x, raw),
             inverse_beta: R::ONE / config.fit.forgetting,
             level_floor: config.level_floor,
         };
@@ -369,7 +417,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         // Comparable when every rung had its transformed residual and all are finite (a
         // non-finite value makes the sum of v·0 NaN).
         let comparable = pass.comparing && pass.predictions_positive && {
-            let [a, b, c, d, e] = transformed;
+            let [a, b, c, d, e] = pass.transformed;
             (a * R::ZERO + b * R::ZERO + c * R::ZERO + d * R::ZERO + e * R::ZERO).is_finite()
         };
         self.checks = self.checks.saturating_add(1);
@@ -379,9 +427,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             let beta = config.fit.forgetting;
             self.sample_weight = beta * self.sample_weight + R::ONE;
             self.log_level_sum = beta * self.log_level_sum + ln_raw;
-            for rung in Rung::ALL {
-                let state = &mut self.rungs[rung.index()];
-                let e = transformed[rung.index()];
+            for (state, e) in self.rungs.iter_mut().zip(pass.transformed) {
                 state.transformed_sse = beta * state.transformed_sse + e * e;
             }
             self.since_decision = self.since_decision.saturating_add(1);
@@ -447,7 +493,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             if rung.needs_positive() {
                 pass.predictions_positive &= level > R::ZERO;
             }
-            pass.transformed[rung.index()] = pass.raw_transforms[rung.index()] - g_fit;
+            pass.transformed[rung.index()] -= g_fit;
         }
         // During warm-up a rung's own prediction can be far off (even negative after two
         // checks), and a weight taken there would dominate the fit for thousands of checks;
@@ -465,8 +511,9 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         } else {
             floor
         });
-        // A refused update (a non-finite result) leaves the rung as it was.
-        if pass.fit_inputs_finite {
+        // A refused update (a non-finite result, which is what a non-finite regressor or
+        // raw value gives) leaves the rung as it was.
+        {
             let residual = pass.raw - rung_prediction;
             let _ = if TWO {
                 state.fit.update_relative_variance_two(
@@ -488,9 +535,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
 
     fn decide(&mut self, config: &LadderConfig<R>) -> Option<Switch<R>> {
         let elapsed = core::mem::take(&mut self.since_decision);
-        let likelihoods = self.log_likelihoods()?;
-        let (best, best_likelihood) = Self::best_of(self.active, &likelihoods);
-        let lead = best_likelihood - likelihoods[self.active.index()];
+        let (best, lead) = self.leader()?;
         if best == self.active || !(lead >= config.switch_margin) {
             self.candidate = None;
             self.lead = 0;
@@ -520,3 +565,59 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
 /// The snapshot codec of this module's state (private fields; see `crate::wire`).
 #[path = "wire/ladder.rs"]
 mod wire_codec;
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    fn config(level_scale: f64) -> LadderConfig<f64> {
+        LadderConfig {
+            fit: FitConfig {
+                forgetting: 0.999,
+                initial_variance: 1e6,
+            },
+            level_origin: 0.0,
+            level_scale,
+            inverse_level_scale: 1.0 / level_scale,
+            level_floor: 0.01,
+            warm_up: 5,
+            switch_margin: 2.0,
+            switch_hold: 16,
+            decide_every: 8,
+        }
+    }
+
+    proptest! {
+        /// The normalized-RSS comparison picks the same leader, with the same lead, as
+        /// comparing the profile log-likelihoods rung by rung.
+        #[test]
+        fn leader_matches_the_log_likelihoods(
+            exponent in 0.0f64..2.0,
+            level_scale in prop::sample::select(&[0.05, 1.0, 40.0][..]),
+            seed in 0u64..1000,
+        ) {
+            let config = config(level_scale);
+            let mut ladder = PowerLadder::<f64, 2>::new(2, &config, Rung::Identity);
+            let mut state = seed.wrapping_mul(6364136223846793005).wrapping_add(1);
+            for i in 0..300 {
+                state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+                let noise = ((state >> 11) as f64 / (1u64 << 53) as f64) - 0.5;
+                let reference = 1.0 + (i % 50) as f64 * 2.0;
+                let raw = 0.5 + 1.1 * reference + 0.2 * noise * reference.powf(exponent);
+                ladder.update(&config, &[1.0, reference], raw);
+            }
+            let likelihoods = ladder.log_likelihoods().unwrap();
+            let (best, best_likelihood) = PowerLadder::<f64, 2>::best_of(ladder.active, &likelihoods);
+            let (leader, lead) = ladder.leader().unwrap();
+            let direct = best_likelihood - likelihoods[ladder.active.index()];
+            if leader == best {
+                prop_assert!((lead - direct).abs() <= 1e-9 * (1.0 + direct.abs()), "{lead} {direct}");
+            } else {
+                // Only a near tie may be resolved the other way by rounding.
+                let gap = likelihoods[best.index()] - likelihoods[leader.index()];
+                prop_assert!(gap.abs() <= 1e-9 * (1.0 + best_likelihood.abs()), "{gap}");
+            }
+        }
+    }
+}

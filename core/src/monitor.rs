@@ -500,19 +500,23 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         if !present && self.detectors.alarms.is_idle(kind) {
             return;
         }
-        self.observe_alarm_episode(seq, kind, present, event, outcome);
+        if let Some(severity) = self.observe_alarm_episode(seq, kind, present, outcome) {
+            self.raise(seq, event(severity), outcome);
+        }
     }
 
-    /// [`Monitor::observe_alarm`] while an episode is under way or the signal is present.
+    /// [`Monitor::observe_alarm`] while an episode is under way or the signal is present:
+    /// raises the `Cleared` event itself, and returns the severity of a raise for the
+    /// caller to build its event (not generic over the event, so one copy serves every
+    /// alarm).
     #[inline(never)]
     fn observe_alarm_episode(
         &mut self,
         seq: u64,
         kind: AlarmKind,
         present: bool,
-        event: impl FnOnce(Severity) -> EventKind<R>,
         outcome: &mut Outcome<R>,
-    ) {
+    ) -> Option<Severity> {
         match self
             .detectors
             .alarms
@@ -520,13 +524,14 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         {
             Some(Transition::Raised(severity)) => {
                 self.alarm_flags = self.raised_alarm_flags();
-                self.raise(seq, event(severity), outcome)
+                Some(severity)
             }
             Some(Transition::Cleared) => {
                 self.alarm_flags = self.raised_alarm_flags();
-                self.raise(seq, EventKind::Cleared { alarm: kind }, outcome)
+                self.raise(seq, EventKind::Cleared { alarm: kind }, outcome);
+                None
             }
-            None => {}
+            None => None,
         }
     }
 
