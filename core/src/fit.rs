@@ -35,6 +35,31 @@ pub struct FitConfig<R> {
     pub initial_variance: R,
 }
 
+/// The constants of one update derived from a [`FitConfig`]: `β`, `1/β` and the
+/// covariance ceiling. Fits that share a configuration (the ladder's rungs) take them once
+/// per check, held in registers, instead of each reading its own copy.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) struct Forgetting<R> {
+    /// `β`.
+    pub beta: R,
+    /// `1/β`.
+    pub inverse_beta: R,
+    /// The initial variance, also the ceiling of the covariance diagonal.
+    pub ceiling: R,
+}
+
+impl<R: Real> Forgetting<R> {
+    /// The constants of `config`.
+    #[inline]
+    pub fn of(config: &FitConfig<R>) -> Self {
+        Self {
+            beta: config.forgetting,
+            inverse_beta: R::ONE / config.forgetting,
+            ceiling: config.initial_variance,
+        }
+    }
+}
+
 /// Why an update was refused.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub enum FitError {
@@ -146,8 +171,8 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
             return Err(FitError::NonPositiveWeight);
         }
         let residual = y - self.predict(x);
-        let inverse_beta = R::ONE / self.config.forgetting;
-        self.update_relative_variance(x, residual, R::ONE / weight, inverse_beta)?;
+        let forgetting = Forgetting::of(&self.config);
+        self.update_relative_variance(x, residual, R::ONE / weight, forgetting)?;
         Ok(residual)
     }
 
@@ -166,7 +191,8 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     /// The update for a caller that has computed the a-priori `residual = y − xᵀθ` on the
     /// same state: `relative_variance` is `1/w`, the sample's variance relative to the
     /// fit's σ² (a positive value), and
-    /// `inverse_beta` is `1/β` (so that several fits fed the same check share that work).
+    /// `forgetting` holds this fit's `β`, `1/β` and ceiling (so that several fits fed the same
+    /// check share that work; it must match the fit's own configuration).
     /// A non-finite regressor, residual or relative variance needs no check beforehand:
     /// it makes the new state non-finite, which the update refuses (leaving the fit as it
     /// was), like any update that would overflow.
@@ -176,16 +202,16 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         x: &[R; P],
         residual: R,
         relative_variance: R,
-        inverse_beta: R,
+        forgetting: Forgetting<R>,
     ) -> Result<(), FitError> {
         // Measurement variance β/w of Bierman's observational update.
-        let alpha0 = self.config.forgetting * relative_variance;
+        let alpha0 = forgetting.beta * relative_variance;
         // The loops run over the dimension in use; the common dimensions are written out
         // (the same operations in the same order, so the same bits).
         match self.dim() {
-            2 if P >= 2 => self.update_two(x, alpha0, residual, inverse_beta),
-            3 if P >= 3 => self.update_three(x, alpha0, residual, inverse_beta),
-            n => self.update_dim(n, x, alpha0, residual, inverse_beta),
+            2 if P >= 2 => self.update_two(x, alpha0, residual, forgetting),
+            3 if P >= 3 => self.update_three(x, alpha0, residual, forgetting),
+            n => self.update_dim(n, x, alpha0, residual, forgetting),
         }
     }
 
@@ -204,10 +230,10 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         x: &[R; P],
         residual: R,
         relative_variance: R,
-        inverse_beta: R,
+        forgetting: Forgetting<R>,
     ) -> Result<(), FitError> {
-        let alpha0 = self.config.forgetting * relative_variance;
-        self.update_two(x, alpha0, residual, inverse_beta)
+        let alpha0 = forgetting.beta * relative_variance;
+        self.update_two(x, alpha0, residual, forgetting)
     }
 
     /// The weighted SSE after an update, `β·(J + e·(e/α))` with `correction = e/α`, or
@@ -215,24 +241,24 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     /// values, and of `α`, times zero: an `α` that overflowed would otherwise pass as a
     /// zero gain).
     #[inline(always)]
-    fn new_sse(&self, residual: R, correction: R, probe: R) -> Option<R> {
-        let sse = self.config.forgetting * (self.weighted_sse + residual * correction);
+    fn new_sse(&self, residual: R, correction: R, probe: R, beta: R) -> Option<R> {
+        let sse = beta * (self.weighted_sse + residual * correction);
         (probe + sse * R::ZERO).is_finite().then_some(sse)
     }
 
     /// Counts an accepted update.
     #[inline(always)]
-    fn commit(&mut self, sse: R) {
+    fn commit(&mut self, sse: R, beta: R) {
         self.weighted_sse = sse;
-        self.effective = self.config.forgetting * self.effective + R::ONE;
+        self.effective = beta * self.effective + R::ONE;
         self.updates = self.updates.saturating_add(1);
     }
 
     /// `value / β` clamped to `[floor, initial_variance]` (NaN goes to the floor).
     #[inline(always)]
-    fn forget(&self, value: R, inverse_beta: R) -> R {
-        let value = value * inverse_beta;
-        let ceiling = self.config.initial_variance;
+    fn forget(&self, value: R, forgetting: Forgetting<R>) -> R {
+        let value = value * forgetting.inverse_beta;
+        let ceiling = forgetting.ceiling;
         if value >= Self::floor() {
             if value <= ceiling {
                 value
@@ -252,7 +278,7 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         x: &[R; P],
         alpha0: R,
         residual: R,
-        inverse_beta: R,
+        forgetting: Forgetting<R>,
     ) -> Result<(), FitError> {
         let u01 = self.u[0][1];
         let f0 = x[0];
@@ -274,17 +300,19 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         let correction = residual * inverse;
         let theta0 = self.theta[0] + gain0 * correction;
         let theta1 = self.theta[1] + gain1 * correction;
-        let probe = theta0 * R::ZERO + theta1 * R::ZERO + new_u01 * R::ZERO;
-        let probe = probe + d0 * R::ZERO + d1 * R::ZERO + alpha * R::ZERO;
-        let Some(sse) = self.new_sse(residual, correction, probe) else {
+        // d0 and d1 need no probe: with α finite, α₀ ≤ α₁ ≤ α (each step adds f·g = d·f² ≥ 0)
+        // makes both ratios at most 1, so d0 ≤ d[0] and d1 ≤ d[1]; a NaN or infinite α₀, α₁
+        // or α reaches α itself.
+        let probe = theta0 * R::ZERO + theta1 * R::ZERO + new_u01 * R::ZERO + alpha * R::ZERO;
+        let Some(sse) = self.new_sse(residual, correction, probe, forgetting.beta) else {
             return Err(FitError::NonFinite);
         };
-        self.d[0] = self.forget(d0, inverse_beta);
-        self.d[1] = self.forget(d1, inverse_beta);
+        self.d[0] = self.forget(d0, forgetting);
+        self.d[1] = self.forget(d1, forgetting);
         self.theta[0] = theta0;
         self.theta[1] = theta1;
         self.u[0][1] = new_u01;
-        self.commit(sse);
+        self.commit(sse, forgetting.beta);
         Ok(())
     }
 
@@ -296,7 +324,7 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         x: &[R; P],
         alpha0: R,
         residual: R,
-        inverse_beta: R,
+        forgetting: Forgetting<R>,
     ) -> Result<(), FitError> {
         let (u01, u02, u12) = (self.u[0][1], self.u[0][2], self.u[1][2]);
         let f0 = x[0];
@@ -338,19 +366,19 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
             + new_u02 * R::ZERO
             + new_u12 * R::ZERO;
         let probe = probe + d0 * R::ZERO + d1 * R::ZERO + d2 * R::ZERO + alpha * R::ZERO;
-        let Some(sse) = self.new_sse(residual, correction, probe) else {
+        let Some(sse) = self.new_sse(residual, correction, probe, forgetting.beta) else {
             return Err(FitError::NonFinite);
         };
-        self.d[0] = self.forget(d0, inverse_beta);
-        self.d[1] = self.forget(d1, inverse_beta);
-        self.d[2] = self.forget(d2, inverse_beta);
+        self.d[0] = self.forget(d0, forgetting);
+        self.d[1] = self.forget(d1, forgetting);
+        self.d[2] = self.forget(d2, forgetting);
         self.theta[0] = theta0;
         self.theta[1] = theta1;
         self.theta[2] = theta2;
         self.u[0][1] = new_u01;
         self.u[0][2] = new_u02;
         self.u[1][2] = new_u12;
-        self.commit(sse);
+        self.commit(sse, forgetting.beta);
         Ok(())
     }
 
@@ -364,7 +392,7 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         x: &[R; P],
         alpha0: R,
         residual: R,
-        inverse_beta: R,
+        forgetting: Forgetting<R>,
     ) -> Result<(), FitError> {
         let n = n.min(P);
 
@@ -418,17 +446,17 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
             probe += *value * R::ZERO;
         }
         probe += alpha * R::ZERO;
-        let Some(sse) = self.new_sse(residual, correction, probe) else {
+        let Some(sse) = self.new_sse(residual, correction, probe, forgetting.beta) else {
             return Err(FitError::NonFinite);
         };
         // Forgetting, with the wind-up ceiling and the positivity floor (parameters in use).
         for value in d.iter_mut().take(n) {
-            *value = self.forget(*value, inverse_beta);
+            *value = self.forget(*value, forgetting);
         }
         self.theta = theta;
         self.u = u;
         self.d = d;
-        self.commit(sse);
+        self.commit(sse, forgetting.beta);
         Ok(())
     }
 
@@ -608,12 +636,12 @@ mod tests {
                 fit.update(&x, 2.0 + i as f32, 1.0).unwrap();
             }
             let (theta, diagonal, updates) = (fit.parameters(), fit.diagonal(), fit.updates());
-            let inverse_beta = 1.0 / 0.999;
+            let forgetting = Forgetting::of(&config::<f32>(0.999, 1e6));
             for bad in [f32::NAN, f32::INFINITY, f32::NEG_INFINITY] {
                 for position in 0..dim {
                     let mut x_bad = x;
                     x_bad[position] = bad;
-                    let result = fit.update_relative_variance(&x_bad, 0.5, 1.0, inverse_beta);
+                    let result = fit.update_relative_variance(&x_bad, 0.5, 1.0, forgetting);
                     assert_eq!(
                         result,
                         Err(FitError::NonFinite),
@@ -621,10 +649,10 @@ mod tests {
                     );
                 }
                 assert!(fit
-                    .update_relative_variance(&x, bad, 1.0, inverse_beta)
+                    .update_relative_variance(&x, bad, 1.0, forgetting)
                     .is_err());
                 assert!(fit
-                    .update_relative_variance(&x, 0.5, bad, inverse_beta)
+                    .update_relative_variance(&x, 0.5, bad, forgetting)
                     .is_err());
                 assert_eq!(fit.parameters(), theta);
                 assert_eq!(fit.diagonal(), diagonal);

@@ -27,7 +27,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::fit::{FitConfig, RecursiveFit};
+use crate::fit::{FitConfig, Forgetting, RecursiveFit};
 use crate::real::Real;
 use crate::transform::{Rung, RUNG_COUNT};
 
@@ -43,6 +43,9 @@ pub struct LadderConfig<R> {
     pub level_scale: R,
     /// `1 / level_scale`: the scaling is a multiplication on every check.
     pub inverse_level_scale: R,
+    /// `ln level_scale`, so that `ln(value − origin)` is `ln u + ln level_scale` when the
+    /// `log` rung has `ln u` at hand.
+    pub log_level_scale: R,
     /// Smallest scaled prediction used for a weight (keeps weights bounded near the origin).
     pub level_floor: R,
     /// Checks before the likelihood sums start (the fits are still poor before).
@@ -91,6 +94,10 @@ pub struct LadderStep<R> {
     pub below_origin: bool,
     /// A switch that happened on this check.
     pub switch: Option<Switch<R>>,
+    /// `ln(prediction − origin)` when the active rung is `log` and its pass took the
+    /// logarithm of the prediction anyway (`ln u + ln level_scale`); `None` otherwise, and
+    /// whenever that level is not positive and finite.
+    pub log_level: Option<R>,
 }
 
 /// The active rung's a-priori view of one check (see [`PowerLadder::assess`]).
@@ -120,8 +127,10 @@ struct RungPass<'a, R, const P: usize> {
     transformed: [R; RUNG_COUNT],
     /// Every power rung's own prediction is above the origin so far.
     predictions_positive: bool,
-    /// `1/β`, shared by every rung's fit.
-    inverse_beta: R,
+    /// `ln u` of the `log` rung's own prediction, when it was taken (`comparing`).
+    log_rung_log_level: Option<R>,
+    /// `β`, `1/β` and the covariance ceiling, shared by every rung's fit.
+    forgetting: Forgetting<R>,
     /// Scaled levels below this floor take it for the rung weights.
     level_floor: R,
 }
@@ -236,8 +245,8 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
     ///
     /// With `G = exp(Σ ln u / N)`, the weighted geometric mean of the scaled levels, the
     /// profile log-likelihood is `ℓ(λ) = −(N/2)·ln(Q_λ/N)` where `Q_λ = RSS_λ·G^{2(1−λ)}`
-    /// (the residual sum of squares of the transform normalized by `G^{λ−1}`, Box and Cox
-    /// 1964, section 3): the best rung has the smallest `Q_λ` and leads the active one by
+    /// (the residual sum of squares of the transform normalized by `G^{λ−1}`, the
+    /// normalized form of Box and Cox 1964): the best rung has the smallest `Q_λ` and leads the active one by
     /// `(N/2)·ln(Q_active/Q_best)`. Each `Q_λ` is taken relative to the `log` rung's
     /// (a factor `G^{−2λ}`, powers −2 to 2, to keep the products in range); when a product
     /// over- or underflows, the log-likelihoods are compared directly.
@@ -248,36 +257,43 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         let n = self.sample_weight;
         let mean = (self.log_level_sum / n).exp();
         let inverse = R::ONE / mean;
-        let mut normalized = [R::ZERO; RUNG_COUNT];
-        for (rung, q) in Rung::ALL.into_iter().zip(normalized.iter_mut()) {
-            let factor = match rung {
-                Rung::Identity => inverse * inverse,
-                Rung::Sqrt => inverse,
-                Rung::Log => R::ONE,
-                Rung::InvSqrt => mean,
-                Rung::Inverse => mean * mean,
-            };
-            *q = self.rungs[rung.index()]
+        // Written out (no loop over the rungs): this runs at every decision.
+        let sse = |rung: Rung| {
+            self.rungs[rung.index()]
                 .transformed_sse
                 .max(R::MIN_POSITIVE)
-                * factor;
-        }
-        if !normalized.iter().all(|q| q.is_positive_finite()) {
+        };
+        let normalized = [
+            sse(Rung::Identity) * (inverse * inverse),
+            sse(Rung::Sqrt) * inverse,
+            sse(Rung::Log),
+            sse(Rung::InvSqrt) * mean,
+            sse(Rung::Inverse) * (mean * mean),
+        ];
+        let [a, b, c, d, e] = normalized;
+        if !(a.is_positive_finite()
+            && b.is_positive_finite()
+            && c.is_positive_finite()
+            && d.is_positive_finite()
+            && e.is_positive_finite())
+        {
             let likelihoods = self.log_likelihoods()?;
             let (best, best_likelihood) = Self::best_of(self.active, &likelihoods);
             return Some((best, best_likelihood - likelihoods[self.active.index()]));
         }
         let active = self.active;
         let mut best = active;
-        for rung in Rung::ALL {
-            if normalized[rung.index()] < normalized[best.index()] {
+        let mut lowest = normalized[active.index()];
+        for (rung, q) in Rung::ALL.into_iter().zip(normalized) {
+            if q < lowest {
                 best = rung;
+                lowest = q;
             }
         }
         if best == active {
             return Some((active, R::ZERO));
         }
-        let ratio = normalized[active.index()] / normalized[best.index()];
+        let ratio = normalized[active.index()] / lowest;
         Some((best, n * R::HALF * ratio.ln()))
     }
 
@@ -387,6 +403,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             standardized,
         } = assessment;
 
+        let assessed_rung = self.active;
         let raw_level = Self::scaled_level(config, raw);
         let counting = self.checks >= config.warm_up;
         // Power rungs need the value above the origin; a rung whose own prediction is not
@@ -404,7 +421,8 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             comparing: counting && !below_origin,
             transformed: raw_transforms,
             predictions_positive: true,
-            inverse_beta: R::ONE / config.fit.forgetting,
+            log_rung_log_level: None,
+            forgetting: Forgetting::of(&config.fit),
             level_floor: config.level_floor,
         };
         // Every rung's fit has the ladder's dimension; the straight line (two parameters)
@@ -427,20 +445,32 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             let beta = config.fit.forgetting;
             self.sample_weight = beta * self.sample_weight + R::ONE;
             self.log_level_sum = beta * self.log_level_sum + ln_raw;
-            for (state, e) in self.rungs.iter_mut().zip(pass.transformed) {
-                state.transformed_sse = beta * state.transformed_sse + e * e;
-            }
+            // Written out (no loop): the five residuals stay in registers.
+            let [a, b, c, d, e] = pass.transformed;
+            let [ra, rb, rc, rd, re] = &mut self.rungs;
+            ra.transformed_sse = beta * ra.transformed_sse + a * a;
+            rb.transformed_sse = beta * rb.transformed_sse + b * b;
+            rc.transformed_sse = beta * rc.transformed_sse + c * c;
+            rd.transformed_sse = beta * rd.transformed_sse + d * d;
+            re.transformed_sse = beta * re.transformed_sse + e * e;
             self.since_decision = self.since_decision.saturating_add(1);
             if self.since_decision >= config.decide_every.max(1) {
                 switch = self.decide(config);
             }
         }
+        // The log rung's prediction is the assessed prediction when it was the active rung
+        // (the same sum in the same order), so its logarithm gives the level's.
+        let log_level = match (assessed_rung, pass.log_rung_log_level) {
+            (Rung::Log, Some(log_u)) if log_u.is_finite() => Some(log_u + config.log_level_scale),
+            _ => None,
+        };
         LadderStep {
             prediction,
             residual,
             standardized,
             below_origin,
             switch,
+            log_level,
         }
     }
 
@@ -480,17 +510,24 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         let level = Self::scaled_level(config, rung_prediction);
         if pass.comparing {
             // Transformed residual against the a-priori prediction of this rung. A power
-            // rung's prediction must be above the origin (checked here; a NaN or infinite
-            // transform is caught by the finiteness probe over all five).
+            // rung's prediction must be above the origin (a NaN or infinite transform is
+            // caught by the finiteness probe over all five).
             let two = R::TWO;
             let g_fit = match rung {
                 Rung::Identity => level - R::ONE,
                 Rung::Sqrt => two * (level.sqrt() - R::ONE),
-                Rung::Log => level.ln(),
+                Rung::Log => {
+                    let log_level = level.ln();
+                    pass.log_rung_log_level = Some(log_level);
+                    log_level
+                }
                 Rung::InvSqrt => two * (R::ONE - R::ONE / level.sqrt()),
                 Rung::Inverse => R::ONE - R::ONE / level,
             };
-            if rung.needs_positive() {
+            // `log` and `inv_sqrt` of a level at or below zero are NaN or infinite, which
+            // the probe catches; `sqrt` of zero and `inverse` of a negative level are
+            // finite, so those two rungs check the sign.
+            if matches!(rung, Rung::Sqrt | Rung::Inverse) {
                 pass.predictions_positive &= level > R::ZERO;
             }
             pass.transformed[rung.index()] -= g_fit;
@@ -520,14 +557,14 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
                     pass.x,
                     residual,
                     relative_variance,
-                    pass.inverse_beta,
+                    pass.forgetting,
                 )
             } else {
                 state.fit.update_relative_variance(
                     pass.x,
                     residual,
                     relative_variance,
-                    pass.inverse_beta,
+                    pass.forgetting,
                 )
             };
         }
@@ -580,6 +617,7 @@ mod tests {
             level_origin: 0.0,
             level_scale,
             inverse_level_scale: 1.0 / level_scale,
+            log_level_scale: level_scale.ln(),
             level_floor: 0.01,
             warm_up: 5,
             switch_margin: 2.0,

@@ -126,7 +126,8 @@ impl ConfigError {
 #[inline]
 fn every(count: u64, period: u32) -> bool {
     if period.is_power_of_two() {
-        count & (period as u64 - 1) == 0
+        // The mask fits in 32 bits: only the low word of the count matters.
+        (count as u32) & (period - 1) == 0
     } else {
         count.is_multiple_of(period as u64)
     }
@@ -260,6 +261,7 @@ impl<R: Real> MonitorConfig<R> {
             level_origin: self.level_origin,
             level_scale: scale,
             inverse_level_scale: R::ONE / scale,
+            log_level_scale: scale.ln(),
             level_floor: self.level_low / scale,
             warm_up: self.warm_up,
             switch_margin: self.switch_margin,
@@ -711,7 +713,13 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         }
         let level = step.prediction - self.config.level_origin;
         if warmed_up {
-            let bin = self.spread.push_binned(level, step.residual);
+            let bin = match step.log_level {
+                Some(log_level) => {
+                    self.spread
+                        .push_binned_with_log(level, log_level, step.residual)
+                }
+                None => self.spread.push_binned(level, step.residual),
+            };
             if let (Some(bin), Some(z)) = (bin, step.standardized) {
                 self.mean_check.push(bin, z);
             }
@@ -827,6 +835,12 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     }
 
     fn drift(&mut self, seq: u64, outcome: &mut Outcome<R>) {
+        // Once the baseline is frozen, only every `every`-th check has work (checked first:
+        // this runs on every check).
+        let frozen = self.detectors.drift.baseline().is_some();
+        if frozen && !every(self.counters.checks, self.config.detect.drift.every) {
+            return;
+        }
         let drift_config = self.config.detect.drift;
         let basis = self.config.basis;
         let fit = self.ladder.active_fit();
@@ -834,7 +848,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             return;
         }
         let since_warm_up = self.ladder.checks().saturating_sub(self.config.warm_up);
-        if self.detectors.drift.baseline().is_none() {
+        if !frozen {
             if since_warm_up >= drift_config.freeze_after {
                 let parameters = basis.physical(&fit.parameters());
                 let layout = Layout::of(&basis);
@@ -844,9 +858,6 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                     self.detectors.drift.set_baseline(baseline);
                 }
             }
-            return;
-        }
-        if !every(self.counters.checks, drift_config.every) {
             return;
         }
         let (theta, covariance, variance) =

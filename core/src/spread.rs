@@ -328,6 +328,20 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         Some(index)
     }
 
+    /// [`SpreadProfile::push_binned`] for a caller that already has `log_level`, the
+    /// natural logarithm of `level` (one logarithm fewer). A non-finite `log_level` is
+    /// treated like a level that is not positive.
+    pub fn push_binned_with_log(&mut self, level: R, log_level: R, residual: R) -> Option<usize> {
+        if !self.accepting || !level.is_positive_finite() || !log_level.is_finite() {
+            return None;
+        }
+        let index = self.bin_of_log(log_level);
+        if residual.is_finite() {
+            self.push_in(index, level, log_level, residual);
+        }
+        Some(index)
+    }
+
     /// The update of [`SpreadProfile::push`] once the level is known to be usable.
     #[inline]
     fn push_in(&mut self, index: usize, level: R, log_level: R, residual: R) -> bool {

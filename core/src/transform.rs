@@ -153,7 +153,7 @@ impl Rung {
     /// `u` is not finite and positive. Also returns `ln u`.
     #[inline]
     pub fn apply_every<R: Real>(u: R) -> Option<([R; RUNG_COUNT], R)> {
-        if !(u.is_finite() && u > R::ZERO) {
+        if !u.is_positive_finite() {
             return None;
         }
         let root = u.sqrt();
@@ -166,10 +166,10 @@ impl Rung {
             two * (R::ONE - R::ONE / root),
             R::ONE - R::ONE / u,
         ];
-        // All finite when v·0 sums to zero (a non-finite v makes it NaN); no loop.
-        let [a, b, c, d, e] = values;
-        let probe = a * R::ZERO + b * R::ZERO + c * R::ZERO + d * R::ZERO + e * R::ZERO;
-        if probe.is_finite() {
+        // For a finite u > 0 only `1/u` can overflow (u below about 1/MAX, a subnormal):
+        // `u − 1`, √u − 1 and ln u are finite, and √u ≥ √(smallest subnormal) keeps
+        // `1/√u` finite in both widths (tested on the extreme values).
+        if values[4].is_finite() {
             Some((values, ln_u))
         } else {
             None
@@ -348,6 +348,45 @@ mod tests {
         }
         assert!(Rung::apply_every(0.0f32).is_none());
         assert!(Rung::apply_every(f32::NAN).is_none());
+        assert!(Rung::apply_every(f32::INFINITY).is_none());
+        assert!(Rung::apply_every(-1.0f32).is_none());
+    }
+
+    /// `apply_every` checks only the `inverse` value for overflow: on the extreme positive
+    /// values of both widths it agrees with applying each rung alone.
+    #[test]
+    fn apply_every_agrees_at_the_extremes() {
+        fn check<R: Real + core::fmt::Debug>(values: &[R]) {
+            for &u in values {
+                let every = Rung::apply_every(u);
+                let each: Option<[R; RUNG_COUNT]> = Rung::ALL
+                    .map(|rung| rung.apply(u))
+                    .into_iter()
+                    .collect::<Option<std::vec::Vec<R>>>()
+                    .map(|v| [v[0], v[1], v[2], v[3], v[4]]);
+                assert_eq!(every.map(|(values, _)| values), each, "u = {u:?}");
+            }
+        }
+        let tiny32 = f32::from_bits(1);
+        check::<f32>(&[
+            tiny32,
+            1e-39,
+            2.9e-39,
+            3.0e-39,
+            f32::MIN_POSITIVE,
+            1e-30,
+            f32::MAX,
+            1e38,
+        ]);
+        let tiny64 = f64::from_bits(1);
+        check::<f64>(&[
+            tiny64,
+            1e-310,
+            5.6e-309,
+            5.57e-309,
+            f64::MIN_POSITIVE,
+            f64::MAX,
+        ]);
     }
 
     #[test]
