@@ -54,7 +54,8 @@ pub struct LadderConfig<R> {
     pub switch_margin: R,
     /// Checks a rung must keep winning (compared every `decide_every` checks) for a switch.
     pub switch_hold: u32,
-    /// The rungs are compared every this many checks (a comparison costs five logarithms).
+    /// The rungs are compared every this many checks (a comparison costs an exponential,
+    /// and a logarithm when another rung leads).
     pub decide_every: u32,
 }
 
