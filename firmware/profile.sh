@@ -5,11 +5,17 @@
 # address to its source function with llvm-symbolizer (inlined frames included). Prints the
 # out-of-line functions (with calls) and the inlined core functions, per check of the run.
 # A diagnostic, not a benchmark: firmware/measure.sh gives the figures to quote.
-# Usage: firmware/profile.sh [ROWS]   (default 3000; needs qemu-system-arm, llvm-symbolizer,
-#   llvm-nm, python3; the log takes about 100 bytes per executed instruction)
+# The second part counts only what runs inside `Monitor::push` (from its entry to the return
+# address of the call), per check after the first SKIP checks (the warm-up and the
+# likelihood sums' start): a push is a check when it ran the ladder's update, whose frames
+# the symbolizer names; the other pushes are readings.
+# Usage: firmware/profile.sh [ROWS] [SKIP]   (defaults 3000 and 200; needs qemu-system-arm,
+#   llvm-symbolizer, llvm-nm, python3; the log takes about 100 bytes per executed
+#   instruction: 12,000 rows write about 7 GB)
 set -euo pipefail
 cd "$(dirname "$0")"
 rows="${1:-3000}"
+skip="${2:-200}"
 for tool in qemu-system-arm llvm-symbolizer llvm-nm python3; do
   command -v "$tool" >/dev/null || { echo "$tool missing" >&2; exit 2; }
 done
@@ -29,9 +35,9 @@ awk '{ split($4, a, "/"); if (a[2] ~ /^[0-9a-f]+$/) n[a[2]]++ } END { for (pc in
 awk '{ print "0x" $2 }' "$work/pcs.txt" |
   llvm-symbolizer --obj="$elf" --inlining --functions=short --output-style=JSON >"$work/sym.json"
 llvm-nm -n -S "$elf" | awk '$3 ~ /[tT]/' >"$work/syms.txt"
-python3 - "$work" "$checks" <<'PY'
+python3 - "$work" "$checks" "$skip" <<'PY'
 import collections, json, sys
-work, checks = sys.argv[1], max(int(sys.argv[2] or 1), 1)
+work, checks, skip = sys.argv[1], max(int(sys.argv[2] or 1), 1), int(sys.argv[3])
 counts = {}
 for line in open(f"{work}/pcs.txt"):
     c, pc = line.split()
@@ -60,4 +66,53 @@ for line in open(f"{work}/sym.json"):
     inner[f"{frames[0]['FunctionName'][:40]} < {caller[:40]}"] += counts.get(int(d["Address"], 16), 0)
 for key, n in inner.most_common(30):
     print(f"{n / checks:9.1f}  {key}")
+
+print("\npushes only: per check after the first", skip, "checks, by the frames under push (depth 3)")
+symbols = {}
+for line in open(f"{work}/sym.json"):
+    d = json.loads(line)
+    symbols[int(d["Address"], 16)] = d["Symbol"]
+ladder_update = {pc for pc, frames in symbols.items()
+                 if any(f["FunctionName"].startswith("update_assessed") for f in frames)}
+entry = next(int(line.split()[0], 16) for line in open(f"{work}/syms.txt")
+             if "7monitor" in line.split()[3] and "$GT$4push17h" in line.split()[3])
+live = collections.Counter()
+live_checks = seen_checks = 0
+inside, ret, prev, call, is_check = False, None, 0, None, False
+with open(f"{work}/trace.log", "rb") as trace:
+    for line in trace:
+        fields = line.split(b"[", 1)
+        if len(fields) < 2:
+            continue
+        parts = fields[1].split(b"/", 2)
+        if len(parts) < 2:
+            continue
+        pc = int(parts[1], 16)
+        if not inside:
+            if pc == entry:
+                inside, ret, call, is_check = True, prev + 4, collections.Counter({pc: 1}), False
+            prev = pc
+            continue
+        if pc == ret:
+            inside = False
+            if is_check:
+                seen_checks += 1
+                if seen_checks > skip:
+                    live.update(call)
+                    live_checks += 1
+        else:
+            call[pc] += 1
+            is_check = is_check or pc in ladder_update
+        prev = pc
+n = max(live_checks, 1)
+print(f"{live_checks} checks, {sum(live.values()) / n:.1f} instructions per check inside push")
+phases = collections.Counter()
+for pc, c in live.items():
+    frames = symbols.get(pc, [])
+    outer = frames[-1]["FunctionName"].split("<")[0] if frames else "?"
+    core = [f["FunctionName"].split("<")[0] for f in reversed(frames)
+            if "/core/src/" in f["FileName"] and "/rustc/" not in f["FileName"]]
+    phases[f"{outer} :: {' > '.join(core[:3])}"] += c
+for key, c in phases.most_common(30):
+    print(f"{c / n:9.1f}  {key}")
 PY
