@@ -245,6 +245,14 @@ pub(crate) trait Wire: Sized {
     fn put(&self, w: &mut Writer<'_>);
     /// Reads one value (any value when the reader fails; the caller then discards it).
     fn get(r: &mut Reader<'_>) -> Self;
+    /// Reads one value into `self`, in place: the same value as `*self = Self::get(r)`
+    /// (the snapshot's monitor also leaves its derived fields, which `complete_restored`
+    /// rebuilds). Structs override it field by field, so a large state is decoded
+    /// straight into its place instead of through temporaries that are then copied.
+    #[inline]
+    fn read(&mut self, r: &mut Reader<'_>) {
+        *self = Self::get(r);
+    }
 }
 
 /// The encoding of `value` into `out`; returns the length written.
@@ -255,6 +263,18 @@ pub(crate) fn to_slice<T: Wire>(value: &T, out: &mut [u8]) -> Result<usize, Full
         return Err(Full);
     }
     Ok(w.at)
+}
+
+/// Decodes one value from the front of `bytes` into `value` (in place, see
+/// [`Wire::read`]); returns the number of bytes left after it. On an error `value` holds
+/// whatever was read and must be discarded.
+pub(crate) fn read_from_bytes<T: Wire>(value: &mut T, bytes: &[u8]) -> Result<usize, Bad> {
+    let mut r = Reader::new(bytes);
+    value.read(&mut r);
+    if r.bad {
+        return Err(Bad);
+    }
+    Ok(bytes.len() - r.at)
 }
 
 /// One value from the front of `bytes`, and the number of bytes left after it.
@@ -373,6 +393,11 @@ impl<T: Wire + Copy + Default, const N: usize> Wire for [T; N] {
         }
         out
     }
+    fn read(&mut self, r: &mut Reader<'_>) {
+        for value in self.iter_mut() {
+            value.read(r);
+        }
+    }
 }
 
 /// `Wire` for a struct: its fields in declaration order, every field listed.
@@ -384,6 +409,9 @@ macro_rules! wire_struct {
             }
             fn get(r: &mut $crate::wire::Reader<'_>) -> Self {
                 Self { $( $field: $crate::wire::Wire::get(r), )* }
+            }
+            fn read(&mut self, r: &mut $crate::wire::Reader<'_>) {
+                $( $crate::wire::Wire::read(&mut self.$field, r); )*
             }
         }
     };
