@@ -425,6 +425,8 @@ macro_rules! wire_unit_enum {
             fn put(&self, w: &mut Writer<'_>) {
                 w.varint32(*self as u32);
             }
+            // Out of line: the index-to-variant lookup once per enum, not at every field.
+            #[inline(never)]
             fn get(r: &mut Reader<'_>) -> Self {
                 const ALL: &[$ty] = &[$($ty::$variant),*];
                 // In range: `variant_below` gives 0 for an index past the end.
