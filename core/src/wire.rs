@@ -554,15 +554,30 @@ wire_struct!(impl[] LogStart { magic, version, real_bits });
 
 impl<R: Real> Wire for EventKind<R> {
     fn put(&self, w: &mut Writer<'_>) {
+        // The variant index first, written once (the match compiles to a load of the
+        // discriminant), then the variant's fields.
+        let index = match self {
+            EventKind::SpreadTracksLevel { .. } => 0,
+            EventKind::TransformChanged { .. } => 1,
+            EventKind::MeanMisfit { .. } => 2,
+            EventKind::SampleRejected { .. } => 3,
+            EventKind::BiasShift { .. } => 4,
+            EventKind::GainDrift { .. } => 5,
+            EventKind::OffsetDrift { .. } => 6,
+            EventKind::SpreadJump { .. } => 7,
+            EventKind::SignalStuck { .. } => 8,
+            EventKind::SignalOutOfRange { .. } => 9,
+            EventKind::ReferenceGap { .. } => 10,
+            EventKind::Cleared { .. } => 11,
+        };
+        w.byte(index);
         match self {
             EventKind::SpreadTracksLevel { k, k_low, k_high } => {
-                w.byte(0);
                 k.put(w);
                 k_low.put(w);
                 k_high.put(w);
             }
             EventKind::TransformChanged { from, to, gain } => {
-                w.byte(1);
                 from.put(w);
                 to.put(w);
                 gain.put(w);
@@ -574,7 +589,6 @@ impl<R: Real> Wire for EventKind<R> {
                 suggest_quadratic,
                 suggest_temperature,
             } => {
-                w.byte(2);
                 rung.put(w);
                 statistic.put(w);
                 dof.put(w);
@@ -582,7 +596,6 @@ impl<R: Real> Wire for EventKind<R> {
                 suggest_temperature.put(w);
             }
             EventKind::SampleRejected { reason } => {
-                w.byte(3);
                 reason.put(w);
             }
             EventKind::BiasShift {
@@ -590,7 +603,6 @@ impl<R: Real> Wire for EventKind<R> {
                 size,
                 severity,
             } => {
-                w.byte(4);
                 direction.put(w);
                 size.put(w);
                 severity.put(w);
@@ -600,7 +612,6 @@ impl<R: Real> Wire for EventKind<R> {
                 uncertainty,
                 severity,
             } => {
-                w.byte(5);
                 change.put(w);
                 uncertainty.put(w);
                 severity.put(w);
@@ -610,33 +621,27 @@ impl<R: Real> Wire for EventKind<R> {
                 uncertainty,
                 severity,
             } => {
-                w.byte(6);
                 change.put(w);
                 uncertainty.put(w);
                 severity.put(w);
             }
             EventKind::SpreadJump { ratio, severity } => {
-                w.byte(7);
                 ratio.put(w);
                 severity.put(w);
             }
             EventKind::SignalStuck { run, severity } => {
-                w.byte(8);
                 run.put(w);
                 severity.put(w);
             }
             EventKind::SignalOutOfRange { raw, severity } => {
-                w.byte(9);
                 raw.put(w);
                 severity.put(w);
             }
             EventKind::ReferenceGap { seconds, severity } => {
-                w.byte(10);
                 seconds.put(w);
                 severity.put(w);
             }
             EventKind::Cleared { alarm } => {
-                w.byte(11);
                 alarm.put(w);
             }
         }
@@ -710,19 +715,17 @@ impl<R: Real> Wire for EventKind<R> {
 
 impl<R: Real> Wire for Record<R> {
     fn put(&self, w: &mut Writer<'_>) {
+        // As for `EventKind`: the variant index once, then the variant's fields.
+        let index = match self {
+            Record::Start(_) => 0,
+            Record::Sample(_) => 1,
+            Record::Event(_) => 2,
+        };
+        w.byte(index);
         match self {
-            Record::Start(start) => {
-                w.byte(0);
-                start.put(w);
-            }
-            Record::Sample(sample) => {
-                w.byte(1);
-                sample.put(w);
-            }
-            Record::Event(event) => {
-                w.byte(2);
-                event.put(w);
-            }
+            Record::Start(start) => start.put(w),
+            Record::Sample(sample) => sample.put(w),
+            Record::Event(event) => event.put(w),
         }
     }
 
