@@ -76,7 +76,8 @@ impl<R: Real> Basis<R> {
 
     /// Checks scales and capacity.
     pub fn validate(&self, capacity: usize) -> Result<(), BasisError> {
-        let good = |scale: R| scale.is_finite() && scale > R::ZERO;
+        // `scale.is_finite() && scale > 0`, as one comparison of the bits.
+        let good = |scale: R| scale.is_positive_finite();
         if !good(self.reference_scale)
             || (self.temperature
                 && (!good(self.temperature_scale) || !self.temperature_reference.is_finite()))

@@ -176,8 +176,16 @@ impl<R: Real> MonitorConfig<R> {
 
     /// Checks every value, naming the first offending parameter.
     pub fn validate(&self, capacity: usize) -> Result<(), ConfigError> {
+        // Out of line, one call per setting: inlined, each `is_finite() && x > 0` test
+        // takes some forty bytes of bit tests on a board.
+        #[inline(never)]
+        fn positive<R: Real>(x: R) -> bool {
+            // The same as the module's `positive`: `x.is_finite() && x > 0`.
+            debug_assert_eq!(x.is_positive_finite(), self::positive(x));
+            x.is_positive_finite()
+        }
         let beta = self.forgetting;
-        if !(beta.is_finite() && beta > R::ZERO && beta <= R::ONE) {
+        if !(positive(beta) && beta <= R::ONE) {
             return Err(ConfigError::Forgetting);
         }
         if !positive(self.initial_variance) {
@@ -192,7 +200,8 @@ impl<R: Real> MonitorConfig<R> {
         {
             return Err(ConfigError::LevelRange);
         }
-        if !(self.switch_margin.is_finite() && self.switch_margin >= R::ZERO) {
+        // `is_finite() && >= 0` (true for -0 as well).
+        if !(self.switch_margin == R::ZERO || positive(self.switch_margin)) {
             return Err(ConfigError::SwitchMargin);
         }
         if !positive(self.spread_threshold) {

@@ -346,8 +346,9 @@ impl<'a> Snapshot<'a> {
             });
         }
         let payload = self.payload();
-        let (mut monitor, unused): (Monitor<R, P, BINS, Q>, usize) =
-            wire::take_from_bytes(payload).map_err(|_| SnapshotError::MalformedPayload)?;
+        let mut monitor = Monitor::<R, P, BINS, Q>::blank();
+        let unused = wire::read_from_bytes(&mut monitor, payload)
+            .map_err(|_| SnapshotError::MalformedPayload)?;
         if unused != 0 {
             return Err(SnapshotError::PayloadLeftover { unused });
         }

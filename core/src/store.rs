@@ -185,15 +185,16 @@ impl<F: NorFlash> SnapshotStore<F> {
                 .map_err(StoreError::Flash)?;
         }
         let body = SEQ_LEN + len;
-        let stored = u32::from_le_bytes([
-            scratch[body],
-            scratch[body + 1],
-            scratch[body + 2],
-            scratch[body + 3],
-        ]);
-        if CRC32.checksum(&scratch[..body]) != stored
-            || Snapshot::parse(&scratch[SEQ_LEN..body]).is_err()
-        {
+        // Always there (`body + CRC_LEN` is `record` ≤ `whole` ≤ the scratch length): one
+        // checked split instead of a bounds check, and a panic path, per byte.
+        let Some((data, &[a, b, c, d])) = scratch
+            .get(..body + CRC_LEN)
+            .and_then(|bytes| bytes.split_last_chunk::<CRC_LEN>())
+        else {
+            return Ok(None);
+        };
+        let stored = u32::from_le_bytes([a, b, c, d]);
+        if CRC32.checksum(data) != stored || Snapshot::parse(&scratch[SEQ_LEN..body]).is_err() {
             return Ok(None);
         }
         let seq = u32::from_le_bytes([scratch[0], scratch[1], scratch[2], scratch[3]]);

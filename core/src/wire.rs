@@ -245,6 +245,22 @@ pub(crate) trait Wire: Sized {
     fn put(&self, w: &mut Writer<'_>);
     /// Reads one value (any value when the reader fails; the caller then discards it).
     fn get(r: &mut Reader<'_>) -> Self;
+    /// Reads one value into `self`, in place: the same value as `*self = Self::get(r)`
+    /// (the snapshot's monitor also leaves its derived fields, which `complete_restored`
+    /// rebuilds). Structs override it field by field, so a large state is decoded
+    /// straight into its place instead of through temporaries that are then copied.
+    #[inline]
+    fn read(&mut self, r: &mut Reader<'_>) {
+        *self = Self::get(r);
+    }
+    /// What an `Option<Self>` is decoded into in place (set to `Some(blank)`, then
+    /// [`Wire::read`]); `None`: by value. Worth it for the larger optional state. A
+    /// function, not a constant: zeros built in place take less flash than a copied
+    /// constant.
+    #[inline]
+    fn blank() -> Option<Self> {
+        None
+    }
 }
 
 /// The encoding of `value` into `out`; returns the length written.
@@ -255,6 +271,18 @@ pub(crate) fn to_slice<T: Wire>(value: &T, out: &mut [u8]) -> Result<usize, Full
         return Err(Full);
     }
     Ok(w.at)
+}
+
+/// Decodes one value from the front of `bytes` into `value` (in place, see
+/// [`Wire::read`]); returns the number of bytes left after it. On an error `value` holds
+/// whatever was read and must be discarded.
+pub(crate) fn read_from_bytes<T: Wire>(value: &mut T, bytes: &[u8]) -> Result<usize, Bad> {
+    let mut r = Reader::new(bytes);
+    value.read(&mut r);
+    if r.bad {
+        return Err(Bad);
+    }
+    Ok(bytes.len() - r.at)
 }
 
 /// One value from the front of `bytes`, and the number of bytes left after it.
@@ -358,6 +386,17 @@ impl<T: Wire> Wire for Option<T> {
             None
         }
     }
+    fn read(&mut self, r: &mut Reader<'_>) {
+        if r.bool() {
+            // `T::blank` is inlined and known: one of the two arms is compiled.
+            match T::blank() {
+                Some(blank) => self.insert(blank).read(r),
+                None => *self = Some(T::get(r)),
+            }
+        } else {
+            *self = None;
+        }
+    }
 }
 
 impl<T: Wire + Copy + Default, const N: usize> Wire for [T; N] {
@@ -373,17 +412,31 @@ impl<T: Wire + Copy + Default, const N: usize> Wire for [T; N] {
         }
         out
     }
+    fn read(&mut self, r: &mut Reader<'_>) {
+        for value in self.iter_mut() {
+            value.read(r);
+        }
+    }
 }
 
 /// `Wire` for a struct: its fields in declaration order, every field listed.
 macro_rules! wire_struct {
-    (impl[$($gen:tt)*] $ty:ty { $($field:ident),* $(,)? }) => {
+    (impl[$($gen:tt)*] $ty:ty { $($field:ident),* $(,)? } $(blank: $blank:expr)?) => {
         impl<$($gen)*> $crate::wire::Wire for $ty {
+            $(
+                #[inline]
+                fn blank() -> Option<Self> {
+                    Some($blank)
+                }
+            )?
             fn put(&self, w: &mut $crate::wire::Writer<'_>) {
                 $( $crate::wire::Wire::put(&self.$field, w); )*
             }
             fn get(r: &mut $crate::wire::Reader<'_>) -> Self {
                 Self { $( $field: $crate::wire::Wire::get(r), )* }
+            }
+            fn read(&mut self, r: &mut $crate::wire::Reader<'_>) {
+                $( $crate::wire::Wire::read(&mut self.$field, r); )*
             }
         }
     };
@@ -397,6 +450,8 @@ macro_rules! wire_unit_enum {
             fn put(&self, w: &mut Writer<'_>) {
                 w.varint32(*self as u32);
             }
+            // Out of line: the index-to-variant lookup once per enum, not at every field.
+            #[inline(never)]
             fn get(r: &mut Reader<'_>) -> Self {
                 const ALL: &[$ty] = &[$($ty::$variant),*];
                 // In range: `variant_below` gives 0 for an index past the end.
@@ -462,7 +517,11 @@ wire_struct!(impl[] AlarmRules {
     reference_gap,
 });
 wire_struct!(impl[R: Real] SpreadConfig<R> { level_low, level_high, forgetting });
-wire_struct!(impl[R: Real] SpreadExponent<R> { k, standard_error, bins_used });
+wire_struct!(impl[R: Real] SpreadExponent<R> { k, standard_error, bins_used } blank: SpreadExponent {
+    k: R::ZERO,
+    standard_error: R::ZERO,
+    bins_used: 0,
+});
 wire_struct!(impl[R: Real, const P: usize] RungState<R, P> { fit, transformed_sse });
 wire_struct!(impl[] Counters { samples, checks, rejected, below_origin, readings });
 wire_struct!(impl[] DetectorCounts {
@@ -470,10 +529,24 @@ wire_struct!(impl[] DetectorCounts {
     spread_jump_signals, drift_evaluations, drift_significant, gap_samples,
 });
 wire_struct!(impl[R: Real] Detectors<R> { screen, cusum, spread_jump, drift, alarms, counts });
-wire_struct!(impl[R: Real] Baseline<R> { parameters, covariance });
+wire_struct!(impl[R: Real] Baseline<R> { parameters, covariance } blank: Baseline {
+    parameters: [R::ZERO; 4],
+    covariance: [[R::ZERO; 4]; 4],
+});
 wire_struct!(impl[R: Real] DriftStatus<R> {
     gain_change, gain_uncertainty, offset_change, offset_uncertainty, wald, threshold, dof,
     significant, gain_beyond_tolerance, offset_beyond_tolerance,
+} blank: DriftStatus {
+    gain_change: None,
+    gain_uncertainty: None,
+    offset_change: R::ZERO,
+    offset_uncertainty: R::ZERO,
+    wald: R::ZERO,
+    threshold: R::ZERO,
+    dof: 0,
+    significant: false,
+    gain_beyond_tolerance: false,
+    offset_beyond_tolerance: false,
 });
 wire_struct!(impl[R: Real] Event<R> { seq, kind });
 wire_struct!(impl[R: Real] Sample<R> { seq, t, raw, reference, temperature });
@@ -481,15 +554,30 @@ wire_struct!(impl[] LogStart { magic, version, real_bits });
 
 impl<R: Real> Wire for EventKind<R> {
     fn put(&self, w: &mut Writer<'_>) {
+        // The variant index first, written once (the match compiles to a load of the
+        // discriminant), then the variant's fields.
+        let index = match self {
+            EventKind::SpreadTracksLevel { .. } => 0,
+            EventKind::TransformChanged { .. } => 1,
+            EventKind::MeanMisfit { .. } => 2,
+            EventKind::SampleRejected { .. } => 3,
+            EventKind::BiasShift { .. } => 4,
+            EventKind::GainDrift { .. } => 5,
+            EventKind::OffsetDrift { .. } => 6,
+            EventKind::SpreadJump { .. } => 7,
+            EventKind::SignalStuck { .. } => 8,
+            EventKind::SignalOutOfRange { .. } => 9,
+            EventKind::ReferenceGap { .. } => 10,
+            EventKind::Cleared { .. } => 11,
+        };
+        w.byte(index);
         match self {
             EventKind::SpreadTracksLevel { k, k_low, k_high } => {
-                w.byte(0);
                 k.put(w);
                 k_low.put(w);
                 k_high.put(w);
             }
             EventKind::TransformChanged { from, to, gain } => {
-                w.byte(1);
                 from.put(w);
                 to.put(w);
                 gain.put(w);
@@ -501,7 +589,6 @@ impl<R: Real> Wire for EventKind<R> {
                 suggest_quadratic,
                 suggest_temperature,
             } => {
-                w.byte(2);
                 rung.put(w);
                 statistic.put(w);
                 dof.put(w);
@@ -509,7 +596,6 @@ impl<R: Real> Wire for EventKind<R> {
                 suggest_temperature.put(w);
             }
             EventKind::SampleRejected { reason } => {
-                w.byte(3);
                 reason.put(w);
             }
             EventKind::BiasShift {
@@ -517,7 +603,6 @@ impl<R: Real> Wire for EventKind<R> {
                 size,
                 severity,
             } => {
-                w.byte(4);
                 direction.put(w);
                 size.put(w);
                 severity.put(w);
@@ -527,7 +612,6 @@ impl<R: Real> Wire for EventKind<R> {
                 uncertainty,
                 severity,
             } => {
-                w.byte(5);
                 change.put(w);
                 uncertainty.put(w);
                 severity.put(w);
@@ -537,33 +621,27 @@ impl<R: Real> Wire for EventKind<R> {
                 uncertainty,
                 severity,
             } => {
-                w.byte(6);
                 change.put(w);
                 uncertainty.put(w);
                 severity.put(w);
             }
             EventKind::SpreadJump { ratio, severity } => {
-                w.byte(7);
                 ratio.put(w);
                 severity.put(w);
             }
             EventKind::SignalStuck { run, severity } => {
-                w.byte(8);
                 run.put(w);
                 severity.put(w);
             }
             EventKind::SignalOutOfRange { raw, severity } => {
-                w.byte(9);
                 raw.put(w);
                 severity.put(w);
             }
             EventKind::ReferenceGap { seconds, severity } => {
-                w.byte(10);
                 seconds.put(w);
                 severity.put(w);
             }
             EventKind::Cleared { alarm } => {
-                w.byte(11);
                 alarm.put(w);
             }
         }
@@ -637,19 +715,17 @@ impl<R: Real> Wire for EventKind<R> {
 
 impl<R: Real> Wire for Record<R> {
     fn put(&self, w: &mut Writer<'_>) {
+        // As for `EventKind`: the variant index once, then the variant's fields.
+        let index = match self {
+            Record::Start(_) => 0,
+            Record::Sample(_) => 1,
+            Record::Event(_) => 2,
+        };
+        w.byte(index);
         match self {
-            Record::Start(start) => {
-                w.byte(0);
-                start.put(w);
-            }
-            Record::Sample(sample) => {
-                w.byte(1);
-                sample.put(w);
-            }
-            Record::Event(event) => {
-                w.byte(2);
-                event.put(w);
-            }
+            Record::Start(start) => start.put(w),
+            Record::Sample(sample) => sample.put(w),
+            Record::Event(event) => event.put(w),
         }
     }
 

@@ -152,6 +152,18 @@ impl<R: Real> DetectConfig<R> {
 
     /// Checks every value, naming the first offending parameter.
     pub fn validate(&self) -> Result<(), DetectConfigError> {
+        // Out of line, one call per setting: inlined, each `is_finite() && x >= 0` test
+        // takes some forty bytes of bit tests on a board.
+        #[inline(never)]
+        fn positive<R: Real>(x: R) -> bool {
+            // `x.is_finite() && x > 0`.
+            x.is_positive_finite()
+        }
+        #[inline(never)]
+        fn non_negative<R: Real>(x: R) -> bool {
+            // `x.is_finite() && x >= 0` (true for -0 as well).
+            x == R::ZERO || x.is_positive_finite()
+        }
         let screen = &self.screen;
         if !(screen.raw_low < screen.raw_high) {
             return Err(DetectConfigError::RawRange);
@@ -171,24 +183,22 @@ impl<R: Real> DetectConfig<R> {
         if !(screen.reference_gap_seconds > 0.0) {
             return Err(DetectConfigError::ReferenceGap);
         }
-        if !self.cusum.is_valid() {
+        // `CusumConfig::is_valid` and `SpreadJumpConfig::is_valid`, spelled out.
+        if !(non_negative(self.cusum.reference_value) && positive(self.cusum.decision_interval)) {
             return Err(DetectConfigError::Cusum);
         }
-        if !self.spread_jump.is_valid() {
+        let jump = &self.spread_jump;
+        if !(non_negative(jump.reference_value) && positive(jump.decision_interval)) {
             return Err(DetectConfigError::SpreadJump);
         }
         let drift = &self.drift;
-        if !(drift.gain_tolerance_percent.is_finite() && drift.gain_tolerance_percent >= R::ZERO) {
+        if !non_negative(drift.gain_tolerance_percent) {
             return Err(DetectConfigError::GainTolerance);
         }
-        if !(drift.offset_tolerance.is_finite() && drift.offset_tolerance >= R::ZERO) {
+        if !non_negative(drift.offset_tolerance) {
             return Err(DetectConfigError::OffsetTolerance);
         }
-        if !drift
-            .wald_quantiles
-            .iter()
-            .all(|q| q.is_finite() && *q > R::ZERO)
-        {
+        if !drift.wald_quantiles.iter().all(|&q| positive(q)) {
             return Err(DetectConfigError::WaldQuantiles);
         }
         if drift.every == 0 {

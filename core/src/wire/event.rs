@@ -32,4 +32,16 @@ impl<R: Real, const Q: usize> Wire for EventQueue<R, Q> {
             dropped: Wire::get(r),
         }
     }
+    fn read(&mut self, r: &mut Reader<'_>) {
+        let len = r.len();
+        if len > Q {
+            r.fail();
+        }
+        self.events.clear();
+        for _ in 0..len.min(Q) {
+            // Cannot be full: at most Q pushes.
+            let _ = self.events.push_back(Wire::get(r));
+        }
+        self.dropped.read(r);
+    }
 }

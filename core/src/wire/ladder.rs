@@ -33,4 +33,16 @@ impl<R: Real, const P: usize> Wire for PowerLadder<R, P> {
             since_decision: Wire::get(r),
         }
     }
+    fn read(&mut self, r: &mut Reader<'_>) {
+        for rung in &mut self.rungs {
+            rung.read(r);
+        }
+        self.log_level_sum.read(r);
+        self.sample_weight.read(r);
+        self.active.read(r);
+        self.candidate.read(r);
+        self.lead.read(r);
+        self.checks.read(r);
+        self.since_decision.read(r);
+    }
 }

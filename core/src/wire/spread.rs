@@ -1,7 +1,7 @@
 //! [`Wire`] for the spread profile: a child of `spread` for its private fields; the bytes
 //! are postcard's (see [`crate::wire`]).
 
-use super::{BinAccumulator, KoenkerSums, SpreadProfile};
+use super::{BinAccumulator, KoenkerSums, SpreadConfig, SpreadProfile};
 use crate::real::Real;
 use crate::wire::{wire_struct, Reader, Wire, Writer};
 
@@ -45,5 +45,38 @@ impl<R: Real, const BINS: usize> Wire for SpreadProfile<R, BINS> {
             *bin = Wire::get(r);
         }
         profile
+    }
+    fn read(&mut self, r: &mut Reader<'_>) {
+        self.config.read(r);
+        self.log_level_low.read(r);
+        self.bins_per_log_unit.read(r);
+        self.accepting.read(r);
+        self.koenker.read(r);
+        self.scale.read(r);
+        self.sample_weight.read(r);
+        for bin in self.bins.iter_mut() {
+            bin.read(r);
+        }
+    }
+}
+
+impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
+    /// A profile of zeros to decode into (every field is then overwritten).
+    pub(crate) fn blank() -> Self {
+        let z = R::ZERO;
+        SpreadProfile {
+            config: SpreadConfig {
+                level_low: z,
+                level_high: z,
+                forgetting: z,
+            },
+            log_level_low: z,
+            bins_per_log_unit: z,
+            accepting: false,
+            koenker: KoenkerSums::EMPTY,
+            scale: z,
+            sample_weight: z,
+            bins: [BinAccumulator::EMPTY; BINS],
+        }
     }
 }

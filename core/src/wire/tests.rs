@@ -7,7 +7,7 @@ use proptest::prelude::*;
 use serde::de::DeserializeOwned;
 use serde::Serialize;
 
-use super::{take_from_bytes, to_slice, Wire};
+use super::{read_from_bytes, take_from_bytes, to_slice, Wire};
 use crate::event::{AlarmKind, Direction, Event, EventKind, RejectReason, Severity};
 use crate::monitor::{Monitor, MonitorConfig};
 use crate::real::Real;
@@ -49,6 +49,26 @@ fn same_decoding<T: Wire + Serialize + DeserializeOwned>(
             "postcard ok: {}, codec ok: {} on {bytes:02x?}",
             theirs.is_ok(),
             mine.is_ok()
+        ))),
+    }
+}
+
+/// The in-place decoder into a blank monitor and the by-value decoder on `bytes`: same
+/// verdict, and when both decode, the same bytes left and the same encoding.
+fn same_in_place<R: Real, const P: usize>(bytes: &[u8]) -> Result<(), TestCaseError> {
+    let mut monitor = Monitor::<R, P>::blank();
+    let in_place = read_from_bytes(&mut monitor, bytes);
+    match (take_from_bytes::<Monitor<R, P>>(bytes), in_place) {
+        (Err(_), Err(_)) => Ok(()),
+        (Ok((value, rest)), Ok(unused)) => {
+            prop_assert_eq!(rest, unused);
+            prop_assert_eq!(ours(&value), ours(&monitor));
+            Ok(())
+        }
+        (by_value, in_place) => Err(TestCaseError::fail(std::format!(
+            "by value ok: {}, in place ok: {} on {bytes:02x?}",
+            by_value.is_ok(),
+            in_place.is_ok()
         ))),
     }
 }
@@ -115,7 +135,11 @@ fn check_monitor<R: Real, const P: usize>(
     }
     same_decoding::<Monitor<R, P>>(&damaged)?;
     let cut = flips.first().map_or(0, |&(at, _)| at % (bytes.len() + 1));
-    same_decoding::<Monitor<R, P>>(&bytes[..cut])
+    same_decoding::<Monitor<R, P>>(&bytes[..cut])?;
+    // The in-place decoder (the snapshot's) agrees with the by-value one.
+    same_in_place::<R, P>(&bytes)?;
+    same_in_place::<R, P>(&damaged)?;
+    same_in_place::<R, P>(&bytes[..cut])
 }
 
 fn event_kind<R: Real>(variant: u8, a: f64, b: f64, small: u8, run: u32) -> EventKind<R> {
