@@ -78,6 +78,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             level_origin: z,
             level_scale: z,
             inverse_level_scale: z,
+            log_level_scale: z,
             level_floor: z,
             warm_up: 0,
             switch_margin: z,
