@@ -551,24 +551,19 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         });
         // A refused update (a non-finite result, which is what a non-finite regressor or
         // raw value gives) leaves the rung as it was.
-        {
-            let residual = pass.raw - rung_prediction;
-            let _ = if TWO {
-                state.fit.update_relative_variance_two(
-                    pass.x,
-                    residual,
-                    relative_variance,
-                    pass.forgetting,
-                )
-            } else {
-                state.fit.update_relative_variance(
-                    pass.x,
-                    residual,
-                    relative_variance,
-                    pass.forgetting,
-                )
-            };
-        }
+        let residual = pass.raw - rung_prediction;
+        let _ = if TWO {
+            state.fit.update_relative_variance_two(
+                pass.x,
+                residual,
+                relative_variance,
+                pass.forgetting,
+            )
+        } else {
+            state
+                .fit
+                .update_relative_variance(pass.x, residual, relative_variance, pass.forgetting)
+        };
     }
 
     fn decide(&mut self, config: &LadderConfig<R>) -> Option<Switch<R>> {

@@ -27,7 +27,7 @@ use crate::detect::{DetectConfig, DetectConfigError, DetectorCounts, Detectors};
 use crate::event::{AlarmKind, Event, EventKind, EventQueue, RejectReason, Severity};
 use crate::fit::FitConfig;
 use crate::ladder::{LadderConfig, PowerLadder};
-use crate::real::Real;
+use crate::real::{non_negative_setting, positive_setting, Real};
 use crate::sample::{Flags, Outcome, Reading, Sample};
 use crate::spread::{SpreadConfig, SpreadExponent, SpreadProfile};
 use crate::transform::Rung;
@@ -133,10 +133,6 @@ fn every(count: u64, period: u32) -> bool {
     }
 }
 
-fn positive<R: Real>(value: R) -> bool {
-    value.is_finite() && value > R::ZERO
-}
-
 impl<R: Real> MonitorConfig<R> {
     /// Defaults for a straight-line calibration over the working range `[low, high]` (raw
     /// units above an origin of 0): β = 0.999 (memory of about 1000 checks), warm-up 200
@@ -176,40 +172,31 @@ impl<R: Real> MonitorConfig<R> {
 
     /// Checks every value, naming the first offending parameter.
     pub fn validate(&self, capacity: usize) -> Result<(), ConfigError> {
-        // Out of line, one call per setting: inlined, each `is_finite() && x > 0` test
-        // takes some forty bytes of bit tests on a board.
-        #[inline(never)]
-        fn positive<R: Real>(x: R) -> bool {
-            // The same as the module's `positive`: `x.is_finite() && x > 0`.
-            debug_assert_eq!(x.is_positive_finite(), self::positive(x));
-            x.is_positive_finite()
-        }
         let beta = self.forgetting;
-        if !(positive(beta) && beta <= R::ONE) {
+        if !(positive_setting(beta) && beta <= R::ONE) {
             return Err(ConfigError::Forgetting);
         }
-        if !positive(self.initial_variance) {
+        if !positive_setting(self.initial_variance) {
             return Err(ConfigError::InitialVariance);
         }
         if !self.level_origin.is_finite() {
             return Err(ConfigError::LevelOrigin);
         }
-        if !(positive(self.level_low)
-            && positive(self.level_high)
+        if !(positive_setting(self.level_low)
+            && positive_setting(self.level_high)
             && self.level_low < self.level_high)
         {
             return Err(ConfigError::LevelRange);
         }
-        // `is_finite() && >= 0` (true for -0 as well).
-        if !(self.switch_margin == R::ZERO || positive(self.switch_margin)) {
+        if !non_negative_setting(self.switch_margin) {
             return Err(ConfigError::SwitchMargin);
         }
-        if !positive(self.spread_threshold) {
+        if !positive_setting(self.spread_threshold) {
             return Err(ConfigError::SpreadThreshold);
         }
-        if !(positive(self.coverage_factor)
-            && positive(self.interval_z)
-            && positive(self.mean_check_z))
+        if !(positive_setting(self.coverage_factor)
+            && positive_setting(self.interval_z)
+            && positive_setting(self.mean_check_z))
         {
             return Err(ConfigError::Quantile);
         }

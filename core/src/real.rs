@@ -307,6 +307,22 @@ impl Real for f32 {
     }
 }
 
+/// A configuration value that must be finite and above zero (`x.is_finite() && x > 0`).
+/// Out of line on purpose: the configuration checks call it once per setting, and on a
+/// board each inlined copy of the test would take some forty bytes of bit tests.
+#[inline(never)]
+pub(crate) fn positive_setting<R: Real>(x: R) -> bool {
+    x.is_positive_finite()
+}
+
+/// A configuration value that must be finite and not below zero
+/// (`x.is_finite() && x >= 0`, true for `-0` as well); out of line like
+/// [`positive_setting`].
+#[inline(never)]
+pub(crate) fn non_negative_setting<R: Real>(x: R) -> bool {
+    x == R::ZERO || x.is_positive_finite()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -18,7 +18,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::event::Direction;
-use crate::real::Real;
+use crate::real::{non_negative_setting, positive_setting, Real};
 
 /// Settings of a [`TabularCusum`], in sigma units.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
@@ -40,10 +40,7 @@ impl<R: Real> CusumConfig<R> {
 
     /// True when k ≥ 0 and h > 0, both finite.
     pub fn is_valid(&self) -> bool {
-        self.reference_value.is_finite()
-            && self.reference_value >= R::ZERO
-            && self.decision_interval.is_finite()
-            && self.decision_interval > R::ZERO
+        non_negative_setting(self.reference_value) && positive_setting(self.decision_interval)
     }
 }
 

@@ -27,7 +27,7 @@ pub mod spread_jump;
 use serde::{Deserialize, Serialize};
 
 use crate::event::AlarmKind;
-use crate::real::Real;
+use crate::real::{non_negative_setting, positive_setting, Real};
 
 use alarm::{AlarmBoard, AlarmRules};
 use cusum::{CusumConfig, TabularCusum};
@@ -152,18 +152,6 @@ impl<R: Real> DetectConfig<R> {
 
     /// Checks every value, naming the first offending parameter.
     pub fn validate(&self) -> Result<(), DetectConfigError> {
-        // Out of line, one call per setting: inlined, each `is_finite() && x >= 0` test
-        // takes some forty bytes of bit tests on a board.
-        #[inline(never)]
-        fn positive<R: Real>(x: R) -> bool {
-            // `x.is_finite() && x > 0`.
-            x.is_positive_finite()
-        }
-        #[inline(never)]
-        fn non_negative<R: Real>(x: R) -> bool {
-            // `x.is_finite() && x >= 0` (true for -0 as well).
-            x == R::ZERO || x.is_positive_finite()
-        }
         let screen = &self.screen;
         if !(screen.raw_low < screen.raw_high) {
             return Err(DetectConfigError::RawRange);
@@ -183,22 +171,20 @@ impl<R: Real> DetectConfig<R> {
         if !(screen.reference_gap_seconds > 0.0) {
             return Err(DetectConfigError::ReferenceGap);
         }
-        // `CusumConfig::is_valid` and `SpreadJumpConfig::is_valid`, spelled out.
-        if !(non_negative(self.cusum.reference_value) && positive(self.cusum.decision_interval)) {
+        if !self.cusum.is_valid() {
             return Err(DetectConfigError::Cusum);
         }
-        let jump = &self.spread_jump;
-        if !(non_negative(jump.reference_value) && positive(jump.decision_interval)) {
+        if !self.spread_jump.is_valid() {
             return Err(DetectConfigError::SpreadJump);
         }
         let drift = &self.drift;
-        if !non_negative(drift.gain_tolerance_percent) {
+        if !non_negative_setting(drift.gain_tolerance_percent) {
             return Err(DetectConfigError::GainTolerance);
         }
-        if !non_negative(drift.offset_tolerance) {
+        if !non_negative_setting(drift.offset_tolerance) {
             return Err(DetectConfigError::OffsetTolerance);
         }
-        if !drift.wald_quantiles.iter().all(|&q| positive(q)) {
+        if !drift.wald_quantiles.iter().all(|&q| positive_setting(q)) {
             return Err(DetectConfigError::WaldQuantiles);
         }
         if drift.every == 0 {

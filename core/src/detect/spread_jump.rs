@@ -21,7 +21,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use crate::real::Real;
+use crate::real::{non_negative_setting, positive_setting, Real};
 
 /// `E[ln χ²₁] = ψ(1/2) + ln 2` (from memory).
 pub const MEAN_LN_CHI_SQUARE_1: f64 = -1.270_362_845_461_478;
@@ -48,10 +48,7 @@ impl<R: Real> SpreadJumpConfig<R> {
 
     /// True when k ≥ 0 and h > 0, both finite.
     pub fn is_valid(&self) -> bool {
-        self.reference_value.is_finite()
-            && self.reference_value >= R::ZERO
-            && self.decision_interval.is_finite()
-            && self.decision_interval > R::ZERO
+        non_negative_setting(self.reference_value) && positive_setting(self.decision_interval)
     }
 }
 

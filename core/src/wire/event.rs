@@ -2,8 +2,6 @@
 //! postcard's (see [`crate::wire`]): the waiting events as a sequence, oldest first, then
 //! the dropped count. A sequence longer than the queue does not decode.
 
-use heapless::Deque;
-
 use super::EventQueue;
 use crate::real::Real;
 use crate::wire::{Reader, Wire, Writer};
@@ -18,19 +16,9 @@ impl<R: Real, const Q: usize> Wire for EventQueue<R, Q> {
     }
 
     fn get(r: &mut Reader<'_>) -> Self {
-        let len = r.len();
-        if len > Q {
-            r.fail();
-        }
-        let mut events = Deque::new();
-        for _ in 0..len.min(Q) {
-            // Cannot be full: at most Q pushes.
-            let _ = events.push_back(Wire::get(r));
-        }
-        EventQueue {
-            events,
-            dropped: Wire::get(r),
-        }
+        let mut queue = EventQueue::new();
+        queue.read(r);
+        queue
     }
     fn read(&mut self, r: &mut Reader<'_>) {
         let len = r.len();
