@@ -9,6 +9,7 @@
 # address of the call), per check after the first SKIP checks (the warm-up and the
 # likelihood sums' start): a push is a check when it ran the ladder's update, whose frames
 # the symbolizer names; the other pushes are readings.
+# Environment: PROFILE_DEPTH (frames under push, default 3), PROFILE_ROWS (lines, default 30).
 # Usage: firmware/profile.sh [ROWS] [SKIP]   (defaults 3000 and 200; needs qemu-system-arm,
 #   llvm-symbolizer, llvm-nm, python3; the log takes about 100 bytes per executed
 #   instruction: 12,000 rows write about 7 GB)
@@ -36,7 +37,7 @@ awk '{ print "0x" $2 }' "$work/pcs.txt" |
   llvm-symbolizer --obj="$elf" --inlining --functions=short --output-style=JSON >"$work/sym.json"
 llvm-nm -n -S "$elf" | awk '$3 ~ /[tT]/' >"$work/syms.txt"
 python3 - "$work" "$checks" "$skip" <<'PY'
-import collections, json, sys
+import collections, json, os, sys
 work, checks, skip = sys.argv[1], max(int(sys.argv[2] or 1), 1), int(sys.argv[3])
 counts = {}
 for line in open(f"{work}/pcs.txt"):
@@ -67,7 +68,8 @@ for line in open(f"{work}/sym.json"):
 for key, n in inner.most_common(30):
     print(f"{n / checks:9.1f}  {key}")
 
-print("\npushes only: per check after the first", skip, "checks, by the frames under push (depth 3)")
+depth = int(os.environ.get("PROFILE_DEPTH", "3"))
+print("\npushes only: per check after the first", skip, f"checks, by the frames under push (depth {depth})")
 symbols = {}
 for line in open(f"{work}/sym.json"):
     d = json.loads(line)
@@ -112,7 +114,7 @@ for pc, c in live.items():
     outer = frames[-1]["FunctionName"].split("<")[0] if frames else "?"
     core = [f["FunctionName"].split("<")[0] for f in reversed(frames)
             if "/core/src/" in f["FileName"] and "/rustc/" not in f["FileName"]]
-    phases[f"{outer} :: {' > '.join(core[:3])}"] += c
-for key, c in phases.most_common(30):
+    phases[f"{outer} :: {' > '.join(core[:depth])}"] += c
+for key, c in phases.most_common(int(os.environ.get("PROFILE_ROWS", "30"))):
     print(f"{c / n:9.1f}  {key}")
 PY

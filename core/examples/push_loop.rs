@@ -1,10 +1,12 @@
 //! Pushes a fixed proportional-scatter feed through a monitor: a workload for profilers
-//! (`valgrind --tool=callgrind target/release/examples/push_loop`).
+//! (`valgrind --tool=callgrind target/release/examples/push_loop [CHECKS] [quadratic]`; the
+//! word `quadratic` adds the quadratic term, so the fits use three parameters).
 use steadycal_core::monitor::{Monitor, MonitorConfig};
 use steadycal_core::sample::Sample;
 
 fn main() {
-    let config = MonitorConfig::<f32>::default_for_range(2.0, 1000.0);
+    let mut config = MonitorConfig::<f32>::default_for_range(2.0, 1000.0);
+    config.basis.quadratic = std::env::args().nth(2).as_deref() == Some("quadratic");
     let mut monitor: Monitor<f32> = Monitor::new(config).unwrap();
     let mut state = 0x2545_f491_4f6c_dd1du64;
     let mut next = || {
