@@ -222,7 +222,13 @@ impl<R: Real> DetectConfig<R> {
             drift: DriftConfig {
                 gain_tolerance_percent: c(self.drift.gain_tolerance_percent),
                 offset_tolerance: c(self.drift.offset_tolerance),
-                wald_quantiles: self.drift.wald_quantiles.map(c),
+                // Written out rather than `map`: a board converting its configuration from
+                // constants then folds every conversion at compile time (a loop kept a run-
+                // time f64-to-f32 conversion, about 300 bytes of soft-float code).
+                wald_quantiles: {
+                    let [one, two, three, four] = self.drift.wald_quantiles;
+                    [c(one), c(two), c(three), c(four)]
+                },
                 freeze_after: self.drift.freeze_after,
                 every: self.drift.every,
             },
