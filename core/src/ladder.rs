@@ -151,8 +151,10 @@ pub struct PowerLadder<R, const P: usize> {
 }
 
 impl<R: Real, const P: usize> PowerLadder<R, P> {
-    /// A ladder of `dim`-parameter fits, starting on `initial` rung.
+    /// A ladder of `dim`-parameter fits, starting on `initial` rung. A calibration has at
+    /// least an offset and a gain: `dim` below 2 is taken as 2 (and above `P` as `P`).
     pub fn new(dim: usize, config: &LadderConfig<R>, initial: Rung) -> Self {
+        let dim = dim.max(2);
         let rung = || RungState {
             fit: RecursiveFit::new(dim, config.fit),
             transformed_sse: R::ZERO,
@@ -427,8 +429,11 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             level_floor: config.level_floor,
         };
         // Every rung's fit has the ladder's dimension; the straight line (two parameters)
-        // takes the written-out update inlined into each rung's pass.
-        if P >= 2 && self.rungs[0].fit.dim() == 2 {
+        // takes the written-out update inlined into each rung's pass. A ladder of capacity
+        // two is always a straight line (`new` makes fits of at least two parameters, and a
+        // restored monitor's fits must match its basis), so that capacity compiles only
+        // this pass.
+        if P == 2 || (P >= 2 && self.rungs[0].fit.dim() == 2) {
             self.step_every_rung::<true>(config, &mut pass, below_origin);
         } else {
             self.step_every_rung::<false>(config, &mut pass, below_origin);

@@ -1,24 +1,38 @@
-//! The monitored channel: `Monitor<f32>` with the replay's default configuration, or (with
+//! The monitored channel: a [`BoardMonitor`] with the replay's default configuration, or (with
 //! the `footprint-baseline` feature) an opaque stand-in with the same interface, so that the
 //! size difference of the two builds is the core's share of flash.
 
 use steadycal_core::event::Event;
 use steadycal_core::sample::{Outcome, Sample};
 
+/// Fit parameters the board's monitor has room for: the replay's default calibration is a
+/// straight line (offset and gain), so the board declares two. The host's `Monitor<f32>`
+/// has room for three; a fit stores only the parameters it uses, so the two write the same
+/// snapshot payload (the header records the capacity). A board with a quadratic or
+/// temperature term declares three or four and carries the general fit code
+/// (firmware/README.md, "Footprint", has both figures).
+#[cfg(not(feature = "footprint-baseline"))]
+pub const PARAMETERS: usize = 2;
+
+/// The monitor type this board runs.
+#[cfg(not(feature = "footprint-baseline"))]
+pub type BoardMonitor = steadycal_core::monitor::Monitor<f32, PARAMETERS>;
+
 #[cfg(not(feature = "footprint-baseline"))]
 mod real {
     use super::*;
+    use super::BoardMonitor;
     use steadycal_core::monitor::{Counters, Monitor, MonitorConfig};
     use steadycal_core::transform::Rung;
 
     /// One monitor.
     pub struct Channel {
-        monitor: Monitor<f32>,
+        monitor: BoardMonitor,
     }
 
     impl Channel {
-        /// `size_of::<Monitor<f32>>()`.
-        pub const MONITOR_BYTES: usize = core::mem::size_of::<Monitor<f32>>();
+        /// `size_of::<BoardMonitor>()`.
+        pub const MONITOR_BYTES: usize = core::mem::size_of::<BoardMonitor>();
 
         /// The host's f32 configuration is built from the f64 one in the same way
         /// (`MonitorConfig::<f64>::default_for_range(low, high).convert()`).
@@ -33,11 +47,11 @@ mod real {
             self.monitor.push(sample)
         }
         /// The monitor (for the snapshot store).
-        pub fn monitor(&self) -> &Monitor<f32> {
+        pub fn monitor(&self) -> &BoardMonitor {
             &self.monitor
         }
         /// The monitor (for the restore check after the feed).
-        pub fn monitor_mut(&mut self) -> &mut Monitor<f32> {
+        pub fn monitor_mut(&mut self) -> &mut BoardMonitor {
             &mut self.monitor
         }
         pub fn pop_event(&mut self) -> Option<Event<f32>> {

@@ -11,6 +11,7 @@
 //! With the `footprint-baseline` feature the monitor is not there: saves are skipped and
 //! `finish` only closes the log.
 
+#[cfg(not(feature = "footprint-baseline"))]
 use core::fmt::Write;
 
 use steadycal_core::event::Event;
@@ -23,7 +24,9 @@ use crate::log::{census, LogWriter};
 use crate::storage::{
     RamNorFlash, Scratch, FLASH_LEN, LOG_BASE, LOG_LEN, SCRATCH_LEN, SLOT_LEN, WRITE,
 };
-use crate::{emit, say, Line};
+use crate::say;
+#[cfg(not(feature = "footprint-baseline"))]
+use crate::{emit, Line};
 
 /// Flash, store scratch buffer and event log writer.
 pub struct Persist {
@@ -145,7 +148,7 @@ fn finish(
     channel: &mut Channel,
     last: Option<steadycal_core::store::SlotInfo>,
 ) -> Result<(), &'static str> {
-    use steadycal_core::monitor::Monitor;
+    use crate::channel::BoardMonitor;
     use steadycal_core::sample::{Outcome, Sample};
     use steadycal_core::snapshot::Snapshot;
     use steadycal_core::store::SnapshotStore;
@@ -176,7 +179,7 @@ fn finish(
         }
         emit(&line);
     }
-    let mut restored: Monitor<f32> = Monitor::restore(bytes).map_err(|e| e.reason())?;
+    let mut restored = BoardMonitor::restore(bytes).map_err(|e| e.reason())?;
 
     // Two more samples (invented: a check at mid-range, then a reading) into both.
     let live = channel.monitor_mut();

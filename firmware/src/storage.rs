@@ -186,6 +186,7 @@ impl NorFlash for RamNorFlash {
 }
 
 /// FNV-1a (64-bit) of `bytes` (the same function as the readings digest).
+#[cfg(not(feature = "footprint-baseline"))]
 pub fn fnv1a(bytes: &[u8]) -> u64 {
     bytes.iter().fold(0xcbf2_9ce4_8422_2325, |state, byte| {
         (state ^ u64::from(*byte)).wrapping_mul(0x0000_0100_0000_01b3)

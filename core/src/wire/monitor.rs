@@ -140,7 +140,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 },
             },
             ladder_config,
-            ladder: PowerLadder::new(1, &ladder_config, Rung::Identity),
+            ladder: PowerLadder::new(2, &ladder_config, Rung::Identity),
             spread: SpreadProfile::blank(),
             mean_check: MeanCheck::new(),
             events: EventQueue::new(),
