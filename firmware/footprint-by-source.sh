@@ -40,6 +40,7 @@
 # Usage: firmware/footprint-by-source.sh [TARGET] [extra cargo args]
 #        (default thumbv7em-none-eabihf; needs llvm-symbolizer, llvm-objdump, llvm-readelf)
 # Environment: FOOTPRINT_ELF=path skips the build and reads that ELF (release profile);
+#              FOOTPRINT_RODATA=N lists the N largest .rodata objects of the core share;
 #              FOOTPRINT_TOP=N lists the N largest functions of the core share (default 12).
 set -euo pipefail
 cd "$(dirname "$0")"
@@ -362,6 +363,16 @@ for j, (start, size, name) in enumerate(objects):
     b = obj_bucket.get(j, crate_of_symbol(name) or "unattributed")
     tally[(b, owner_label(obj_owner[j]))][1] += size
 tally[("unattributed", "unreached")][1] += ro_n - covered
+if os.environ.get("FOOTPRINT_RODATA"):
+    print("rodata objects of the core share, largest first (size, bucket, owner, symbol):")
+    listed = []
+    for j, (start, size, name) in enumerate(objects):
+        b = obj_bucket.get(j, crate_of_symbol(name) or "unattributed")
+        o = owner_label(obj_owner[j])
+        if size != feed_len and (b == "steadycal-core" or o == "core"):
+            listed.append((size, b, o, name))
+    for size, b, o, name in sorted(listed, reverse=True)[: int(os.environ["FOOTPRINT_RODATA"])]:
+        print(f"  {size:>6}  {b:<22} {o:<16} {name[:90]}")
 
 # Report.
 def demangle(name):

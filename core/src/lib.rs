@@ -26,6 +26,7 @@ extern crate std;
 
 pub mod adequacy;
 pub mod basis;
+pub mod checksum;
 #[cfg(feature = "defmt")]
 mod defmt_format;
 pub mod detect;

@@ -30,6 +30,7 @@
 use crc::{Crc, CRC_16_IBM_SDLC};
 use serde::{Deserialize, Serialize};
 
+use crate::checksum::CrcMethod;
 use crate::event::Event;
 use crate::real::Real;
 use crate::sample::Sample;
@@ -40,7 +41,7 @@ pub const LOG_MAGIC: [u8; 4] = *b"SClg";
 /// The device log format version this build writes and reads.
 pub const LOG_VERSION: u16 = 1;
 /// The CRC of a frame: CRC-16/IBM-SDLC (also known as CRC-16/X-25).
-pub const CRC16: Crc<u16> = Crc::<u16>::new(&CRC_16_IBM_SDLC);
+pub const CRC16: Crc<u16, CrcMethod> = Crc::<u16, CrcMethod>::new(&CRC_16_IBM_SDLC);
 /// Largest postcard encoding of a record (f64: a sample is at most 46 bytes, an event
 /// 30), with room to spare.
 pub const MAX_RECORD_LEN: usize = 64;

@@ -45,6 +45,7 @@
 
 use crc::{Crc, CRC_32_ISO_HDLC};
 
+use crate::checksum::CrcMethod;
 use crate::monitor::{ConfigError, Monitor};
 use crate::real::Real;
 use crate::wire;
@@ -58,7 +59,7 @@ pub const HEADER_LEN: usize = 14;
 /// Bytes of the trailing CRC.
 pub const CRC_LEN: usize = 4;
 /// The CRC of a snapshot: CRC-32/ISO-HDLC (the CRC-32 of zlib, PNG and Ethernet).
-pub const CRC32: Crc<u32> = Crc::<u32>::new(&CRC_32_ISO_HDLC);
+pub const CRC32: Crc<u32, CrcMethod> = Crc::<u32, CrcMethod>::new(&CRC_32_ISO_HDLC);
 
 /// Upper bound of the encoded snapshot of a `Monitor<R, P, BINS, Q>`, header and CRC
 /// included.
