@@ -155,12 +155,12 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
     /// least an offset and a gain: `dim` below 2 is taken as 2 (and above `P` as `P`).
     pub fn new(dim: usize, config: &LadderConfig<R>, initial: Rung) -> Self {
         let dim = dim.max(2);
-        let rung = || RungState {
+        let rung = RungState {
             fit: RecursiveFit::new(dim, config.fit),
             transformed_sse: R::ZERO,
         };
         PowerLadder {
-            rungs: [rung(), rung(), rung(), rung(), rung()],
+            rungs: core::array::from_fn(|_| rung.clone()),
             log_level_sum: R::ZERO,
             sample_weight: R::ZERO,
             active: initial,
