@@ -1,5 +1,5 @@
 //! The encoding of a [`RecursiveFit`]: only what the fit uses. Two implementations of
-//! the same bytes: serde (`Serialize`/`Deserialize`, for the host) and [`Wire`] (the
+//! the same bytes: serde (`Serialize`/`Deserialize`, for the host) and [`Walk`] (the
 //! snapshot codec, without serde; see [`crate::wire`]).
 //!
 //! A fit of `dim` parameters in a const-generic capacity `P` stores `θ[..dim]`, `D[..dim]`,
@@ -27,7 +27,7 @@ use serde::{Deserialize, Deserializer, Serialize, Serializer};
 
 use crate::fit::{FitConfig, RecursiveFit};
 use crate::real::Real;
-use crate::wire::{Reader, Wire, Writer};
+use crate::wire::{part, Place, Transfer, Walk};
 
 /// Numbers written for a fit of `dim` parameters.
 const fn used_len(dim: usize) -> usize {
@@ -179,49 +179,45 @@ impl<'de, R: Real, const P: usize> Deserialize<'de> for RecursiveFit<R, P> {
     }
 }
 
-impl<R: Real, const P: usize> Wire for RecursiveFit<R, P> {
-    fn put(&self, w: &mut Writer<'_>) {
-        let dim = self.dim();
-        self.dim.put(w);
-        w.varint(used_len(dim) as u64);
-        for x in &self.theta[..dim] {
-            x.put(w);
-        }
-        for x in &self.d[..dim] {
-            x.put(w);
+impl<R: Real, const P: usize> Walk for RecursiveFit<R, P> {
+    fn walk(mut place: Place<'_, Self>, t: &mut Transfer<'_>) {
+        // The shape first: written from the fit, or read, checked and given to the fit
+        // (reset to zeros of that shape, as a new fit), so the numbers after it are one
+        // walk for both directions.
+        let dim = match place {
+            Place::Encode(fit) => {
+                let w = t.writer();
+                w.byte(fit.dim);
+                w.varint32(used_len(fit.dim()) as u32);
+                fit.dim()
+            }
+            Place::Decode(ref mut fit) => {
+                let r = t.reader();
+                let mut dim = usize::from(r.byte());
+                if dim == 0 || dim > P || r.len() != used_len(dim) {
+                    r.fail();
+                    dim = 1;
+                }
+                **fit = RecursiveFit::new(dim, placeholder_config());
+                dim
+            }
+        };
+        // At most P: the loops below run to a capacity, whatever an encoding claims.
+        let dim = dim.min(P);
+        for i in 0..dim {
+            R::walk(part!(place.theta[i]), t);
         }
         for i in 0..dim {
-            for x in &self.u[i][i + 1..dim] {
-                x.put(w);
-            }
-        }
-        self.weighted_sse.put(w);
-        self.effective.put(w);
-        self.updates.put(w);
-    }
-
-    fn get(r: &mut Reader<'_>) -> Self {
-        let mut dim = r.byte() as usize;
-        if dim == 0 || dim > P || r.len() != used_len(dim) {
-            r.fail();
-            dim = 1;
-        }
-        let mut fit = RecursiveFit::<R, P>::new(dim, placeholder_config());
-        for x in fit.theta[..dim].iter_mut() {
-            *x = R::get(r);
-        }
-        for x in fit.d[..dim].iter_mut() {
-            *x = R::get(r);
+            R::walk(part!(place.d[i]), t);
         }
         for i in 0..dim {
-            for x in fit.u[i][i + 1..dim].iter_mut() {
-                *x = R::get(r);
+            for j in i + 1..dim {
+                R::walk(part!(place.u[i].0[j]), t);
             }
         }
-        fit.weighted_sse = R::get(r);
-        fit.effective = R::get(r);
-        fit.updates = u32::get(r);
-        fit
+        R::walk(part!(place.weighted_sse), t);
+        R::walk(part!(place.effective), t);
+        u32::walk(part!(place.updates), t);
     }
 }
 

@@ -347,7 +347,7 @@ impl<'a> Snapshot<'a> {
         }
         let payload = self.payload();
         let mut monitor = Monitor::<R, P, BINS, Q>::blank();
-        let unused = wire::read_from_bytes(&mut monitor, payload)
+        let unused = wire::decode_into(&mut monitor, payload)
             .map_err(|_| SnapshotError::MalformedPayload)?;
         if unused != 0 {
             return Err(SnapshotError::PayloadLeftover { unused });
@@ -377,7 +377,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             return Err(too_small);
         }
         let payload_room = capacity - HEADER_LEN - CRC_LEN;
-        let payload_len = wire::to_slice(self, &mut out[HEADER_LEN..HEADER_LEN + payload_room])
+        let payload_len = wire::encode(self, &mut out[HEADER_LEN..HEADER_LEN + payload_room])
             .map_err(|_| too_small)?;
         let header = Header {
             version: FORMAT_VERSION,
