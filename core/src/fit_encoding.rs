@@ -27,7 +27,7 @@ use serde::{Deserialize, Deserializer, Serialize, Serializer};
 
 use crate::fit::{FitConfig, RecursiveFit};
 use crate::real::Real;
-use crate::wire::{part, Place, Transfer, Walk};
+use crate::wire::{Transfer, Walk};
 
 /// Numbers written for a fit of `dim` parameters.
 const fn used_len(dim: usize) -> usize {
@@ -180,44 +180,41 @@ impl<'de, R: Real, const P: usize> Deserialize<'de> for RecursiveFit<R, P> {
 }
 
 impl<R: Real, const P: usize> Walk for RecursiveFit<R, P> {
-    fn walk(mut place: Place<'_, Self>, t: &mut Transfer<'_>) {
+    fn walk(&mut self, t: &mut Transfer<'_>) {
         // The shape first: written from the fit, or read, checked and given to the fit
         // (reset to zeros of that shape, as a new fit), so the numbers after it are one
         // walk for both directions.
-        let dim = match place {
-            Place::Encode(fit) => {
-                let w = t.writer();
-                w.byte(fit.dim);
-                w.varint32(used_len(fit.dim()) as u32);
-                fit.dim()
+        let dim = if t.encoding() {
+            let w = t.writer();
+            w.byte(self.dim);
+            w.varint32(used_len(self.dim()) as u32);
+            self.dim()
+        } else {
+            let r = t.reader();
+            let mut dim = usize::from(r.byte());
+            if dim == 0 || dim > P || r.len() != used_len(dim) {
+                r.fail();
+                dim = 1;
             }
-            Place::Decode(ref mut fit) => {
-                let r = t.reader();
-                let mut dim = usize::from(r.byte());
-                if dim == 0 || dim > P || r.len() != used_len(dim) {
-                    r.fail();
-                    dim = 1;
-                }
-                **fit = RecursiveFit::new(dim, placeholder_config());
-                dim
-            }
+            *self = RecursiveFit::new(dim, placeholder_config());
+            dim
         };
         // At most P: the loops below run to a capacity, whatever an encoding claims.
         let dim = dim.min(P);
-        for i in 0..dim {
-            R::walk(part!(place.theta[i]), t);
+        for x in &mut self.theta[..dim] {
+            x.walk(t);
+        }
+        for x in &mut self.d[..dim] {
+            x.walk(t);
         }
         for i in 0..dim {
-            R::walk(part!(place.d[i]), t);
-        }
-        for i in 0..dim {
-            for j in i + 1..dim {
-                R::walk(part!(place.u[i].0[j]), t);
+            for x in &mut self.u[i][i + 1..dim] {
+                x.walk(t);
             }
         }
-        R::walk(part!(place.weighted_sse), t);
-        R::walk(part!(place.effective), t);
-        u32::walk(part!(place.updates), t);
+        self.weighted_sse.walk(t);
+        self.effective.walk(t);
+        self.updates.walk(t);
     }
 }
 

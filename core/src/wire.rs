@@ -281,103 +281,91 @@ pub(crate) fn take_from_bytes<T: Wire>(bytes: &[u8]) -> Result<(T, usize), Bad> 
     Ok((value, bytes.len() - r.at))
 }
 
-/// Where one visit of a walk ([`Walk`]) goes: the value to encode, or the value to decode
-/// into. A struct's walk projects its place field by field ([`part!`]); the projection
-/// keeps the direction and moves the address, so it costs no branch, and the direction is
-/// decided once per leaf, in the leaf's out-of-line visit ([`Transfer::value`]).
-pub(crate) enum Place<'a, T: ?Sized> {
-    /// Encoding: the value is read and its bytes written.
-    Encode(&'a T),
-    /// Decoding: the value is overwritten with what the input holds.
-    Decode(&'a mut T),
-}
-
-/// The place of a part of the value at a place: `part!(place.field)` or
-/// `part!(place[index])`, in the same direction. `place` is a local `Place`, borrowed
-/// (mutably when decoding) for as long as the part is used.
-macro_rules! part {
-    ($place:ident $($path:tt)+) => {
-        match $place {
-            $crate::wire::Place::Encode(ref value) => $crate::wire::Place::Encode(&value $($path)+),
-            $crate::wire::Place::Decode(ref mut value) => {
-                $crate::wire::Place::Decode(&mut value $($path)+)
-            }
-        }
-    };
-}
-pub(crate) use part;
-
 /// A value of the snapshot, visited field by field in wire order by one function that
-/// serves both directions: given a [`Place::Encode`] it writes the fields, given a
-/// [`Place::Decode`] it overwrites them, in place, with what the input holds. Saving and
+/// serves both directions: with an encoding [`Transfer`] it writes the fields, with a
+/// decoding one it overwrites them, in place, with what the input holds. Saving and
 /// restoring share the one compiled walk of each type, which keeps the board's flash
-/// small; the snapshot's encoder still takes the monitor by shared reference.
+/// small; that is why the walk takes `&mut self` in both directions (an encoding walk
+/// changes nothing).
 ///
 /// A walk's loops run to a capacity of the type (an array length, `P`, `Q`), never to a
 /// length read from the input.
 pub(crate) trait Walk {
-    /// Visits the value at `place` with `t`: its fields in wire order.
-    fn walk(place: Place<'_, Self>, t: &mut Transfer<'_>);
+    /// Visits the fields of `self` in wire order: writes them when `t` encodes, overwrites
+    /// them when it decodes.
+    fn walk(&mut self, t: &mut Transfer<'_>);
 }
 
-/// A value to decode an optional value into: `Option::walk` sets `Some(blank)` and walks
-/// into it, so a decoded `Some` takes the same walk as an encoded one. The value never
-/// shows (every field is then overwritten); a function, not a constant, because zeros
-/// built in place take less flash than a copied constant.
+/// A value to decode an optional value into: decoding a `Some` into a `None`,
+/// `Option::walk` sets `Some(blank)` and walks into it, so a decoded `Some` takes the same
+/// walk as an encoded one. The value never shows (the walk overwrites every field); a
+/// function, not a constant, because zeros built in place take less flash than a copied
+/// constant.
 pub(crate) trait Blank {
     /// The placeholder.
     fn blank() -> Self;
 }
 
-/// The state of one walk: a [`Writer`] when encoding, a [`Reader`] when decoding (the
-/// other one is empty and unused). The direction itself is the [`Place`]'s.
+/// The state of one walk ([`Walk`]): the direction, and a [`Writer`] when encoding or a
+/// [`Reader`] when decoding (the other one is empty and unused).
 pub(crate) struct Transfer<'a> {
     writer: Writer<'a>,
     reader: Reader<'a>,
+    encoding: bool,
 }
 
 impl<'a> Transfer<'a> {
-    /// A walk that writes into `out` or reads `input` (one of the two is empty).
-    fn new(out: &'a mut [u8], input: &'a [u8]) -> Self {
-        Transfer {
-            writer: Writer::new(out),
-            reader: Reader::new(input),
-        }
+    /// True when this walk writes (encodes); false when it reads (decodes).
+    pub(crate) fn encoding(&self) -> bool {
+        self.encoding
     }
 
-    /// The writer (encoding), for a walk that writes a length of its own.
+    /// The writer (encoding), for a walk that writes a length or a tag of its own.
     pub(crate) fn writer(&mut self) -> &mut Writer<'a> {
         &mut self.writer
     }
 
-    /// The reader (decoding), for a walk that reads a length of its own.
+    /// The reader (decoding), for a walk that reads a length or a tag of its own.
     pub(crate) fn reader(&mut self) -> &mut Reader<'a> {
         &mut self.reader
     }
 
-    /// A leaf of a walk (a number, a flag, a unit enum), encoded or decoded by value with
-    /// its [`Wire`] impl. Out of line, one function per type: every field of that type in
-    /// every walk is a call with its place, and the direction is tested here, once.
+    /// The tag of an `Option`: writes whether there is a value (`present`) and returns it,
+    /// or reads and returns the tag (a `bool` on the wire: 0 `None`, 1 `Some`, anything
+    /// else fails the input). Out of line: one copy for every optional field.
     #[inline(never)]
-    pub(crate) fn value<T: Wire>(&mut self, place: Place<'_, T>) {
-        match place {
-            Place::Encode(value) => value.put(&mut self.writer),
-            Place::Decode(slot) => *slot = T::get(&mut self.reader),
+    pub(crate) fn option_tag(&mut self, present: bool) -> bool {
+        if self.encoding {
+            self.writer.byte(u8::from(present));
+            present
+        } else {
+            self.reader.bool()
         }
     }
 
-    /// True when the output was too small or the input did not decode (a walk given a
-    /// place of the other direction ends here too: it reads or writes an empty slice).
-    fn failed(&self) -> bool {
-        self.writer.full || self.reader.bad
+    /// A leaf of a walk (a number, a flag, a unit enum), written or read by value with its
+    /// [`Wire`] impl. Out of line, one function per type: every field of that type in
+    /// every walk is one call with the field's address, and the direction is tested here.
+    #[inline(never)]
+    pub(crate) fn value<T: Wire>(&mut self, value: &mut T) {
+        if self.encoding {
+            value.put(&mut self.writer);
+        } else {
+            *value = T::get(&mut self.reader);
+        }
     }
 }
 
-/// The encoding of `value` into `out`, by its walk; returns the length written.
-pub(crate) fn encode<T: Walk>(value: &T, out: &mut [u8]) -> Result<usize, Full> {
-    let mut t = Transfer::new(out, &[]);
-    T::walk(Place::Encode(value), &mut t);
-    if t.failed() {
+/// The encoding of `value` into `out`, by its walk; returns the length written. `value`
+/// is not changed (the walk takes `&mut` because decoding shares it).
+pub(crate) fn encode<T: Walk>(value: &mut T, out: &mut [u8]) -> Result<usize, Full> {
+    let mut t = Transfer {
+        writer: Writer::new(out),
+        reader: Reader::new(&[]),
+        encoding: true,
+    };
+    value.walk(&mut t);
+    if t.writer.full {
         return Err(Full);
     }
     Ok(t.writer.at)
@@ -388,9 +376,13 @@ pub(crate) fn encode<T: Walk>(value: &T, out: &mut [u8]) -> Result<usize, Full> 
 /// overwritten; fields it does not hold (derived ones) are left as they are. On an error
 /// `value` holds whatever was read and must be discarded.
 pub(crate) fn decode_into<T: Walk>(value: &mut T, bytes: &[u8]) -> Result<usize, Bad> {
-    let mut t = Transfer::new(&mut [], bytes);
-    T::walk(Place::Decode(value), &mut t);
-    if t.failed() {
+    let mut t = Transfer {
+        writer: Writer::new(&mut []),
+        reader: Reader::new(bytes),
+        encoding: false,
+    };
+    value.walk(&mut t);
+    if t.reader.bad {
         return Err(Bad);
     }
     Ok(bytes.len() - t.reader.at)
@@ -398,8 +390,8 @@ pub(crate) fn decode_into<T: Walk>(value: &mut T, bytes: &[u8]) -> Result<usize,
 
 impl<R: Real> Walk for R {
     #[inline]
-    fn walk(place: Place<'_, Self>, t: &mut Transfer<'_>) {
-        t.value(place);
+    fn walk(&mut self, t: &mut Transfer<'_>) {
+        t.value(self);
     }
 }
 
@@ -415,8 +407,8 @@ macro_rules! walk_by_value {
     ($($ty:ty),*) => {$(
         impl Walk for $ty {
             #[inline]
-            fn walk(place: Place<'_, Self>, t: &mut Transfer<'_>) {
-                t.value(place);
+            fn walk(&mut self, t: &mut Transfer<'_>) {
+                t.value(self);
             }
         }
     )*};
@@ -424,33 +416,22 @@ macro_rules! walk_by_value {
 walk_by_value!(u8, bool, u16, u32, u64);
 
 impl<T: Walk + Blank> Walk for Option<T> {
-    fn walk(place: Place<'_, Self>, t: &mut Transfer<'_>) {
-        // The tag, then the value if there is one, reached by one call in both directions.
-        let inner = match place {
-            Place::Encode(value) => {
-                t.writer.byte(u8::from(value.is_some()));
-                value.as_ref().map(Place::Encode)
-            }
-            // The tag is a `bool` on the wire: 0 `None`, 1 `Some`, anything else fails.
-            Place::Decode(slot) => {
-                if t.reader.bool() {
-                    Some(Place::Decode(slot.insert(T::blank())))
-                } else {
-                    *slot = None;
-                    None
-                }
-            }
-        };
-        if let Some(inner) = inner {
-            T::walk(inner, t);
+    fn walk(&mut self, t: &mut Transfer<'_>) {
+        // The tag, then the value if there is one. Decoding a `Some` into a `None` puts a
+        // blank there first; into a `Some` it walks over the old value, which is the same
+        // (a walk overwrites every field of the value).
+        if t.option_tag(self.is_some()) {
+            self.get_or_insert_with(T::blank).walk(t);
+        } else {
+            *self = None;
         }
     }
 }
 
 impl<T: Walk, const N: usize> Walk for [T; N] {
-    fn walk(mut place: Place<'_, Self>, t: &mut Transfer<'_>) {
-        for index in 0..N {
-            T::walk(part!(place[index]), t);
+    fn walk(&mut self, t: &mut Transfer<'_>) {
+        for value in self.iter_mut() {
+            value.walk(t);
         }
     }
 }
@@ -593,11 +574,11 @@ macro_rules! walk_struct {
     };
     (impl[$($gen:tt)*] $ty:ty { $($field:ident),* $(,)? }) => {
         impl<$($gen)*> $crate::wire::Walk for $ty {
-            fn walk(mut place: $crate::wire::Place<'_, Self>, t: &mut $crate::wire::Transfer<'_>) {
+            fn walk(&mut self, t: &mut $crate::wire::Transfer<'_>) {
                 // A pattern naming every field (compiles to nothing): a field added to the
                 // struct breaks this build until it is listed here.
-                let _ = matches!(place, $crate::wire::Place::Encode(Self { $($field: _),* }));
-                $( $crate::wire::Walk::walk($crate::wire::part!(place.$field), t); )*
+                let Self { $($field: _),* } = self;
+                $( $crate::wire::Walk::walk(&mut self.$field, t); )*
             }
         }
     };
@@ -623,8 +604,8 @@ macro_rules! wire_unit_enum {
 
         impl Walk for $ty {
             #[inline]
-            fn walk(place: Place<'_, Self>, t: &mut Transfer<'_>) {
-                t.value(place);
+            fn walk(&mut self, t: &mut Transfer<'_>) {
+                t.value(self);
             }
         }
 

@@ -6,31 +6,28 @@
 
 use super::EventQueue;
 use crate::real::Real;
-use crate::wire::{part, Place, Transfer, Walk, Wire};
+use crate::wire::{Transfer, Walk, Wire};
 
 impl<R: Real, const Q: usize> Walk for EventQueue<R, Q> {
-    fn walk(mut place: Place<'_, Self>, t: &mut Transfer<'_>) {
-        match part!(place.events) {
-            Place::Encode(events) => {
-                let w = t.writer();
-                w.varint32(events.len() as u32);
-                for event in events {
-                    event.put(w);
-                }
+    fn walk(&mut self, t: &mut Transfer<'_>) {
+        if t.encoding() {
+            let w = t.writer();
+            w.varint32(self.events.len() as u32);
+            for event in &self.events {
+                event.put(w);
             }
-            Place::Decode(events) => {
-                let r = t.reader();
-                let len = r.len();
-                if len > Q {
-                    r.fail();
-                }
-                events.clear();
-                for _ in 0..len.min(Q) {
-                    // Cannot be full: at most Q pushes.
-                    let _ = events.push_back(Wire::get(r));
-                }
+        } else {
+            let r = t.reader();
+            let len = r.len();
+            if len > Q {
+                r.fail();
+            }
+            self.events.clear();
+            for _ in 0..len.min(Q) {
+                // Cannot be full: at most Q pushes.
+                let _ = self.events.push_back(Wire::get(r));
             }
         }
-        Walk::walk(part!(place.dropped), t);
+        self.dropped.walk(t);
     }
 }

@@ -18,7 +18,7 @@ use crate::ladder::{LadderConfig, PowerLadder};
 use crate::real::Real;
 use crate::spread::SpreadProfile;
 use crate::transform::Rung;
-use crate::wire::{part, Place, Transfer, Walk};
+use crate::wire::{Transfer, Walk};
 
 impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monitor<R, P, BINS, Q> {
     /// The monitor's fields in wire order; `ladder_config` and `alarm_flags` are not
@@ -26,34 +26,31 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monito
     /// rebuilds both). Out of line: the snapshot's encoder and decoder both call this one
     /// copy.
     #[inline(never)]
-    fn walk(mut place: Place<'_, Self>, t: &mut Transfer<'_>) {
+    fn walk(&mut self, t: &mut Transfer<'_>) {
         // Every field named, so a field added to the monitor breaks this build until the
         // walk handles it (compiles to nothing).
-        let _ = matches!(
-            place,
-            Place::Encode(Monitor {
-                config: _,
-                ladder_config: _,
-                ladder: _,
-                spread: _,
-                mean_check: _,
-                events: _,
-                counters: _,
-                spread_raised: _,
-                last_exponent: _,
-                detectors: _,
-                alarm_flags: _,
-            })
-        );
-        Walk::walk(part!(place.config), t);
-        Walk::walk(part!(place.ladder), t);
-        Walk::walk(part!(place.spread), t);
-        Walk::walk(part!(place.mean_check), t);
-        Walk::walk(part!(place.events), t);
-        Walk::walk(part!(place.counters), t);
-        Walk::walk(part!(place.spread_raised), t);
-        Walk::walk(part!(place.last_exponent), t);
-        Walk::walk(part!(place.detectors), t);
+        let Monitor {
+            config: _,
+            ladder_config: _,
+            ladder: _,
+            spread: _,
+            mean_check: _,
+            events: _,
+            counters: _,
+            spread_raised: _,
+            last_exponent: _,
+            detectors: _,
+            alarm_flags: _,
+        } = self;
+        self.config.walk(t);
+        self.ladder.walk(t);
+        self.spread.walk(t);
+        self.mean_check.walk(t);
+        self.events.walk(t);
+        self.counters.walk(t);
+        self.spread_raised.walk(t);
+        self.last_exponent.walk(t);
+        self.detectors.walk(t);
     }
 }
 

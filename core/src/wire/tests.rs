@@ -55,7 +55,7 @@ fn same_decoding<T: Wire + Serialize + DeserializeOwned>(
 }
 
 /// The walk's bytes for `value`.
-fn walked<T: Walk>(value: &T) -> Vec<u8> {
+fn walked<T: Walk>(value: &mut T) -> Vec<u8> {
     let mut buffer = std::vec![0u8; 1 << 14];
     let len = encode(value, &mut buffer).unwrap();
     buffer.truncate(len);
@@ -101,9 +101,9 @@ fn same_whatever_the_target<R: Real, const P: usize>(
     let into_used = decode_into(&mut used, bytes);
     match (decoded::<R, P>(bytes), into_used) {
         (Err(_), Err(_)) => Ok(()),
-        (Ok((blank, rest)), Ok(unused)) => {
+        (Ok((mut blank, rest)), Ok(unused)) => {
             prop_assert_eq!(rest, unused);
-            prop_assert_eq!(walked(&blank), walked(&used));
+            prop_assert_eq!(walked(&mut blank), walked(&mut used));
             Ok(())
         }
         (into_blank, into_used) => Err(TestCaseError::fail(std::format!(
@@ -161,13 +161,13 @@ fn check_monitor<R: Real, const P: usize>(
     steps: &[Step],
     flips: &[(usize, u8)],
 ) -> Result<(), TestCaseError> {
-    let monitor = monitor::<R, P>(shape, baseline, steps);
-    let bytes = walked(&monitor);
+    let mut monitor = monitor::<R, P>(shape, baseline, steps);
+    let bytes = walked(&mut monitor);
     prop_assert_eq!(&bytes, &reference(&monitor));
     // Decoding gives back the same state, every byte of it.
-    let (back, unused) = decoded::<R, P>(&bytes).unwrap();
+    let (mut back, unused) = decoded::<R, P>(&bytes).unwrap();
     prop_assert_eq!(unused, 0);
-    prop_assert_eq!(walked(&back), bytes.clone());
+    prop_assert_eq!(walked(&mut back), bytes.clone());
     // Damaged: both decoders agree.
     let mut damaged = bytes.clone();
     for &(at, value) in flips {
