@@ -1,5 +1,5 @@
-//! [`Walk`](crate::wire::Walk) for the mean check: a child of `adequacy` for its private fields; the bytes are
-//! postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the mean check: a child of `adequacy` for its private
+//! fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::MeanCheck;
 use crate::real::Real;

@@ -1,5 +1,5 @@
-//! [`Walk`](crate::wire::Walk) for the alarm board: a child of `detect::alarm` for its private fields; the
-//! bytes are postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the alarm board: a child of `detect::alarm` for its
+//! private fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::{AlarmBoard, AlarmState};
 use crate::wire::walk_struct;

@@ -1,5 +1,5 @@
-//! [`Walk`](crate::wire::Walk) for the tabular CUSUM: a child of `detect::cusum` for its private fields;
-//! the bytes are postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the tabular CUSUM: a child of `detect::cusum` for its
+//! private fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::TabularCusum;
 use crate::real::Real;

@@ -1,5 +1,5 @@
-//! [`Walk`](crate::wire::Walk) for the drift detector: a child of `detect::drift` for its private fields;
-//! the bytes are postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the drift detector: a child of `detect::drift` for its
+//! private fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::DriftDetector;
 use crate::real::Real;

@@ -1,8 +1,8 @@
-//! [`Walk`] for the event queue: a child of `event` for its private fields; the bytes are
-//! postcard's (see [`crate::wire`]): the waiting events as a sequence, oldest first, then
-//! the dropped count. A sequence longer than the queue does not decode. The events
-//! themselves are encoded and decoded by value, with the device-log records' codec
-//! ([`Wire`]), so their code is shared with the records.
+//! [`Walk`](crate::wire::Walk) for the event queue: a child of `event` for its private
+//! fields; the bytes are postcard's (see [`crate::wire`]): the waiting events as a
+//! sequence, oldest first, then the dropped count. A sequence longer than the queue does
+//! not decode. The events themselves are encoded and decoded by value, with the device-log
+//! records' codec ([`Wire`](crate::wire::Wire)), so their code is shared with the records.
 
 use super::EventQueue;
 use crate::real::Real;

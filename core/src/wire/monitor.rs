@@ -1,7 +1,7 @@
-//! [`Walk`] for the monitor: a child of `monitor` for its private fields; the bytes are
-//! postcard's (see [`crate::wire`]). The derived `ladder_config` and `alarm_flags` are not
-//! written; a snapshot is decoded into [`Monitor::blank`], whose values there
-//! `complete_restored` replaces.
+//! [`Walk`](crate::wire::Walk) for the monitor: a child of `monitor` for its private
+//! fields; the bytes are postcard's (see [`crate::wire`]). The derived `ladder_config` and
+//! `alarm_flags` are not written; a snapshot is decoded into [`Monitor::blank`], whose
+//! values there `complete_restored` replaces.
 
 use super::{Counters, Monitor, MonitorConfig};
 use crate::adequacy::MeanCheck;
@@ -56,8 +56,8 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monito
 
 impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, BINS, Q> {
     /// A monitor to decode a snapshot into: every field is overwritten by the walk
-    /// ([`Walk`]) or rebuilt by `complete_restored`, so the values here never show. Zeros (not a
-    /// usable configuration) are the cheapest to build.
+    /// ([`Walk`]) or rebuilt by `complete_restored`, so the values here never show. Zeros
+    /// (not a usable configuration) are the cheapest to build.
     #[inline(never)]
     pub(crate) fn blank() -> Self {
         let z = R::ZERO;

@@ -1,5 +1,5 @@
-//! [`Walk`](crate::wire::Walk) for the sample screen: a child of `detect::screen` for its private fields;
-//! the bytes are postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the sample screen: a child of `detect::screen` for its
+//! private fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::Screen;
 use crate::real::Real;

@@ -1,5 +1,5 @@
-//! [`Walk`](crate::wire::Walk) for the spread-jump CUSUM: a child of `detect::spread_jump` for its
-//! private fields; the bytes are postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the spread-jump CUSUM: a child of `detect::spread_jump`
+//! for its private fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::SpreadJumpCusum;
 use crate::real::Real;
