@@ -1,5 +1,5 @@
 //! The encoding of a [`RecursiveFit`]: only what the fit uses. Two implementations of
-//! the same bytes: serde (`Serialize`/`Deserialize`, for the host) and [`Wire`] (the
+//! the same bytes: serde (`Serialize`/`Deserialize`, for the host) and [`Walk`] (the
 //! snapshot codec, without serde; see [`crate::wire`]).
 //!
 //! A fit of `dim` parameters in a const-generic capacity `P` stores `θ[..dim]`, `D[..dim]`,
@@ -27,7 +27,7 @@ use serde::{Deserialize, Deserializer, Serialize, Serializer};
 
 use crate::fit::{FitConfig, RecursiveFit};
 use crate::real::Real;
-use crate::wire::{Reader, Wire, Writer};
+use crate::wire::{Transfer, Walk};
 
 /// Numbers written for a fit of `dim` parameters.
 const fn used_len(dim: usize) -> usize {
@@ -179,49 +179,42 @@ impl<'de, R: Real, const P: usize> Deserialize<'de> for RecursiveFit<R, P> {
     }
 }
 
-impl<R: Real, const P: usize> Wire for RecursiveFit<R, P> {
-    fn put(&self, w: &mut Writer<'_>) {
-        let dim = self.dim();
-        self.dim.put(w);
-        w.varint(used_len(dim) as u64);
-        for x in &self.theta[..dim] {
-            x.put(w);
+impl<R: Real, const P: usize> Walk for RecursiveFit<R, P> {
+    fn walk(&mut self, t: &mut Transfer<'_>) {
+        // The shape first: written from the fit, or read, checked and given to the fit
+        // (reset to zeros of that shape, as a new fit), so the numbers after it are one
+        // walk for both directions.
+        let dim = if t.encoding() {
+            let w = t.writer();
+            w.byte(self.dim);
+            w.varint32(used_len(self.dim()) as u32);
+            self.dim()
+        } else {
+            let r = t.reader();
+            let mut dim = usize::from(r.byte());
+            if dim == 0 || dim > P || r.len() != used_len(dim) {
+                r.fail();
+                dim = 1;
+            }
+            *self = RecursiveFit::new(dim, placeholder_config());
+            dim
+        };
+        // At most P: the loops below run to a capacity, whatever an encoding claims.
+        let dim = dim.min(P);
+        for x in &mut self.theta[..dim] {
+            x.walk(t);
         }
-        for x in &self.d[..dim] {
-            x.put(w);
+        for x in &mut self.d[..dim] {
+            x.walk(t);
         }
         for i in 0..dim {
-            for x in &self.u[i][i + 1..dim] {
-                x.put(w);
+            for x in &mut self.u[i][i + 1..dim] {
+                x.walk(t);
             }
         }
-        self.weighted_sse.put(w);
-        self.effective.put(w);
-        self.updates.put(w);
-    }
-
-    fn get(r: &mut Reader<'_>) -> Self {
-        let mut dim = r.byte() as usize;
-        if dim == 0 || dim > P || r.len() != used_len(dim) {
-            r.fail();
-            dim = 1;
-        }
-        let mut fit = RecursiveFit::<R, P>::new(dim, placeholder_config());
-        for x in fit.theta[..dim].iter_mut() {
-            *x = R::get(r);
-        }
-        for x in fit.d[..dim].iter_mut() {
-            *x = R::get(r);
-        }
-        for i in 0..dim {
-            for x in fit.u[i][i + 1..dim].iter_mut() {
-                *x = R::get(r);
-            }
-        }
-        fit.weighted_sse = R::get(r);
-        fit.effective = R::get(r);
-        fit.updates = u32::get(r);
-        fit
+        self.weighted_sse.walk(t);
+        self.effective.walk(t);
+        self.updates.walk(t);
     }
 }
 

@@ -348,7 +348,7 @@ impl<'a> Snapshot<'a> {
         }
         let payload = self.payload();
         let mut monitor = Monitor::<R, P, BINS, Q>::blank();
-        let unused = wire::read_from_bytes(&mut monitor, payload)
+        let unused = wire::decode_into(&mut monitor, payload)
             .map_err(|_| SnapshotError::MalformedPayload)?;
         if unused != 0 {
             return Err(SnapshotError::PayloadLeftover { unused });
@@ -362,23 +362,30 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     /// Writes a snapshot of the whole monitor into `out`; returns its length (at most
     /// [`max_snapshot_len::<R, P, BINS, Q>()`](max_snapshot_len)).
     ///
+    /// Takes `&mut self` but changes nothing: saving and restoring share one walk of the
+    /// monitor's fields, written once for both directions to keep the board's flash small,
+    /// and restoring needs write access. After a snapshot the monitor is as it was, and
+    /// its next snapshot is byte-identical (the test
+    /// `a_snapshot_leaves_the_monitor_as_it_was` checks both).
+    ///
     /// ```
     /// use steadycal_core::monitor::{Monitor, MonitorConfig};
     /// use steadycal_core::snapshot::MAX_SNAPSHOT_LEN;
-    /// let monitor: Monitor<f32> = Monitor::new(MonitorConfig::default_for_range(1.0, 100.0)).unwrap();
+    /// let mut monitor: Monitor<f32> =
+    ///     Monitor::new(MonitorConfig::default_for_range(1.0, 100.0)).unwrap();
     /// let mut buffer = [0u8; MAX_SNAPSHOT_LEN];
     /// let len = monitor.snapshot(&mut buffer).unwrap();
     /// let restored: Monitor<f32> = Monitor::restore(&buffer[..len]).unwrap();
     /// assert_eq!(restored.counters(), monitor.counters());
     /// ```
-    pub fn snapshot(&self, out: &mut [u8]) -> Result<usize, SnapshotError> {
+    pub fn snapshot(&mut self, out: &mut [u8]) -> Result<usize, SnapshotError> {
         let capacity = out.len();
         let too_small = SnapshotError::BufferTooSmall { capacity };
         if capacity < HEADER_LEN + CRC_LEN {
             return Err(too_small);
         }
         let payload_room = capacity - HEADER_LEN - CRC_LEN;
-        let payload_len = wire::to_slice(self, &mut out[HEADER_LEN..HEADER_LEN + payload_room])
+        let payload_len = wire::encode(self, &mut out[HEADER_LEN..HEADER_LEN + payload_room])
             .map_err(|_| too_small)?;
         let header = Header {
             version: FORMAT_VERSION,
@@ -432,13 +439,48 @@ mod tests {
         run(&mut monitor, 0, 1500);
         let mut a = [0u8; MAX_SNAPSHOT_LEN];
         let len = monitor.snapshot(&mut a).unwrap();
-        let restored: Monitor<f32> = Monitor::restore(&a[..len]).unwrap();
+        let mut restored: Monitor<f32> = Monitor::restore(&a[..len]).unwrap();
         let mut b = [0u8; MAX_SNAPSHOT_LEN];
         assert_eq!(restored.snapshot(&mut b).unwrap(), len);
         assert_eq!(&a[..len], &b[..len]);
         std::eprintln!(
             "encoded Monitor<f32> after 1500 samples: {len} bytes (bound {MAX_SNAPSHOT_LEN})"
         );
+    }
+
+    #[test]
+    fn a_snapshot_leaves_the_monitor_as_it_was() {
+        // A baseline (an optional state present) and waiting events (rejected samples
+        // left in the queue), so every kind of field is walked.
+        let mut monitor = fresh();
+        run(&mut monitor, 0, 700);
+        monitor.set_baseline([0.3, 2.0, 0.0, 0.0], None).unwrap();
+        for i in 700..703 {
+            monitor.push(&Sample::check(i, i as f64, f32::NAN, 10.0));
+        }
+        assert!(monitor.clone().pop_event().is_some());
+        let twin = monitor.clone();
+        let before = std::format!("{monitor:?}");
+        let mut first = [0u8; MAX_SNAPSHOT_LEN];
+        let len = monitor.snapshot(&mut first).unwrap();
+        // Every field as it was (derived ones included), and the next snapshot the same.
+        assert_eq!(std::format!("{monitor:?}"), before);
+        let mut second = [0u8; MAX_SNAPSHOT_LEN];
+        assert_eq!(monitor.snapshot(&mut second).unwrap(), len);
+        assert_eq!(&first[..len], &second[..len]);
+        // A snapshot refused for want of room changes nothing either.
+        let mut small = [0u8; 64];
+        assert!(monitor.snapshot(&mut small).is_err());
+        assert_eq!(std::format!("{monitor:?}"), before);
+        // And the monitor goes on exactly as a copy that was never saved.
+        let mut twin = twin;
+        run(&mut monitor, 703, 900);
+        run(&mut twin, 703, 900);
+        let mut a = [0u8; MAX_SNAPSHOT_LEN];
+        let mut b = [0u8; MAX_SNAPSHOT_LEN];
+        let len = monitor.snapshot(&mut a).unwrap();
+        assert_eq!(twin.snapshot(&mut b).unwrap(), len);
+        assert_eq!(&a[..len], &b[..len]);
     }
 
     #[test]
@@ -502,7 +544,7 @@ mod tests {
 
     #[test]
     fn checks_behind_the_crc() {
-        let monitor = fresh();
+        let mut monitor = fresh();
         let mut buffer = [0u8; MAX_SNAPSHOT_LEN];
         let len = monitor.snapshot(&mut buffer).unwrap();
         // One extra payload byte: leftover.
@@ -822,11 +864,11 @@ mod tests {
     #[test]
     fn default_sizes() {
         // Measured figures for the README: a fresh default monitor and one after a run.
-        let fresh32: Monitor<f32> = fresh();
+        let mut fresh32: Monitor<f32> = fresh();
         let mut buffer = [0u8; 8192];
         let fresh32_len = fresh32.snapshot(&mut buffer).unwrap();
         let config = MonitorConfig::<f64>::default_for_range(1.0, 100.0);
-        let fresh64: Monitor<f64> = Monitor::new(config).unwrap();
+        let mut fresh64: Monitor<f64> = Monitor::new(config).unwrap();
         let fresh64_len = fresh64.snapshot(&mut buffer).unwrap();
         std::eprintln!(
             "fresh default snapshot: f32 {fresh32_len} bytes, f64 {fresh64_len} bytes; MAX_SNAPSHOT_LEN {MAX_SNAPSHOT_LEN}"

@@ -255,9 +255,12 @@ impl<F: NorFlash> SnapshotStore<F> {
     }
 
     /// Saves a monitor's snapshot into the slot not holding the newest good record.
+    ///
+    /// The monitor is taken by `&mut` for [`Monitor::snapshot`], which changes nothing
+    /// (see there why).
     pub fn save<R: Real, const P: usize, const BINS: usize, const Q: usize>(
         &mut self,
-        monitor: &Monitor<R, P, BINS, Q>,
+        monitor: &mut Monitor<R, P, BINS, Q>,
         scratch: &mut [u8],
     ) -> Result<SlotInfo, StoreError<F::Error>> {
         let newest = self.newest(scratch)?;
@@ -534,13 +537,13 @@ mod tests {
         let mut store = SnapshotStore::new(Flash::new(), ERASE as u32, SLOT as u32).unwrap();
         let mut scratch = [0u8; SLOT];
         assert_eq!(store.load(&mut scratch).unwrap(), None);
-        let monitor: Monitor<f32> =
+        let mut monitor: Monitor<f32> =
             Monitor::new(MonitorConfig::default_for_range(1.0, 100.0)).unwrap();
-        let info = store.save(&monitor, &mut scratch).unwrap();
+        let info = store.save(&mut monitor, &mut scratch).unwrap();
         assert_eq!((info.slot, info.seq), (0, 1));
-        let info = store.save(&monitor, &mut scratch).unwrap();
+        let info = store.save(&mut monitor, &mut scratch).unwrap();
         assert_eq!((info.slot, info.seq), (1, 2));
-        let info = store.save(&monitor, &mut scratch).unwrap();
+        let info = store.save(&mut monitor, &mut scratch).unwrap();
         assert_eq!((info.slot, info.seq), (0, 3));
         let loaded: Monitor<f32> = store.load_monitor(&mut scratch).unwrap().unwrap();
         assert_eq!(loaded.counters(), monitor.counters());
@@ -553,13 +556,13 @@ mod tests {
             Monitor::new(MonitorConfig::default_for_range(1.0, 100.0)).unwrap();
         advance(&mut monitor, 0);
         let mut scratch = [0u8; SLOT];
-        store.save(&monitor, &mut scratch).unwrap();
+        store.save(&mut monitor, &mut scratch).unwrap();
         let mut tiny = [0u8; 8];
         assert_eq!(store.load(&mut tiny), Err(StoreError::ScratchTooSmall));
         let mut short = [0u8; 200];
         assert_eq!(store.load(&mut short), Err(StoreError::ScratchTooSmall));
         assert_eq!(
-            store.save(&monitor, &mut short),
+            store.save(&mut monitor, &mut short),
             Err(StoreError::ScratchTooSmall)
         );
         // The good record is still there.
@@ -609,14 +612,14 @@ mod tests {
             let mut complete = flash.clone();
             let before = complete.operations;
             let mut store = SnapshotStore::new(&mut complete, ERASE as u32, SLOT as u32).unwrap();
-            store.save(&monitor, &mut scratch).unwrap();
+            store.save(&mut monitor, &mut scratch).unwrap();
             let total = complete.operations - before;
             let mut offset = 0;
             while offset <= total {
                 let mut cut = flash.clone();
                 cut.cut_after(offset);
                 let mut store = SnapshotStore::new(&mut cut, ERASE as u32, SLOT as u32).unwrap();
-                let result = store.save(&monitor, &mut scratch);
+                let result = store.save(&mut monitor, &mut scratch);
                 assert_eq!(
                     result.is_ok(),
                     offset >= total,
@@ -677,7 +680,7 @@ mod tests {
                 let mut cut = flash.clone();
                 cut.cut_after(offset);
                 let mut store = SnapshotStore::new(&mut cut, 4096, 4096).unwrap();
-                let _ = store.save(&monitor, &mut scratch);
+                let _ = store.save(&mut monitor, &mut scratch);
                 cut.power_on();
                 let mut store = SnapshotStore::new(&mut cut, 4096, 4096).unwrap();
                 match (store.load(&mut scratch).unwrap(), &previous) {
@@ -690,7 +693,7 @@ mod tests {
                 }
             }
             let mut store = SnapshotStore::new(&mut flash, 4096, 4096).unwrap();
-            let info = store.save(&monitor, &mut scratch).unwrap();
+            let info = store.save(&mut monitor, &mut scratch).unwrap();
             assert_eq!(info.seq, step as u32 + 1);
             previous = Some(std::vec::Vec::from(&expected[..len]));
         }

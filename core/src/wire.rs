@@ -8,6 +8,15 @@
 //! type. The serde derives stay on every type for the host (JSON, TOML, tests) and are
 //! dead code the linker drops on a board.
 //!
+//! Two shapes of code, one format:
+//! - The snapshot's state types have one walk each ([`Walk`]) that serves both
+//!   directions: it visits the fields in wire order and each leaf (a number, a flag, a
+//!   unit enum) is one out-of-line call ([`Transfer::value`]) that writes or reads, so
+//!   the board holds one copy of the per-field code, not an encoder and a decoder.
+//!   Decoding is in place, into a zeroed monitor (`Monitor::blank`).
+//! - The device-log records and the events (also the elements of the snapshot's event
+//!   queue) are encoded and decoded by value ([`Wire`]).
+//!
 //! # Wire format (postcard 1.x, as the serde derives drive it)
 //! - `u8` one raw byte; `bool` one byte, 0 or 1.
 //! - `u16`, `u32`, `u64`, `usize` (sequence lengths): unsigned LEB128 varints of at most
@@ -24,9 +33,13 @@
 //! # Invariants
 //! - Decoding never panics: every read is bounds-checked and any fault (bytes ending, a
 //!   bad tag, bool, varint or variant index, a length the type cannot hold) is a [`Bad`].
-//! - For every value, [`Wire::put`] writes the bytes `postcard::to_slice` writes, and
-//!   [`Wire::get`] accepts exactly the inputs `postcard::take_from_bytes` accepts, with the
-//!   same value (the property tests in `core/tests/wire_equivalence.rs` check both).
+//! - Every loop of a decoder is bounded by a capacity of the type (an array length, `P`,
+//!   `Q`), never by a length read from the input.
+//! - For every value, [`Wire::put`] and [`encode`] write the bytes `postcard::to_slice`
+//!   writes, and [`Wire::get`] and [`decode_into`] accept exactly the inputs
+//!   `postcard::take_from_bytes` accepts, with the same value (the property tests in
+//!   `core/src/wire/tests.rs` check both directions; `decode_into` also gives the same
+//!   result whatever the target held before).
 //! - Types with private fields get their impl in a child module of their own module
 //!   (files `core/src/wire/*.rs`), so no field changes visibility.
 
@@ -40,7 +53,6 @@ use crate::detect::screen::ScreenConfig;
 use crate::detect::spread_jump::SpreadJumpConfig;
 use crate::detect::{DetectConfig, DetectorCounts, Detectors};
 use crate::event::{AlarmKind, Direction, Event, EventKind, RejectReason, Severity};
-use crate::fit::FitConfig;
 use crate::ladder::RungState;
 use crate::monitor::{Counters, MonitorConfig};
 use crate::real::Real;
@@ -239,28 +251,14 @@ impl<'a> Reader<'a> {
     }
 }
 
-/// A value with a postcard-compatible encoding.
+/// A value with a postcard-compatible encoding, encoded and decoded by value: the
+/// device-log records, the events (in records and in the snapshot's event queue) and the
+/// leaves of the snapshot walk (numbers, flags, unit enums; see [`Transfer::value`]).
 pub(crate) trait Wire: Sized {
     /// Appends the encoding of `self`.
     fn put(&self, w: &mut Writer<'_>);
     /// Reads one value (any value when the reader fails; the caller then discards it).
     fn get(r: &mut Reader<'_>) -> Self;
-    /// Reads one value into `self`, in place: the same value as `*self = Self::get(r)`
-    /// (the snapshot's monitor also leaves its derived fields, which `complete_restored`
-    /// rebuilds). Structs override it field by field, so a large state is decoded
-    /// straight into its place instead of through temporaries that are then copied.
-    #[inline]
-    fn read(&mut self, r: &mut Reader<'_>) {
-        *self = Self::get(r);
-    }
-    /// What an `Option<Self>` is decoded into in place (set to `Some(blank)`, then
-    /// [`Wire::read`]); `None`: by value. Worth it for the larger optional state. A
-    /// function, not a constant: zeros built in place take less flash than a copied
-    /// constant.
-    #[inline]
-    fn blank() -> Option<Self> {
-        None
-    }
 }
 
 /// The encoding of `value` into `out`; returns the length written.
@@ -273,18 +271,6 @@ pub(crate) fn to_slice<T: Wire>(value: &T, out: &mut [u8]) -> Result<usize, Full
     Ok(w.at)
 }
 
-/// Decodes one value from the front of `bytes` into `value` (in place, see
-/// [`Wire::read`]); returns the number of bytes left after it. On an error `value` holds
-/// whatever was read and must be discarded.
-pub(crate) fn read_from_bytes<T: Wire>(value: &mut T, bytes: &[u8]) -> Result<usize, Bad> {
-    let mut r = Reader::new(bytes);
-    value.read(&mut r);
-    if r.bad {
-        return Err(Bad);
-    }
-    Ok(bytes.len() - r.at)
-}
-
 /// One value from the front of `bytes`, and the number of bytes left after it.
 pub(crate) fn take_from_bytes<T: Wire>(bytes: &[u8]) -> Result<(T, usize), Bad> {
     let mut r = Reader::new(bytes);
@@ -293,6 +279,161 @@ pub(crate) fn take_from_bytes<T: Wire>(bytes: &[u8]) -> Result<(T, usize), Bad> 
         return Err(Bad);
     }
     Ok((value, bytes.len() - r.at))
+}
+
+/// A value of the snapshot, visited field by field in wire order by one function that
+/// serves both directions: with an encoding [`Transfer`] it writes the fields, with a
+/// decoding one it overwrites them, in place, with what the input holds. Saving and
+/// restoring share the one compiled walk of each type, which keeps the board's flash
+/// small; that is why the walk takes `&mut self` in both directions (an encoding walk
+/// changes nothing).
+///
+/// A walk's loops run to a capacity of the type (an array length, `P`, `Q`), never to a
+/// length read from the input.
+pub(crate) trait Walk {
+    /// Visits the fields of `self` in wire order: writes them when `t` encodes, overwrites
+    /// them when it decodes.
+    fn walk(&mut self, t: &mut Transfer<'_>);
+}
+
+/// A value to decode an optional value into: decoding a `Some` into a `None`,
+/// `Option::walk` sets `Some(blank)` and walks into it, so a decoded `Some` takes the same
+/// walk as an encoded one. The value never shows (the walk overwrites every field); a
+/// function, not a constant, because zeros built in place take less flash than a copied
+/// constant.
+pub(crate) trait Blank {
+    /// The placeholder.
+    fn blank() -> Self;
+}
+
+/// The state of one walk ([`Walk`]): the direction, and a [`Writer`] when encoding or a
+/// [`Reader`] when decoding (the other one is empty and unused).
+pub(crate) struct Transfer<'a> {
+    writer: Writer<'a>,
+    reader: Reader<'a>,
+    encoding: bool,
+}
+
+impl<'a> Transfer<'a> {
+    /// True when this walk writes (encodes); false when it reads (decodes).
+    pub(crate) fn encoding(&self) -> bool {
+        self.encoding
+    }
+
+    /// The writer (encoding), for a walk that writes a length or a tag of its own.
+    pub(crate) fn writer(&mut self) -> &mut Writer<'a> {
+        &mut self.writer
+    }
+
+    /// The reader (decoding), for a walk that reads a length or a tag of its own.
+    pub(crate) fn reader(&mut self) -> &mut Reader<'a> {
+        &mut self.reader
+    }
+
+    /// The tag of an `Option`: writes whether there is a value (`present`) and returns it,
+    /// or reads and returns the tag (a `bool` on the wire: 0 `None`, 1 `Some`, anything
+    /// else fails the input). Out of line: one copy for every optional field.
+    #[inline(never)]
+    pub(crate) fn option_tag(&mut self, present: bool) -> bool {
+        if self.encoding {
+            self.writer.byte(u8::from(present));
+            present
+        } else {
+            self.reader.bool()
+        }
+    }
+
+    /// A leaf of a walk (a number, a flag, a unit enum), written or read by value with its
+    /// [`Wire`] impl. Out of line, one function per type: every field of that type in
+    /// every walk is one call with the field's address, and the direction is tested here.
+    #[inline(never)]
+    pub(crate) fn value<T: Wire>(&mut self, value: &mut T) {
+        if self.encoding {
+            value.put(&mut self.writer);
+        } else {
+            *value = T::get(&mut self.reader);
+        }
+    }
+}
+
+/// The encoding of `value` into `out`, by its walk; returns the length written. `value`
+/// is not changed (the walk takes `&mut` because decoding shares it).
+pub(crate) fn encode<T: Walk>(value: &mut T, out: &mut [u8]) -> Result<usize, Full> {
+    let mut t = Transfer {
+        writer: Writer::new(out),
+        reader: Reader::new(&[]),
+        encoding: true,
+    };
+    value.walk(&mut t);
+    if t.writer.full {
+        return Err(Full);
+    }
+    Ok(t.writer.at)
+}
+
+/// Decodes one value from the front of `bytes` into `value`, in place, by its walk;
+/// returns the number of bytes left after it. Every field the encoding holds is
+/// overwritten; fields it does not hold (derived ones) are left as they are. On an error
+/// `value` holds whatever was read and must be discarded.
+pub(crate) fn decode_into<T: Walk>(value: &mut T, bytes: &[u8]) -> Result<usize, Bad> {
+    let mut t = Transfer {
+        writer: Writer::new(&mut []),
+        reader: Reader::new(bytes),
+        encoding: false,
+    };
+    value.walk(&mut t);
+    if t.reader.bad {
+        return Err(Bad);
+    }
+    Ok(bytes.len() - t.reader.at)
+}
+
+impl<R: Real> Walk for R {
+    #[inline]
+    fn walk(&mut self, t: &mut Transfer<'_>) {
+        t.value(self);
+    }
+}
+
+impl<R: Real> Blank for R {
+    #[inline]
+    fn blank() -> Self {
+        R::ZERO
+    }
+}
+
+/// [`Walk`] by value ([`Transfer::value`]) for integers and flags.
+macro_rules! walk_by_value {
+    ($($ty:ty),*) => {$(
+        impl Walk for $ty {
+            #[inline]
+            fn walk(&mut self, t: &mut Transfer<'_>) {
+                t.value(self);
+            }
+        }
+    )*};
+}
+walk_by_value!(u8, bool, u16, u32, u64);
+
+impl<T: Walk + Blank> Walk for Option<T> {
+    fn walk(&mut self, t: &mut Transfer<'_>) {
+        // The tag, then the value if there is one. Decoding a `Some` into a `None` puts a
+        // blank there first; into a `Some` it walks over the old value, which is the same
+        // (a walk overwrites every field of the value).
+        if t.option_tag(self.is_some()) {
+            self.get_or_insert_with(T::blank).walk(t);
+        } else {
+            *self = None;
+        }
+    }
+}
+
+impl<T: Walk, const N: usize> Walk for [T; N] {
+    fn walk(&mut self, t: &mut Transfer<'_>) {
+        for value in self.iter_mut() {
+            value.walk(t);
+        }
+    }
 }
 
 impl<R: Real> Wire for R {
@@ -386,17 +527,6 @@ impl<T: Wire> Wire for Option<T> {
             None
         }
     }
-    fn read(&mut self, r: &mut Reader<'_>) {
-        if r.bool() {
-            // `T::blank` is inlined and known: one of the two arms is compiled.
-            match T::blank() {
-                Some(blank) => self.insert(blank).read(r),
-                None => *self = Some(T::get(r)),
-            }
-        } else {
-            *self = None;
-        }
-    }
 }
 
 impl<T: Wire + Copy + Default, const N: usize> Wire for [T; N] {
@@ -412,40 +542,53 @@ impl<T: Wire + Copy + Default, const N: usize> Wire for [T; N] {
         }
         out
     }
-    fn read(&mut self, r: &mut Reader<'_>) {
-        for value in self.iter_mut() {
-            value.read(r);
-        }
-    }
 }
 
-/// `Wire` for a struct: its fields in declaration order, every field listed.
+/// `Wire` for a struct of the device-log records: its fields in declaration order, every
+/// field listed.
 macro_rules! wire_struct {
-    (impl[$($gen:tt)*] $ty:ty { $($field:ident),* $(,)? } $(blank: $blank:expr)?) => {
-        impl<$($gen)*> $crate::wire::Wire for $ty {
-            $(
-                #[inline]
-                fn blank() -> Option<Self> {
-                    Some($blank)
-                }
-            )?
-            fn put(&self, w: &mut $crate::wire::Writer<'_>) {
-                $( $crate::wire::Wire::put(&self.$field, w); )*
+    (impl[$($gen:tt)*] $ty:ty { $($field:ident),* $(,)? }) => {
+        impl<$($gen)*> Wire for $ty {
+            fn put(&self, w: &mut Writer<'_>) {
+                $( Wire::put(&self.$field, w); )*
             }
-            fn get(r: &mut $crate::wire::Reader<'_>) -> Self {
-                Self { $( $field: $crate::wire::Wire::get(r), )* }
-            }
-            fn read(&mut self, r: &mut $crate::wire::Reader<'_>) {
-                $( $crate::wire::Wire::read(&mut self.$field, r); )*
+            fn get(r: &mut Reader<'_>) -> Self {
+                Self { $( $field: Wire::get(r), )* }
             }
         }
     };
 }
-pub(crate) use wire_struct;
 
-/// `Wire` for an enum of unit variants, listed in declaration order.
+/// [`Walk`] for a struct of the snapshot: its fields in declaration order, every field
+/// listed (checked by the compiler). With `blank:`, also
+/// [`Blank`] (the value an `Option` of the struct is decoded into).
+macro_rules! walk_struct {
+    (impl[$($gen:tt)*] $ty:ty { $($field:ident),* $(,)? } blank: $blank:expr) => {
+        $crate::wire::walk_struct!(impl[$($gen)*] $ty { $($field),* });
+        impl<$($gen)*> $crate::wire::Blank for $ty {
+            #[inline]
+            fn blank() -> Self {
+                $blank
+            }
+        }
+    };
+    (impl[$($gen:tt)*] $ty:ty { $($field:ident),* $(,)? }) => {
+        impl<$($gen)*> $crate::wire::Walk for $ty {
+            fn walk(&mut self, t: &mut $crate::wire::Transfer<'_>) {
+                // A pattern naming every field (compiles to nothing): a field added to the
+                // struct breaks this build until it is listed here.
+                let Self { $($field: _),* } = self;
+                $( $crate::wire::Walk::walk(&mut self.$field, t); )*
+            }
+        }
+    };
+}
+pub(crate) use walk_struct;
+
+/// `Wire` for an enum of unit variants, listed in declaration order; [`Walk`] by value
+/// ([`Transfer::value`]) and [`Blank`] (the first variant).
 macro_rules! wire_unit_enum {
-    ($ty:ident { $($variant:ident),* $(,)? }) => {
+    ($ty:ident { $first:ident $(, $variant:ident)* $(,)? }) => {
         impl Wire for $ty {
             fn put(&self, w: &mut Writer<'_>) {
                 w.varint32(*self as u32);
@@ -453,9 +596,23 @@ macro_rules! wire_unit_enum {
             // Out of line: the index-to-variant lookup once per enum, not at every field.
             #[inline(never)]
             fn get(r: &mut Reader<'_>) -> Self {
-                const ALL: &[$ty] = &[$($ty::$variant),*];
+                const ALL: &[$ty] = &[$ty::$first $(, $ty::$variant)*];
                 // In range: `variant_below` gives 0 for an index past the end.
                 ALL.get(r.variant_below(ALL.len())).copied().unwrap_or(ALL[0])
+            }
+        }
+
+        impl Walk for $ty {
+            #[inline]
+            fn walk(&mut self, t: &mut Transfer<'_>) {
+                t.value(self);
+            }
+        }
+
+        impl Blank for $ty {
+            #[inline]
+            fn blank() -> Self {
+                $ty::$first
             }
         }
     };
@@ -491,49 +648,48 @@ wire_unit_enum!(AlarmKind {
     MeanMisfit,
 });
 
-wire_struct!(impl[R: Real] Basis<R> {
+walk_struct!(impl[R: Real] Basis<R> {
     quadratic, temperature, reference_scale, temperature_reference, temperature_scale
 });
-wire_struct!(impl[R: Real] FitConfig<R> { forgetting, initial_variance });
-wire_struct!(impl[R: Real] MonitorConfig<R> {
+walk_struct!(impl[R: Real] MonitorConfig<R> {
     basis, forgetting, initial_variance, level_origin, level_low, level_high, warm_up,
     switch_margin, switch_hold, initial_rung, spread_threshold, spread_every,
     mean_check_after, mean_check_min_per_bin, mean_check_z, interval_z, coverage_factor,
     detect,
 });
-wire_struct!(impl[R: Real] DetectConfig<R> { screen, cusum, spread_jump, drift, alarms });
-wire_struct!(impl[R: Real] ScreenConfig<R> {
+walk_struct!(impl[R: Real] DetectConfig<R> { screen, cusum, spread_jump, drift, alarms });
+walk_struct!(impl[R: Real] ScreenConfig<R> {
     raw_low, raw_high, stuck_run, stuck_window, stuck_response, spike_bound,
     spike_run_limit, reference_gap_seconds,
 });
-wire_struct!(impl[R: Real] CusumConfig<R> { reference_value, decision_interval });
-wire_struct!(impl[R: Real] SpreadJumpConfig<R> { reference_value, decision_interval });
-wire_struct!(impl[R: Real] DriftConfig<R> {
+walk_struct!(impl[R: Real] CusumConfig<R> { reference_value, decision_interval });
+walk_struct!(impl[R: Real] SpreadJumpConfig<R> { reference_value, decision_interval });
+walk_struct!(impl[R: Real] DriftConfig<R> {
     gain_tolerance_percent, offset_tolerance, wald_quantiles, freeze_after, every
 });
-wire_struct!(impl[] AlarmRule { severity, raise_after, clear_after });
-wire_struct!(impl[] AlarmRules {
+walk_struct!(impl[] AlarmRule { severity, raise_after, clear_after });
+walk_struct!(impl[] AlarmRules {
     bias_shift, gain_drift, offset_drift, spread_jump, signal_stuck, signal_out_of_range,
     reference_gap,
 });
-wire_struct!(impl[R: Real] SpreadConfig<R> { level_low, level_high, forgetting });
-wire_struct!(impl[R: Real] SpreadExponent<R> { k, standard_error, bins_used } blank: SpreadExponent {
+walk_struct!(impl[R: Real] SpreadConfig<R> { level_low, level_high, forgetting });
+walk_struct!(impl[R: Real] SpreadExponent<R> { k, standard_error, bins_used } blank: SpreadExponent {
     k: R::ZERO,
     standard_error: R::ZERO,
     bins_used: 0,
 });
-wire_struct!(impl[R: Real, const P: usize] RungState<R, P> { fit, transformed_sse });
-wire_struct!(impl[] Counters { samples, checks, rejected, below_origin, readings });
-wire_struct!(impl[] DetectorCounts {
+walk_struct!(impl[R: Real, const P: usize] RungState<R, P> { fit, transformed_sse });
+walk_struct!(impl[] Counters { samples, checks, rejected, below_origin, readings });
+walk_struct!(impl[] DetectorCounts {
     spikes, out_of_range, stuck_samples, unresponsive_windows, cusum_checks, cusum_signals,
     spread_jump_signals, drift_evaluations, drift_significant, gap_samples,
 });
-wire_struct!(impl[R: Real] Detectors<R> { screen, cusum, spread_jump, drift, alarms, counts });
-wire_struct!(impl[R: Real] Baseline<R> { parameters, covariance } blank: Baseline {
+walk_struct!(impl[R: Real] Detectors<R> { screen, cusum, spread_jump, drift, alarms, counts });
+walk_struct!(impl[R: Real] Baseline<R> { parameters, covariance } blank: Baseline {
     parameters: [R::ZERO; 4],
     covariance: [[R::ZERO; 4]; 4],
 });
-wire_struct!(impl[R: Real] DriftStatus<R> {
+walk_struct!(impl[R: Real] DriftStatus<R> {
     gain_change, gain_uncertainty, offset_change, offset_uncertainty, wald, threshold, dof,
     significant, gain_beyond_tolerance, offset_beyond_tolerance,
 } blank: DriftStatus {

@@ -64,7 +64,7 @@ fn current_version_fixture_still_decodes() {
     let bytes = std::fs::read(fixture_path()).expect("committed fixture");
     let snapshot = Snapshot::parse(&bytes).expect("header and CRC");
     assert_eq!(snapshot.header().version, 2);
-    let monitor: Monitor<f32> = snapshot.monitor().expect("decodes as Monitor<f32>");
+    let mut monitor: Monitor<f32> = snapshot.monitor().expect("decodes as Monitor<f32>");
     let counters = monitor.counters();
     assert_eq!(counters.samples, 700);
     assert_eq!(counters.checks + counters.rejected + counters.readings, 700);
@@ -89,7 +89,7 @@ fn current_version_fixture_still_decodes() {
             (fresh_header.version, fresh_header.layout),
             (fixture_header.version, fixture_header.layout)
         );
-        let back: Monitor<f32> = parsed.monitor().expect("fresh snapshot decodes");
+        let mut back: Monitor<f32> = parsed.monitor().expect("fresh snapshot decodes");
         let mut again = [0u8; MAX_SNAPSHOT_LEN];
         let again_len = back.snapshot(&mut again).unwrap();
         assert_eq!(&again[..again_len], &fresh[..len]);

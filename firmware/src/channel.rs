@@ -46,11 +46,8 @@ mod real {
         pub fn push(&mut self, sample: &Sample<f32>) -> Outcome<f32> {
             self.monitor.push(sample)
         }
-        /// The monitor (for the snapshot store).
-        pub fn monitor(&self) -> &BoardMonitor {
-            &self.monitor
-        }
-        /// The monitor (for the restore check after the feed).
+        /// The monitor (for the snapshot store, whose save takes it by `&mut` without
+        /// changing it, and for the restore check after the feed).
         pub fn monitor_mut(&mut self) -> &mut BoardMonitor {
             &mut self.monitor
         }

@@ -144,7 +144,7 @@ fn run() -> Result<(), &'static str> {
             }
         }
         if pushed.is_multiple_of(storage::SNAPSHOT_EVERY) {
-            persist.save(&monitor, &counter)?;
+            persist.save(&mut monitor, &counter)?;
         }
     }
     logged_unmatched += pending.len() as u32;

@@ -60,8 +60,9 @@ impl Persist {
             .map_err(|_| "log region: flash error")
     }
 
-    /// Saves a snapshot of the channel's monitor through the two-slot store.
-    pub fn save(&mut self, channel: &Channel, counter: &Counter) -> Result<(), &'static str> {
+    /// Saves a snapshot of the channel's monitor through the two-slot store (the monitor
+    /// is taken by `&mut` for its snapshot, which changes nothing).
+    pub fn save(&mut self, channel: &mut Channel, counter: &Counter) -> Result<(), &'static str> {
         let before = counter.now();
         let saved = save(&mut self.flash, self.scratch, channel)?;
         self.saves.add(counter.since(before));
@@ -111,12 +112,12 @@ impl Persist {
 fn save(
     flash: &mut RamNorFlash,
     scratch: &mut [u8; SCRATCH_LEN],
-    channel: &Channel,
+    channel: &mut Channel,
 ) -> Result<Option<steadycal_core::store::SlotInfo>, &'static str> {
     let mut store = steadycal_core::store::SnapshotStore::new(flash, 0, SLOT_LEN as u32)
         .map_err(|_| "store: geometry")?;
     store
-        .save(channel.monitor(), scratch)
+        .save(channel.monitor_mut(), scratch)
         .map(Some)
         .map_err(|_| "store: save failed")
 }
@@ -125,7 +126,7 @@ fn save(
 fn save(
     _flash: &mut RamNorFlash,
     _scratch: &mut [u8; SCRATCH_LEN],
-    channel: &Channel,
+    channel: &mut Channel,
 ) -> Result<Option<steadycal_core::store::SlotInfo>, &'static str> {
     core::hint::black_box(channel);
     Ok(None)
@@ -208,7 +209,7 @@ fn finish(
     }
     // The whole state after the probes, compared through the CRC of each snapshot.
     let mut crcs = [0u32; 2];
-    for (crc, monitor) in crcs.iter_mut().zip([&*live, &restored]) {
+    for (crc, monitor) in crcs.iter_mut().zip([&mut *live, &mut restored]) {
         let len = monitor.snapshot(scratch).map_err(|e| e.reason())?;
         *crc = CRC32.checksum(&scratch[..len]);
     }

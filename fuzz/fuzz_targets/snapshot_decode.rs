@@ -12,7 +12,7 @@ fuzz_target!(|data: &[u8]| {
     if let Ok(mut monitor) = Monitor::<f32>::restore(data) {
         let mut again = [0u8; max_snapshot_len::<f32, 3, 16, 8>()];
         let len = monitor.snapshot(&mut again).expect("a restored monitor re-encodes");
-        let back = Monitor::<f32>::restore(&again[..len]).expect("the re-encoding decodes");
+        let mut back = Monitor::<f32>::restore(&again[..len]).expect("the re-encoding decodes");
         let mut third = [0u8; max_snapshot_len::<f32, 3, 16, 8>()];
         let len3 = back.snapshot(&mut third).expect("re-encodes again");
         assert_eq!(&again[..len], &third[..len3]);

@@ -1091,7 +1091,7 @@ impl<'a, R: Real + Display> Run<'a, R> {
             file,
             options,
             device_log,
-            engine,
+            mut engine,
             log_out,
             events_out,
             readings_out,
@@ -1131,7 +1131,7 @@ impl<'a, R: Real + Display> Run<'a, R> {
         }
         // The state after the last good row is saved even when a bad row stopped the run.
         let snapshot_bytes = match &options.persist.save_snapshot {
-            Some(path) => Some(crate::snapshot_file::write(path, &engine.monitor)?),
+            Some(path) => Some(crate::snapshot_file::write(path, &mut engine.monitor)?),
             None => None,
         };
         let mut summary = engine.summary(file, options.precision, error.as_ref());

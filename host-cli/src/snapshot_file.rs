@@ -138,8 +138,9 @@ pub fn restore_as<R: Real>(path: &Path) -> Result<Monitor<R>> {
     snapshot.monitor().map_err(fail)
 }
 
-/// Writes a monitor's snapshot to a file (`-` = standard output).
-pub fn write<R: Real>(path: &Path, monitor: &Monitor<R>) -> Result<usize> {
+/// Writes a monitor's snapshot to a file (`-` = standard output). The monitor is taken by
+/// `&mut` for `Monitor::snapshot`, which changes nothing.
+pub fn write<R: Real>(path: &Path, monitor: &mut Monitor<R>) -> Result<usize> {
     let mut buffer = vec![0u8; steadycal_core::snapshot::max_snapshot_len::<R, 3, 16, 8>()];
     let len = monitor.snapshot(&mut buffer).map_err(|e| {
         anyhow::anyhow!(

@@ -1,10 +1,10 @@
-//! [`Wire`] for the mean check: a child of `adequacy` for its private fields; the bytes
-//! are postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the mean check: a child of `adequacy` for its private
+//! fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::MeanCheck;
 use crate::real::Real;
-use crate::wire::wire_struct;
+use crate::wire::walk_struct;
 
-wire_struct!(impl[R: Real, const BINS: usize] MeanCheck<R, BINS> {
+walk_struct!(impl[R: Real, const BINS: usize] MeanCheck<R, BINS> {
     sums, counts, since_reset, armed
 });

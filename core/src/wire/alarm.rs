@@ -1,8 +1,8 @@
-//! [`Wire`] for the alarm board: a child of `detect::alarm` for its private fields; the
-//! bytes are postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the alarm board: a child of `detect::alarm` for its
+//! private fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::{AlarmBoard, AlarmState};
-use crate::wire::wire_struct;
+use crate::wire::walk_struct;
 
-wire_struct!(impl[] AlarmState { present, quiet, raised });
-wire_struct!(impl[] AlarmBoard { states, raises });
+walk_struct!(impl[] AlarmState { present, quiet, raised });
+walk_struct!(impl[] AlarmBoard { states, raises });

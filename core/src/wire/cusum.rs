@@ -1,8 +1,8 @@
-//! [`Wire`] for the tabular CUSUM: a child of `detect::cusum` for its private fields; the
-//! bytes are postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the tabular CUSUM: a child of `detect::cusum` for its
+//! private fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::TabularCusum;
 use crate::real::Real;
-use crate::wire::wire_struct;
+use crate::wire::walk_struct;
 
-wire_struct!(impl[R: Real] TabularCusum<R> { upper, lower, upper_run, lower_run });
+walk_struct!(impl[R: Real] TabularCusum<R> { upper, lower, upper_run, lower_run });

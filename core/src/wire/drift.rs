@@ -1,8 +1,8 @@
-//! [`Wire`] for the drift detector: a child of `detect::drift` for its private fields; the
-//! bytes are postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the drift detector: a child of `detect::drift` for its
+//! private fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::DriftDetector;
 use crate::real::Real;
-use crate::wire::wire_struct;
+use crate::wire::walk_struct;
 
-wire_struct!(impl[R: Real] DriftDetector<R> { baseline, status });
+walk_struct!(impl[R: Real] DriftDetector<R> { baseline, status });

@@ -1,35 +1,33 @@
-//! [`Wire`] for the event queue: a child of `event` for its private fields; the bytes are
-//! postcard's (see [`crate::wire`]): the waiting events as a sequence, oldest first, then
-//! the dropped count. A sequence longer than the queue does not decode.
+//! [`Walk`](crate::wire::Walk) for the event queue: a child of `event` for its private
+//! fields; the bytes are postcard's (see [`crate::wire`]): the waiting events as a
+//! sequence, oldest first, then the dropped count. A sequence longer than the queue does
+//! not decode. The events themselves are encoded and decoded by value, with the device-log
+//! records' codec ([`Wire`](crate::wire::Wire)), so their code is shared with the records.
 
 use super::EventQueue;
 use crate::real::Real;
-use crate::wire::{Reader, Wire, Writer};
+use crate::wire::{Transfer, Walk, Wire};
 
-impl<R: Real, const Q: usize> Wire for EventQueue<R, Q> {
-    fn put(&self, w: &mut Writer<'_>) {
-        w.varint(self.events.len() as u64);
-        for event in &self.events {
-            event.put(w);
+impl<R: Real, const Q: usize> Walk for EventQueue<R, Q> {
+    fn walk(&mut self, t: &mut Transfer<'_>) {
+        if t.encoding() {
+            let w = t.writer();
+            w.varint32(self.events.len() as u32);
+            for event in &self.events {
+                event.put(w);
+            }
+        } else {
+            let r = t.reader();
+            let len = r.len();
+            if len > Q {
+                r.fail();
+            }
+            self.events.clear();
+            for _ in 0..len.min(Q) {
+                // Cannot be full: at most Q pushes.
+                let _ = self.events.push_back(Wire::get(r));
+            }
         }
-        self.dropped.put(w);
-    }
-
-    fn get(r: &mut Reader<'_>) -> Self {
-        let mut queue = EventQueue::new();
-        queue.read(r);
-        queue
-    }
-    fn read(&mut self, r: &mut Reader<'_>) {
-        let len = r.len();
-        if len > Q {
-            r.fail();
-        }
-        self.events.clear();
-        for _ in 0..len.min(Q) {
-            // Cannot be full: at most Q pushes.
-            let _ = self.events.push_back(Wire::get(r));
-        }
-        self.dropped.read(r);
+        self.dropped.walk(t);
     }
 }

@@ -1,9 +1,9 @@
-//! [`Wire`] for the monitor: a child of `monitor` for its private fields; the bytes are
-//! postcard's (see [`crate::wire`]). The derived `ladder_config` is not written; decoding
-//! puts a placeholder there, which `complete_restored` replaces; so are the derived
-//! `alarm_flags`.
+//! [`Walk`](crate::wire::Walk) for the monitor: a child of `monitor` for its private
+//! fields; the bytes are postcard's (see [`crate::wire`]). The derived `ladder_config` and
+//! `alarm_flags` are not written; a snapshot is decoded into [`Monitor::blank`], whose
+//! values there `complete_restored` replaces.
 
-use super::{unset_ladder_config, Counters, Monitor, MonitorConfig};
+use super::{Counters, Monitor, MonitorConfig};
 use crate::adequacy::MeanCheck;
 use crate::basis::Basis;
 use crate::detect::alarm::AlarmRules;
@@ -18,55 +18,46 @@ use crate::ladder::{LadderConfig, PowerLadder};
 use crate::real::Real;
 use crate::spread::SpreadProfile;
 use crate::transform::Rung;
-use crate::wire::{Reader, Wire, Writer};
+use crate::wire::{Transfer, Walk};
 
-impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Wire for Monitor<R, P, BINS, Q> {
-    fn put(&self, w: &mut Writer<'_>) {
-        self.config.put(w);
-        self.ladder.put(w);
-        self.spread.put(w);
-        self.mean_check.put(w);
-        self.events.put(w);
-        self.counters.put(w);
-        self.spread_raised.put(w);
-        self.last_exponent.put(w);
-        self.detectors.put(w);
-    }
-
-    fn get(r: &mut Reader<'_>) -> Self {
-        Monitor {
-            config: Wire::get(r),
-            ladder_config: unset_ladder_config(),
-            ladder: Wire::get(r),
-            spread: Wire::get(r),
-            mean_check: Wire::get(r),
-            events: Wire::get(r),
-            counters: Wire::get(r),
-            spread_raised: Wire::get(r),
-            last_exponent: Wire::get(r),
-            detectors: Wire::get(r),
-            alarm_flags: crate::sample::Flags::empty(),
-        }
-    }
-    /// In place; `ladder_config` and `alarm_flags` are left as they are (derived:
-    /// `complete_restored` rebuilds both).
-    fn read(&mut self, r: &mut Reader<'_>) {
-        self.config.read(r);
-        self.ladder.read(r);
-        self.spread.read(r);
-        self.mean_check.read(r);
-        self.events.read(r);
-        self.counters.read(r);
-        self.spread_raised.read(r);
-        self.last_exponent.read(r);
-        self.detectors.read(r);
+impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monitor<R, P, BINS, Q> {
+    /// The monitor's fields in wire order; `ladder_config` and `alarm_flags` are not
+    /// visited (derived: decoding leaves them as they are and `complete_restored`
+    /// rebuilds both). Out of line: the snapshot's encoder and decoder both call this one
+    /// copy.
+    #[inline(never)]
+    fn walk(&mut self, t: &mut Transfer<'_>) {
+        // Every field named, so a field added to the monitor breaks this build until the
+        // walk handles it (compiles to nothing).
+        let Monitor {
+            config: _,
+            ladder_config: _,
+            ladder: _,
+            spread: _,
+            mean_check: _,
+            events: _,
+            counters: _,
+            spread_raised: _,
+            last_exponent: _,
+            detectors: _,
+            alarm_flags: _,
+        } = self;
+        self.config.walk(t);
+        self.ladder.walk(t);
+        self.spread.walk(t);
+        self.mean_check.walk(t);
+        self.events.walk(t);
+        self.counters.walk(t);
+        self.spread_raised.walk(t);
+        self.last_exponent.walk(t);
+        self.detectors.walk(t);
     }
 }
 
 impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, BINS, Q> {
-    /// A monitor to decode a snapshot into: every field is overwritten by [`Wire::read`]
-    /// or rebuilt by `complete_restored`, so the values here never show. Zeros (not a
-    /// usable configuration) are the cheapest to build.
+    /// A monitor to decode a snapshot into: every field is overwritten by the walk
+    /// ([`Walk`]) or rebuilt by `complete_restored`, so the values here never show. Zeros
+    /// (not a usable configuration) are the cheapest to build.
     #[inline(never)]
     pub(crate) fn blank() -> Self {
         let z = R::ZERO;

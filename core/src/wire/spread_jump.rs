@@ -1,8 +1,8 @@
-//! [`Wire`] for the spread-jump CUSUM: a child of `detect::spread_jump` for its private
-//! fields; the bytes are postcard's (see [`crate::wire`]).
+//! [`Walk`](crate::wire::Walk) for the spread-jump CUSUM: a child of `detect::spread_jump`
+//! for its private fields; the bytes are postcard's (see [`crate::wire`]).
 
 use super::SpreadJumpCusum;
 use crate::real::Real;
-use crate::wire::wire_struct;
+use crate::wire::walk_struct;
 
-wire_struct!(impl[R: Real] SpreadJumpCusum<R> { sum, run });
+walk_struct!(impl[R: Real] SpreadJumpCusum<R> { sum, run });
