@@ -627,6 +627,14 @@ mod tests {
         }
     }
 
+    #[test]
+    fn a_ladder_has_at_least_offset_and_gain() {
+        let ladder = PowerLadder::<f64, 3>::new(1, &config(1.0), Rung::Identity);
+        assert!(Rung::ALL.iter().all(|&rung| ladder.fit(rung).dim() == 2));
+        let ladder = PowerLadder::<f64, 3>::new(5, &config(1.0), Rung::Identity);
+        assert!(Rung::ALL.iter().all(|&rung| ladder.fit(rung).dim() == 3));
+    }
+
     proptest! {
         /// The normalized-RSS comparison picks the same leader, with the same lead, as
         /// comparing the profile log-likelihoods rung by rung.
