@@ -2,9 +2,10 @@
 //!
 //! The values never depend on the method: a 256-entry table per CRC on hosted targets
 //! (fast when a desktop reads large logs), bit by bit on bare metal, where the tables would
-//! cost 512 bytes (CRC-16) and 1,024 bytes (CRC-32) of a board's flash and the CRCs run over a
-//! record of a few dozen bytes per sample or a snapshot every few thousand samples
-//! (firmware/README.md, "Footprint", has the figures).
+//! cost 512 bytes (CRC-16) and 1,024 bytes (CRC-32) of a board's flash and the CRCs run over
+//! a record of a few dozen bytes per sample or a snapshot of about a kilobyte per save (the
+//! example firmware saves every 1,000 samples; firmware/README.md, "Footprint", has the
+//! figures).
 
 /// The CRC method of this build: a byte-wise table (hosted targets).
 #[cfg(not(target_os = "none"))]

@@ -37,9 +37,18 @@ fn ours<T: Wire>(value: &T) -> Vec<u8> {
 fn same_decoding<T: Wire + Serialize + DeserializeOwned>(
     bytes: &[u8],
 ) -> Result<(), TestCaseError> {
-    let theirs = postcard::take_from_bytes::<T>(bytes);
-    let mine = take_from_bytes::<T>(bytes);
-    match (theirs, mine) {
+    same_verdict(bytes, "codec", take_from_bytes::<T>(bytes))
+}
+
+/// postcard's decoding of `bytes` against `mine` (a value and the bytes it left, or a
+/// failure): the same verdict, and when both decode, the same bytes left and the same
+/// value (compared by its postcard re-encoding). `decoder` names `mine` in a failure.
+fn same_verdict<T: Serialize + DeserializeOwned, E>(
+    bytes: &[u8],
+    decoder: &str,
+    mine: Result<(T, usize), E>,
+) -> Result<(), TestCaseError> {
+    match (postcard::take_from_bytes::<T>(bytes), mine) {
         (Err(_), Err(_)) => Ok(()),
         (Ok((a, rest)), Ok((b, unused))) => {
             prop_assert_eq!(rest.len(), unused);
@@ -47,7 +56,7 @@ fn same_decoding<T: Wire + Serialize + DeserializeOwned>(
             Ok(())
         }
         (theirs, mine) => Err(TestCaseError::fail(std::format!(
-            "postcard ok: {}, codec ok: {} on {bytes:02x?}",
+            "postcard ok: {}, {decoder} ok: {} on {bytes:02x?}",
             theirs.is_ok(),
             mine.is_ok()
         ))),
@@ -70,25 +79,9 @@ fn decoded<R: Real, const P: usize>(bytes: &[u8]) -> Result<(Monitor<R, P>, usiz
     Ok((monitor, unused))
 }
 
-/// postcard and the walk's decoder on `bytes`, read as a monitor: same verdict, and when
-/// both decode, the same bytes left and the same value (compared by its postcard
-/// re-encoding).
+/// postcard and the walk's decoder on `bytes`, read as a monitor: see [`same_verdict`].
 fn same_monitor_decoding<R: Real, const P: usize>(bytes: &[u8]) -> Result<(), TestCaseError> {
-    let theirs = postcard::take_from_bytes::<Monitor<R, P>>(bytes);
-    let mine = decoded::<R, P>(bytes);
-    match (theirs, mine) {
-        (Err(_), Err(_)) => Ok(()),
-        (Ok((a, rest)), Ok((b, unused))) => {
-            prop_assert_eq!(rest.len(), unused);
-            prop_assert_eq!(reference(&a), reference(&b));
-            Ok(())
-        }
-        (theirs, mine) => Err(TestCaseError::fail(std::format!(
-            "postcard ok: {}, walk ok: {} on {bytes:02x?}",
-            theirs.is_ok(),
-            mine.is_ok()
-        ))),
-    }
+    same_verdict(bytes, "walk", decoded::<R, P>(bytes))
 }
 
 /// Decoding in place does not depend on what the target held: into `used` (a monitor
