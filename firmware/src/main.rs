@@ -199,7 +199,7 @@ fn run() -> Result<(), &'static str> {
         counters.readings,
         counters.rejected,
         counters.below_origin,
-        monitor.rung().name(),
+        monitor.rung().code(),
         events,
         monitor.events_dropped()
     );

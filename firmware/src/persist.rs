@@ -21,10 +21,10 @@ use steadycal_core::snapshot::CRC32;
 use crate::channel::Channel;
 use crate::counter::{Counter, Tally};
 use crate::log::{census, LogWriter};
+use crate::say;
 use crate::storage::{
     RamNorFlash, Scratch, FLASH_LEN, LOG_BASE, LOG_LEN, SCRATCH_LEN, SLOT_LEN, WRITE,
 };
-use crate::say;
 #[cfg(not(feature = "footprint-baseline"))]
 use crate::{emit, Line};
 

@@ -356,3 +356,49 @@ proptest! {
         same_monitor_decoding::<f64, 2>(&bytes)?;
     }
 }
+
+/// A unit enum's `code()` is its index on the wire (postcard writes a variant index as a
+/// varint, one byte below 128), and its name parses back: a board that prints codes and a
+/// host that prints names describe the same value.
+fn codes_are_wire_indexes<T: Wire + Serialize + Copy + PartialEq + core::fmt::Debug>(
+    all: &[T],
+    code: fn(T) -> u8,
+    name: fn(T) -> &'static str,
+    from_name: fn(&str) -> Option<T>,
+) {
+    for (position, &value) in all.iter().enumerate() {
+        assert_eq!(usize::from(code(value)), position, "{value:?}");
+        assert_eq!(reference(&value), std::vec![code(value)], "{value:?}");
+        assert_eq!(ours(&value), std::vec![code(value)], "{value:?}");
+        assert_eq!(from_name(name(value)), Some(value), "{value:?}");
+    }
+}
+
+#[test]
+fn unit_enum_codes_are_their_wire_indexes() {
+    codes_are_wire_indexes(&Rung::ALL, Rung::code, Rung::name, Rung::from_name);
+    codes_are_wire_indexes(
+        &Severity::ALL,
+        Severity::code,
+        Severity::name,
+        Severity::from_name,
+    );
+    codes_are_wire_indexes(
+        &RejectReason::ALL,
+        RejectReason::code,
+        RejectReason::name,
+        RejectReason::from_name,
+    );
+    codes_are_wire_indexes(
+        &AlarmKind::ALL,
+        AlarmKind::code,
+        AlarmKind::name,
+        AlarmKind::from_name,
+    );
+    codes_are_wire_indexes(
+        &Direction::ALL,
+        Direction::code,
+        Direction::name,
+        Direction::from_name,
+    );
+}
