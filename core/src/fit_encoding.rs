@@ -180,7 +180,7 @@ impl<'de, R: Real, const P: usize> Deserialize<'de> for RecursiveFit<R, P> {
 }
 
 impl<R: Real, const P: usize> Walk for RecursiveFit<R, P> {
-    fn walk(&mut self, t: &mut Transfer<'_>) {
+    fn walk<'t, 'a>(&mut self, mut t: &'t mut Transfer<'a>) -> &'t mut Transfer<'a> {
         // The shape first: written from the fit, or read, checked and given to the fit
         // (reset to zeros of that shape, as a new fit), so the numbers after it are one
         // walk for both directions.
@@ -202,19 +202,19 @@ impl<R: Real, const P: usize> Walk for RecursiveFit<R, P> {
         // At most P: the loops below run to a capacity, whatever an encoding claims.
         let dim = dim.min(P);
         for x in &mut self.theta[..dim] {
-            x.walk(t);
+            t = x.walk(t);
         }
         for x in &mut self.d[..dim] {
-            x.walk(t);
+            t = x.walk(t);
         }
         for i in 0..dim {
             for x in &mut self.u[i][i + 1..dim] {
-                x.walk(t);
+                t = x.walk(t);
             }
         }
-        self.weighted_sse.walk(t);
-        self.effective.walk(t);
-        self.updates.walk(t);
+        let t = self.weighted_sse.walk(t);
+        let t = self.effective.walk(t);
+        self.updates.walk(t)
     }
 }
 

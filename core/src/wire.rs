@@ -292,8 +292,10 @@ pub(crate) fn take_from_bytes<T: Wire>(bytes: &[u8]) -> Result<(T, usize), Bad> 
 /// length read from the input.
 pub(crate) trait Walk {
     /// Visits the fields of `self` in wire order: writes them when `t` encodes, overwrites
-    /// them when it decodes.
-    fn walk(&mut self, t: &mut Transfer<'_>);
+    /// them when it decodes. Returns `t`, and a walk hands the returned `t` to the next
+    /// field: on Arm it is then already in the first argument register when the next
+    /// field's call is made, one instruction (2 bytes of flash) less per field.
+    fn walk<'t, 'a>(&mut self, t: &'t mut Transfer<'a>) -> &'t mut Transfer<'a>;
 }
 
 /// A value to decode an optional value into: decoding a `Some` into a `None`,
@@ -346,13 +348,15 @@ impl<'a> Transfer<'a> {
     /// A leaf of a walk (a number, a flag, a unit enum), written or read by value with its
     /// [`Wire`] impl. Out of line, one function per type: every field of that type in
     /// every walk is one call with the field's address, and the direction is tested here.
+    /// Returns `self` (see [`Walk::walk`]).
     #[inline(never)]
-    pub(crate) fn value<T: Wire>(&mut self, value: &mut T) {
+    pub(crate) fn value<T: Wire>(&mut self, value: &mut T) -> &mut Self {
         if self.encoding {
             value.put(&mut self.writer);
         } else {
             *value = T::get(&mut self.reader);
         }
+        self
     }
 }
 
@@ -390,8 +394,8 @@ pub(crate) fn decode_into<T: Walk>(value: &mut T, bytes: &[u8]) -> Result<usize,
 
 impl<R: Real> Walk for R {
     #[inline]
-    fn walk(&mut self, t: &mut Transfer<'_>) {
-        t.value(self);
+    fn walk<'t, 'a>(&mut self, t: &'t mut Transfer<'a>) -> &'t mut Transfer<'a> {
+        t.value(self)
     }
 }
 
@@ -407,8 +411,8 @@ macro_rules! walk_by_value {
     ($($ty:ty),*) => {$(
         impl Walk for $ty {
             #[inline]
-            fn walk(&mut self, t: &mut Transfer<'_>) {
-                t.value(self);
+            fn walk<'t, 'a>(&mut self, t: &'t mut Transfer<'a>) -> &'t mut Transfer<'a> {
+                t.value(self)
             }
         }
     )*};
@@ -416,23 +420,25 @@ macro_rules! walk_by_value {
 walk_by_value!(u8, bool, u16, u32, u64);
 
 impl<T: Walk + Blank> Walk for Option<T> {
-    fn walk(&mut self, t: &mut Transfer<'_>) {
+    fn walk<'t, 'a>(&mut self, t: &'t mut Transfer<'a>) -> &'t mut Transfer<'a> {
         // The tag, then the value if there is one. Decoding a `Some` into a `None` puts a
         // blank there first; into a `Some` it walks over the old value, which is the same
         // (a walk overwrites every field of the value).
         if t.option_tag(self.is_some()) {
-            self.get_or_insert_with(T::blank).walk(t);
+            self.get_or_insert_with(T::blank).walk(t)
         } else {
             *self = None;
+            t
         }
     }
 }
 
 impl<T: Walk, const N: usize> Walk for [T; N] {
-    fn walk(&mut self, t: &mut Transfer<'_>) {
+    fn walk<'t, 'a>(&mut self, mut t: &'t mut Transfer<'a>) -> &'t mut Transfer<'a> {
         for value in self.iter_mut() {
-            value.walk(t);
+            t = value.walk(t);
         }
+        t
     }
 }
 
@@ -574,11 +580,15 @@ macro_rules! walk_struct {
     };
     (impl[$($gen:tt)*] $ty:ty { $($field:ident),* $(,)? }) => {
         impl<$($gen)*> $crate::wire::Walk for $ty {
-            fn walk(&mut self, t: &mut $crate::wire::Transfer<'_>) {
+            fn walk<'t, 'a>(
+                &mut self,
+                t: &'t mut $crate::wire::Transfer<'a>,
+            ) -> &'t mut $crate::wire::Transfer<'a> {
                 // A pattern naming every field (compiles to nothing): a field added to the
                 // struct breaks this build until it is listed here.
                 let Self { $($field: _),* } = self;
-                $( $crate::wire::Walk::walk(&mut self.$field, t); )*
+                $( let t = $crate::wire::Walk::walk(&mut self.$field, t); )*
+                t
             }
         }
     };
@@ -604,8 +614,8 @@ macro_rules! wire_unit_enum {
 
         impl Walk for $ty {
             #[inline]
-            fn walk(&mut self, t: &mut Transfer<'_>) {
-                t.value(self);
+            fn walk<'t, 'a>(&mut self, t: &'t mut Transfer<'a>) -> &'t mut Transfer<'a> {
+                t.value(self)
             }
         }
 

@@ -9,7 +9,7 @@ use crate::real::Real;
 use crate::wire::{Transfer, Walk, Wire};
 
 impl<R: Real, const Q: usize> Walk for EventQueue<R, Q> {
-    fn walk(&mut self, t: &mut Transfer<'_>) {
+    fn walk<'t, 'a>(&mut self, t: &'t mut Transfer<'a>) -> &'t mut Transfer<'a> {
         if t.encoding() {
             let w = t.writer();
             w.varint32(self.events.len() as u32);
@@ -28,6 +28,6 @@ impl<R: Real, const Q: usize> Walk for EventQueue<R, Q> {
                 let _ = self.events.push_back(Wire::get(r));
             }
         }
-        self.dropped.walk(t);
+        self.dropped.walk(t)
     }
 }

@@ -26,7 +26,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monito
     /// rebuilds both). Out of line: the snapshot's encoder and decoder both call this one
     /// copy.
     #[inline(never)]
-    fn walk(&mut self, t: &mut Transfer<'_>) {
+    fn walk<'t, 'a>(&mut self, t: &'t mut Transfer<'a>) -> &'t mut Transfer<'a> {
         // Every field named, so a field added to the monitor breaks this build until the
         // walk handles it (compiles to nothing).
         let Monitor {
@@ -42,15 +42,15 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monito
             detectors: _,
             alarm_flags: _,
         } = self;
-        self.config.walk(t);
-        self.ladder.walk(t);
-        self.spread.walk(t);
-        self.mean_check.walk(t);
-        self.events.walk(t);
-        self.counters.walk(t);
-        self.spread_raised.walk(t);
-        self.last_exponent.walk(t);
-        self.detectors.walk(t);
+        let t = self.config.walk(t);
+        let t = self.ladder.walk(t);
+        let t = self.spread.walk(t);
+        let t = self.mean_check.walk(t);
+        let t = self.events.walk(t);
+        let t = self.counters.walk(t);
+        let t = self.spread_raised.walk(t);
+        let t = self.last_exponent.walk(t);
+        self.detectors.walk(t)
     }
 }
 
