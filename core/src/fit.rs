@@ -476,6 +476,33 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
 
     /// The unscaled covariance matrix P = U D Uᵀ (so that Cov(θ) = σ² P); zero past `dim`.
     pub fn covariance(&self) -> [[R; P]; P] {
+        if P == 2 {
+            self.covariance_two()
+        } else {
+            self.covariance_by_loop()
+        }
+    }
+
+    /// [`RecursiveFit::covariance`] written out for a capacity of two (a board's straight
+    /// line): the loop's sums with their terms in the same order, `0 + (1·d₀)·1 +
+    /// (u₀₁·d₁)·u₀₁` and `0 + (u₀₁·d₁)·1`, so the same bits in less code.
+    fn covariance_two(&self) -> [[R; P]; P] {
+        let mut out = [[R::ZERO; P]; P];
+        let d0 = R::ZERO + self.d[0];
+        if self.dim() < 2 || P < 2 {
+            out[0][0] = d0;
+            return out;
+        }
+        let cross = self.u[0][1] * self.d[1];
+        out[0][0] = d0 + cross * self.u[0][1];
+        out[0][1] = R::ZERO + cross;
+        out[1][0] = out[0][1];
+        out[1][1] = R::ZERO + self.d[1];
+        out
+    }
+
+    /// [`RecursiveFit::covariance`] for any capacity.
+    fn covariance_by_loop(&self) -> [[R; P]; P] {
         let n = self.dim();
         let unit = |i: usize, k: usize| -> R {
             if i == k {
@@ -604,6 +631,35 @@ mod tests {
                 );
                 proptest::prop_assert_eq!(written.weighted_sse.to_bits(), looped.weighted_sse.to_bits());
                 proptest::prop_assert_eq!(written.effective.to_bits(), looped.effective.to_bits());
+            }
+        }
+    }
+
+    proptest::proptest! {
+        /// The written-out covariance of a capacity-two fit has the bits of the loop.
+        #[test]
+        fn written_out_covariance_matches_the_loop_bit_for_bit(
+            dim in 1usize..=2,
+            rows in proptest::collection::vec(
+                (-1e3f64..1e3, -1e4f64..1e4, 1e-3f64..1e3), 0..40),
+        ) {
+            let mut fit: RecursiveFit<f64, 2> = RecursiveFit::new(dim, config(0.99, 1e6));
+            let mut narrow: RecursiveFit<f32, 2> = RecursiveFit::new(dim, FitConfig {
+                forgetting: 0.99,
+                initial_variance: 1e6,
+            });
+            for (x1, y, relative_variance) in rows {
+                let x = [1.0, if dim == 2 { x1 } else { 0.0 }];
+                let _ = fit.update(&x, y, relative_variance);
+                let _ = narrow.update(&x.map(|v| v as f32), y as f32, relative_variance as f32);
+                proptest::prop_assert_eq!(
+                    fit.covariance_two().map(|row| row.map(f64::to_bits)),
+                    fit.covariance_by_loop().map(|row| row.map(f64::to_bits))
+                );
+                proptest::prop_assert_eq!(
+                    narrow.covariance_two().map(|row| row.map(f32::to_bits)),
+                    narrow.covariance_by_loop().map(|row| row.map(f32::to_bits))
+                );
             }
         }
     }
