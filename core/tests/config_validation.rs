@@ -169,3 +169,24 @@ fn float_settings_follow_their_rules_f32() {
 fn float_settings_follow_their_rules_f64() {
     check::<f64>();
 }
+
+/// The reference gap (an `f64` whatever the core's type) follows
+/// its documented rule, "positive; ∞ turns the check off", on the awkward values, a
+/// negative NaN and the largest finite value.
+#[test]
+fn reference_gap_follows_its_rule() {
+    let base = DetectConfig::<f32>::default_for_range(0.0, 1.0, 100.0);
+    let values = awkward::<f64>()
+        .into_iter()
+        .chain([-f64::NAN, f64::MAX, 4.9e-324]);
+    for gap in values {
+        let mut config = base;
+        config.screen.reference_gap_seconds = gap;
+        let expected = if gap > 0.0 {
+            Ok(())
+        } else {
+            Err(DetectConfigError::ReferenceGap)
+        };
+        assert_eq!(config.validate(), expected, "{gap:?}");
+    }
+}

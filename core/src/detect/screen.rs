@@ -292,6 +292,20 @@ mod tests {
         assert_eq!(screen.observe_time(&config, f64::NAN, false), None);
         assert_eq!(screen.observe_time(&config, 62.0, true), None);
         assert_eq!(screen.observe_time(&config, 100.0, false), None);
+        // Negative times, and a time that runs backwards.
+        let mut screen = Screen::<f32>::new();
+        assert_eq!(screen.observe_time(&config, -100.0, true), None);
+        assert_eq!(screen.observe_time(&config, -40.0, false), None);
+        assert_eq!(screen.observe_time(&config, -39.5, false), Some(60.5));
+        assert_eq!(screen.observe_time(&config, -1000.0, false), None);
+        // An infinite gap turns the check off, even for an elapsed time that overflows.
+        let off = ScreenConfig {
+            reference_gap_seconds: f64::INFINITY,
+            ..config
+        };
+        let mut screen = Screen::<f32>::new();
+        assert_eq!(screen.observe_time(&off, -f64::MAX, true), None);
+        assert_eq!(screen.observe_time(&off, f64::MAX, false), None);
     }
 }
 
