@@ -170,9 +170,9 @@ fn float_settings_follow_their_rules_f64() {
     check::<f64>();
 }
 
-/// The reference gap (an `f64` whatever the core's type) follows
-/// its documented rule, "positive; ∞ turns the check off", on the awkward values, a
-/// negative NaN and the largest finite value.
+/// The reference gap (an `f64` whatever the core's type) follows its documented rule,
+/// "positive; ∞ turns the check off", on the awkward values, a negative NaN, the largest
+/// finite value and the smallest subnormal.
 #[test]
 fn reference_gap_follows_its_rule() {
     let base = DetectConfig::<f32>::default_for_range(0.0, 1.0, 100.0);
