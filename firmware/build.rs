@@ -25,10 +25,10 @@ use steadycal_core::monitor::{Monitor, MonitorConfig};
 use steadycal_core::record::{encode_frame, LogStart, Record, MAX_FRAME_LEN};
 use steadycal_core::sample::Sample;
 
-/// Working range of the default replay configuration; the firmware's `LEVEL_LOW` and
-/// `LEVEL_HIGH` (src/main.rs) are the same.
-const LEVEL_LOW: f64 = 1.0;
-const LEVEL_HIGH: f64 = 1000.0;
+/// The working range, the same file the firmware compiles.
+#[path = "src/range.rs"]
+mod range;
+use range::{LEVEL_HIGH, LEVEL_LOW};
 
 fn main() {
     let out = PathBuf::from(env::var("OUT_DIR").expect("OUT_DIR"));
@@ -52,6 +52,7 @@ fn main() {
         );
     }
 
+    println!("cargo:rerun-if-changed=src/range.rs");
     println!("cargo:rerun-if-env-changed=STEADYCAL_FEED");
     println!("cargo:rerun-if-env-changed=STEADYCAL_FEED_ROWS");
     let feed = env::var_os("STEADYCAL_FEED")

@@ -23,15 +23,6 @@ pub enum Severity {
 }
 
 impl Severity {
-    /// Every severity, in declaration order (the position is [`Severity::code`]).
-    pub const ALL: [Severity; 3] = [Severity::Info, Severity::Warn, Severity::Alarm];
-
-    /// Position in [`Severity::ALL`]: the index the device log and the snapshot encode,
-    /// and what a board prints instead of the name (names stay on the host).
-    pub const fn code(self) -> u8 {
-        self as u8
-    }
-
     /// Name as written in event logs and configs.
     pub const fn name(self) -> &'static str {
         match self {
@@ -43,7 +34,9 @@ impl Severity {
 
     /// Parses a name written by [`Severity::name`].
     pub fn from_name(name: &str) -> Option<Severity> {
-        Severity::ALL.into_iter().find(|s| s.name() == name)
+        [Severity::Info, Severity::Warn, Severity::Alarm]
+            .into_iter()
+            .find(|s| s.name() == name)
     }
 }
 
@@ -69,28 +62,6 @@ pub enum RejectReason {
 }
 
 impl RejectReason {
-    /// Every reason, in declaration order (the position is [`RejectReason::code`]).
-    pub const ALL: [RejectReason; 7] = [
-        RejectReason::NonFiniteRaw,
-        RejectReason::NonFiniteReference,
-        RejectReason::NonFiniteTemperature,
-        RejectReason::BelowOrigin,
-        RejectReason::OutOfRange,
-        RejectReason::Spike,
-        RejectReason::Stuck,
-    ];
-
-    /// Position in [`RejectReason::ALL`]: the index the device log and the snapshot encode,
-    /// and what a board prints instead of the name.
-    pub const fn code(self) -> u8 {
-        self as u8
-    }
-
-    /// Parses a name written by [`RejectReason::name`].
-    pub fn from_name(name: &str) -> Option<RejectReason> {
-        RejectReason::ALL.into_iter().find(|r| r.name() == name)
-    }
-
     /// Name as written in event logs.
     pub const fn name(self) -> &'static str {
         match self {
@@ -150,17 +121,6 @@ impl AlarmKind {
         self as usize
     }
 
-    /// [`AlarmKind::index`] as a byte: the index the device log and the snapshot encode,
-    /// and what a board prints instead of the name.
-    pub const fn code(self) -> u8 {
-        self as u8
-    }
-
-    /// Parses a name written by [`AlarmKind::name`].
-    pub fn from_name(name: &str) -> Option<AlarmKind> {
-        AlarmKind::ALL.into_iter().find(|a| a.name() == name)
-    }
-
     /// Name, the same as the event kind that raises it.
     pub const fn name(self) -> &'static str {
         match self {
@@ -187,20 +147,6 @@ pub enum Direction {
 }
 
 impl Direction {
-    /// Both directions, in declaration order (the position is [`Direction::code`]).
-    pub const ALL: [Direction; 2] = [Direction::Up, Direction::Down];
-
-    /// Position in [`Direction::ALL`]: the index the device log and the snapshot encode,
-    /// and what a board prints instead of the name.
-    pub const fn code(self) -> u8 {
-        self as u8
-    }
-
-    /// Parses a name written by [`Direction::name`].
-    pub fn from_name(name: &str) -> Option<Direction> {
-        Direction::ALL.into_iter().find(|d| d.name() == name)
-    }
-
     /// Name as written in event logs.
     pub const fn name(self) -> &'static str {
         match self {

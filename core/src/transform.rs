@@ -87,12 +87,6 @@ impl Rung {
         }
     }
 
-    /// Position in [`Rung::ALL`] as a byte: the index the device log and the snapshot
-    /// encode, and what a board prints instead of the name (names stay on the host).
-    pub const fn code(self) -> u8 {
-        self as u8
-    }
-
     /// Parses a rung name written by [`Rung::name`].
     pub fn from_name(name: &str) -> Option<Rung> {
         Rung::ALL.iter().copied().find(|rung| rung.name() == name)

@@ -2,11 +2,8 @@
 //!
 //! One line per event: `event SEQ KIND t=T FIELD=VALUE ...`, fields in the order of the
 //! `EventKind` variant's declaration. Floats of the core's type (f32 here) are written as
-//! the 8 hex digits of `to_bits()`, f64 values (`t`, `seconds`) as 16 hex digits, the
-//! event kind as the core's `name()`, the other enum fields (rungs, reasons, severities,
-//! directions, alarms) as their `code()`, the variant's position, which is also its index
-//! in the device log and the snapshot (their names stay on the host, as with deferred
-//! logging: the name tables would cost the board about 1.4 KB of flash), integers in
+//! the 8 hex digits of `to_bits()`, f64 values (`t`, `seconds`) as 16 hex digits, names
+//! (rungs, reasons, severities, directions, alarms) as the core's `name()`, integers in
 //! decimal, booleans as `true`/`false`. A non-finite float is written `null`, because the
 //! host's JSON lines cannot carry one.
 //!
@@ -46,7 +43,7 @@ pub fn event_line(out: &mut impl Write, event: &Event<f32>, t: f64) -> fmt::Resu
             put_f32(out, "k_high", k_high)
         }
         EventKind::TransformChanged { from, to, gain } => {
-            write!(out, " from={} to={}", from.code(), to.code())?;
+            write!(out, " from={} to={}", from.name(), to.name())?;
             put_f32(out, "gain", gain)
         }
         EventKind::MeanMisfit {
@@ -56,19 +53,19 @@ pub fn event_line(out: &mut impl Write, event: &Event<f32>, t: f64) -> fmt::Resu
             suggest_quadratic,
             suggest_temperature,
         } => {
-            write!(out, " rung={}", rung.code())?;
+            write!(out, " rung={}", rung.name())?;
             put_f32(out, "statistic", statistic)?;
             write!(out, " dof={dof} suggest_quadratic={suggest_quadratic} suggest_temperature={suggest_temperature}")
         }
-        EventKind::SampleRejected { reason } => write!(out, " reason={}", reason.code()),
+        EventKind::SampleRejected { reason } => write!(out, " reason={}", reason.name()),
         EventKind::BiasShift {
             direction,
             size,
             severity,
         } => {
-            write!(out, " direction={}", direction.code())?;
+            write!(out, " direction={}", direction.name())?;
             put_f32(out, "size", size)?;
-            write!(out, " severity={}", severity.code())
+            write!(out, " severity={}", severity.name())
         }
         EventKind::GainDrift {
             change,
@@ -82,23 +79,23 @@ pub fn event_line(out: &mut impl Write, event: &Event<f32>, t: f64) -> fmt::Resu
         } => {
             put_f32(out, "change", change)?;
             put_f32(out, "uncertainty", uncertainty)?;
-            write!(out, " severity={}", severity.code())
+            write!(out, " severity={}", severity.name())
         }
         EventKind::SpreadJump { ratio, severity } => {
             put_f32(out, "ratio", ratio)?;
-            write!(out, " severity={}", severity.code())
+            write!(out, " severity={}", severity.name())
         }
         EventKind::SignalStuck { run, severity } => {
-            write!(out, " run={run} severity={}", severity.code())
+            write!(out, " run={run} severity={}", severity.name())
         }
         EventKind::SignalOutOfRange { raw, severity } => {
             put_f32(out, "raw", raw)?;
-            write!(out, " severity={}", severity.code())
+            write!(out, " severity={}", severity.name())
         }
         EventKind::ReferenceGap { seconds, severity } => {
             put_f64(out, "seconds", seconds)?;
-            write!(out, " severity={}", severity.code())
+            write!(out, " severity={}", severity.name())
         }
-        EventKind::Cleared { alarm } => write!(out, " alarm={}", alarm.code()),
+        EventKind::Cleared { alarm } => write!(out, " alarm={}", alarm.name()),
     }
 }

@@ -23,6 +23,7 @@ mod counter;
 mod lines;
 mod log;
 mod persist;
+mod range;
 mod sqrt_check;
 mod storage;
 
@@ -37,11 +38,7 @@ use steadycal_core::sample::Flags;
 
 use crate::channel::Channel;
 use crate::counter::{Counter, Tally};
-
-/// Working range of the default replay configuration (`steadycal replay` defaults
-/// `--level-low 1 --level-high 1000`).
-const LEVEL_LOW: f64 = 1.0;
-const LEVEL_HIGH: f64 = 1000.0;
+use crate::range::{LEVEL_HIGH, LEVEL_LOW};
 
 type Line = String<320>;
 
@@ -199,7 +196,7 @@ fn run() -> Result<(), &'static str> {
         counters.readings,
         counters.rejected,
         counters.below_origin,
-        monitor.rung().code(),
+        monitor.rung().name(),
         events,
         monitor.events_dropped()
     );
