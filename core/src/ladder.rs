@@ -379,9 +379,22 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             .into_iter()
             .filter(|&rung| rung != self.active && credible(rung))
             .all(|rung| {
-                let (_, z) = self.standardized_on(config, rung, x, raw);
+                let (_, z) = self.standardized_on_out_of_line(config, rung, x, raw);
                 z.is_none() || beyond(z)
             })
+    }
+
+    /// [`PowerLadder::standardized_on`] as one out-of-line copy for the spike veto, which
+    /// runs only on a suspected spike; the check's own assessment keeps it inlined.
+    #[inline(never)]
+    fn standardized_on_out_of_line(
+        &self,
+        config: &LadderConfig<R>,
+        rung: Rung,
+        x: &[R; P],
+        raw: R,
+    ) -> (R, Option<R>) {
+        self.standardized_on(config, rung, x, raw)
     }
 
     /// One check: `x` the regressors of the reference, `raw` the sensor output.
