@@ -135,9 +135,16 @@ pub fn encode_frame<R: Real>(record: &Record<R>, out: &mut [u8]) -> Result<usize
     let mut raw = [0u8; MAX_RECORD_LEN + 2];
     let len =
         wire::to_slice(record, &mut raw[..MAX_RECORD_LEN]).map_err(|_| RecordError::TooLong)?;
-    let crc = CRC16.checksum(&raw[..len]);
-    raw[len..len + 2].copy_from_slice(&crc.to_le_bytes());
-    let body = cobs::try_encode(&raw[..len + 2], out).map_err(|_| RecordError::BufferTooSmall)?;
+    // The record and its CRC through a checked split (`len` is at most MAX_RECORD_LEN):
+    // no panic path on a board.
+    let Some(framed) = raw.get_mut(..len + 2) else {
+        return Err(RecordError::TooLong);
+    };
+    let Some((bytes, crc_out)) = framed.split_last_chunk_mut::<2>() else {
+        return Err(RecordError::TooLong);
+    };
+    *crc_out = CRC16.checksum(bytes).to_le_bytes();
+    let body = cobs::try_encode(framed, out).map_err(|_| RecordError::BufferTooSmall)?;
     let delimiter = out.get_mut(body).ok_or(RecordError::BufferTooSmall)?;
     *delimiter = 0;
     Ok(body + 1)

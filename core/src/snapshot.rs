@@ -260,7 +260,7 @@ impl Header {
             .saturating_add(CRC_LEN)
     }
 
-    fn write(&self, out: &mut [u8]) {
+    fn write(&self, out: &mut [u8; HEADER_LEN]) {
         out[..4].copy_from_slice(&MAGIC);
         out[4..6].copy_from_slice(&self.version.to_le_bytes());
         out[6] = self.layout.real_bits;
@@ -327,7 +327,10 @@ impl<'a> Snapshot<'a> {
 
     /// The postcard payload.
     pub fn payload(&self) -> &'a [u8] {
-        &self.bytes[HEADER_LEN..self.bytes.len() - CRC_LEN]
+        // In range for every parsed snapshot; the checked form keeps a panic path (and
+        // its source location) off a board.
+        let end = self.bytes.len().saturating_sub(CRC_LEN);
+        self.bytes.get(HEADER_LEN..end).unwrap_or(&[])
     }
 
     /// Decodes the monitor (layout, payload and state checked).
@@ -381,21 +384,28 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     pub fn snapshot(&mut self, out: &mut [u8]) -> Result<usize, SnapshotError> {
         let capacity = out.len();
         let too_small = SnapshotError::BufferTooSmall { capacity };
-        if capacity < HEADER_LEN + CRC_LEN {
+        // Checked splits throughout: no panic path (and no source location) on a board.
+        let Some((header_out, rest)) = out.split_first_chunk_mut::<HEADER_LEN>() else {
             return Err(too_small);
-        }
-        let payload_room = capacity - HEADER_LEN - CRC_LEN;
-        let payload_len = wire::encode(self, &mut out[HEADER_LEN..HEADER_LEN + payload_room])
-            .map_err(|_| too_small)?;
+        };
+        let Some((payload_out, _)) = rest.split_last_chunk_mut::<CRC_LEN>() else {
+            return Err(too_small);
+        };
+        let payload_len = wire::encode(self, payload_out).map_err(|_| too_small)?;
         let header = Header {
             version: FORMAT_VERSION,
             layout: Layout::of::<R, P, BINS, Q>(),
             payload_len: payload_len as u32,
         };
-        header.write(&mut out[..HEADER_LEN]);
+        header.write(header_out);
         let body = HEADER_LEN + payload_len;
-        let crc = CRC32.checksum(&out[..body]);
-        out[body..body + CRC_LEN].copy_from_slice(&crc.to_le_bytes());
+        let Some((data, crc_out)) = out
+            .get_mut(..body + CRC_LEN)
+            .and_then(|bytes| bytes.split_last_chunk_mut::<CRC_LEN>())
+        else {
+            return Err(too_small);
+        };
+        *crc_out = CRC32.checksum(data).to_le_bytes();
         Ok(body + CRC_LEN)
     }
 

@@ -164,10 +164,13 @@ impl<F: NorFlash> SnapshotStore<F> {
         let read = F::READ_SIZE.max(1);
         let offset = self.slot_offset(slot);
         let head = round_up(SEQ_LEN + HEADER_LEN, read).min(self.slot_len());
+        // Checked slices throughout (the callers made the scratch big enough): no panic
+        // path on a board.
+        let head_bytes = scratch.get_mut(..head).ok_or(StoreError::ScratchTooSmall)?;
         self.flash
-            .read(offset, &mut scratch[..head])
+            .read(offset, head_bytes)
             .map_err(StoreError::Flash)?;
-        let Ok(header) = Header::parse(&scratch[SEQ_LEN..head]) else {
+        let Ok(header) = Header::parse(head_bytes.get(SEQ_LEN..).unwrap_or(&[])) else {
             return Ok(None);
         };
         let len = header.total_len();
@@ -179,9 +182,9 @@ impl<F: NorFlash> SnapshotStore<F> {
         if whole > scratch.len() {
             return Err(StoreError::ScratchTooSmall);
         }
-        if whole > head {
+        if let Some(rest) = scratch.get_mut(head..whole).filter(|rest| !rest.is_empty()) {
             self.flash
-                .read(offset + head as u32, &mut scratch[head..whole])
+                .read(offset + head as u32, rest)
                 .map_err(StoreError::Flash)?;
         }
         let body = SEQ_LEN + len;
@@ -194,10 +197,13 @@ impl<F: NorFlash> SnapshotStore<F> {
             return Ok(None);
         };
         let stored = u32::from_le_bytes([a, b, c, d]);
-        if CRC32.checksum(data) != stored || Snapshot::parse(&scratch[SEQ_LEN..body]).is_err() {
+        let Some((&seq, snapshot)) = data.split_first_chunk::<SEQ_LEN>() else {
+            return Ok(None);
+        };
+        if CRC32.checksum(data) != stored || Snapshot::parse(snapshot).is_err() {
             return Ok(None);
         }
-        let seq = u32::from_le_bytes([scratch[0], scratch[1], scratch[2], scratch[3]]);
+        let seq = u32::from_le_bytes(seq);
         Ok(Some(SlotInfo { slot, seq, len }))
     }
 
@@ -236,7 +242,14 @@ impl<F: NorFlash> SnapshotStore<F> {
         scratch: &'s mut [u8],
     ) -> Result<Option<Loaded<'s>>, StoreError<F::Error>> {
         match self.newest(scratch)? {
-            Some(info) => Ok(Some((info, &scratch[SEQ_LEN..SEQ_LEN + info.len]))),
+            Some(info) => {
+                // In range (`newest` checked the record in this scratch); checked anyway,
+                // which keeps a panic path off a board.
+                let bytes = scratch
+                    .get(SEQ_LEN..SEQ_LEN + info.len)
+                    .ok_or(StoreError::ScratchTooSmall)?;
+                Ok(Some((info, bytes)))
+            }
             None => Ok(None),
         }
     }
@@ -265,8 +278,13 @@ impl<F: NorFlash> SnapshotStore<F> {
     ) -> Result<SlotInfo, StoreError<F::Error>> {
         let newest = self.newest(scratch)?;
         let room = self.room(scratch);
+        // Within the scratch (`room` leaves its sequence number and CRC); checked slices
+        // here and below keep panic paths off a board.
+        let snapshot_out = scratch
+            .get_mut(SEQ_LEN..SEQ_LEN + room)
+            .ok_or(StoreError::ScratchTooSmall)?;
         let len = monitor
-            .snapshot(&mut scratch[SEQ_LEN..SEQ_LEN + room])
+            .snapshot(snapshot_out)
             .map_err(|_| StoreError::SnapshotTooLarge)?;
         self.write_record(newest, len, scratch)
     }
@@ -305,26 +323,35 @@ impl<F: NorFlash> SnapshotStore<F> {
             Some(info) => (1 - info.slot, info.seq.wrapping_add(1)),
             None => (0, 1),
         };
-        scratch[..SEQ_LEN].copy_from_slice(&seq.to_le_bytes());
         let body = SEQ_LEN + len;
-        let crc = CRC32.checksum(&scratch[..body]);
-        scratch[body..body + CRC_LEN].copy_from_slice(&crc.to_le_bytes());
         let record = body + CRC_LEN;
         let padded = round_up(record, F::WRITE_SIZE.max(1));
         if padded > self.slot_len() {
             return Err(StoreError::SnapshotTooLarge);
         }
-        if padded > scratch.len() {
+        // The record image: sequence number, snapshot (already in place), CRC, padding.
+        let image = scratch
+            .get_mut(..padded)
+            .ok_or(StoreError::ScratchTooSmall)?;
+        let Some((seq_out, _)) = image.split_first_chunk_mut::<SEQ_LEN>() else {
             return Err(StoreError::ScratchTooSmall);
+        };
+        *seq_out = seq.to_le_bytes();
+        let Some((data, crc_out)) = image
+            .get_mut(..record)
+            .and_then(|bytes| bytes.split_last_chunk_mut::<CRC_LEN>())
+        else {
+            return Err(StoreError::ScratchTooSmall);
+        };
+        *crc_out = CRC32.checksum(data).to_le_bytes();
+        if let Some(padding) = image.get_mut(record..) {
+            padding.fill(0xFF);
         }
-        scratch[record..padded].fill(0xFF);
         let offset = self.slot_offset(slot);
         self.flash
             .erase(offset, offset + self.slot_len)
             .map_err(StoreError::Flash)?;
-        self.flash
-            .write(offset, &scratch[..padded])
-            .map_err(StoreError::Flash)?;
+        self.flash.write(offset, image).map_err(StoreError::Flash)?;
         Ok(SlotInfo { slot, seq, len })
     }
 }
