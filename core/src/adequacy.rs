@@ -124,7 +124,11 @@ impl<R: Real, const BINS: usize> MeanCheck<R, BINS> {
         let threshold = chi_square_quantile(dof as u32, z);
         let curved = match (first, last) {
             (Some(first), Some(last)) if last >= first + 2 => {
-                let mean = |bin: usize| self.sums[bin] / R::from_u32(self.counts[bin].max(1));
+                // Bins found by the loop above (checked access: no panic path on a board).
+                let mean = |bin: usize| match (self.sums.get(bin), self.counts.get(bin)) {
+                    (Some(&sum), Some(&count)) => sum / R::from_u32(count.max(1)),
+                    _ => R::ZERO,
+                };
                 let middle = (first + last) / 2;
                 let ends = mean(first) + mean(last);
                 // Ends on one side of the middle: a bowed mean.

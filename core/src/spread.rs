@@ -459,11 +459,12 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         // The usable bins' points, computed once (one logarithm each) for the three passes.
         let mut points = [(R::ZERO, R::ZERO, R::ZERO); BINS];
         let mut used = 0usize;
-        for point in self.bins.iter().filter_map(|bin| self.exponent_point(bin)) {
-            points[used] = point;
+        let usable = self.bins.iter().filter_map(|bin| self.exponent_point(bin));
+        for (slot, point) in points.iter_mut().zip(usable) {
+            *slot = point;
             used += 1;
         }
-        let points = &points[..used];
+        let points = points.get(..used).unwrap_or(&[]);
         // First pass: weighted means.
         let bins_used = u8::try_from(used).unwrap_or(u8::MAX);
         let mut weight_sum = R::ZERO;

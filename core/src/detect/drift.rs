@@ -127,11 +127,15 @@ impl<R: Real> Layout<R> {
         }
     }
 
-    /// Physical parameters from scaled ones.
+    /// Physical parameters from scaled ones. A slot outside `0..4` (not one `Layout::of`
+    /// makes) is skipped: checked indexing, so no panic path.
     pub fn physical<const P: usize>(&self, scaled: &[R; P]) -> [R; 4] {
         let mut out = [R::ZERO; 4];
-        for i in 0..self.len.min(P) {
-            out[self.slots[i]] = self.factors[i] * scaled[i];
+        let packed = self.slots.iter().zip(&self.factors).zip(scaled);
+        for ((&slot, &factor), &value) in packed.take(self.len) {
+            if let Some(entry) = out.get_mut(slot) {
+                *entry = factor * value;
+            }
         }
         out
     }
@@ -143,11 +147,16 @@ impl<R: Real> Layout<R> {
         variance: R,
     ) -> [[R; 4]; 4] {
         let mut out = [[R::ZERO; 4]; 4];
-        let n = self.len.min(P);
-        for i in 0..n {
-            for j in 0..n {
-                out[self.slots[i]][self.slots[j]] =
-                    self.factors[i] * self.factors[j] * variance * covariance[i][j];
+        // Checked indexing as in `physical`.
+        let packed = || self.slots.iter().zip(&self.factors).take(self.len);
+        for ((&slot_i, &f_i), row) in packed().zip(covariance) {
+            for ((&slot_j, &f_j), &value) in packed().zip(row) {
+                if let Some(entry) = out
+                    .get_mut(slot_i)
+                    .and_then(|out_row| out_row.get_mut(slot_j))
+                {
+                    *entry = f_i * f_j * variance * value;
+                }
             }
         }
         out
@@ -275,13 +284,16 @@ impl<R: Real> DriftDetector<R> {
         }
         let mut difference = [R::ZERO; 4];
         let mut sigma = [[R::ZERO; 4]; 4];
-        for i in 0..n {
+        // Checked indexing (a slot outside `0..4` makes the inputs unusable): no panic
+        // path.
+        for i in 0..n.min(4) {
             let (slot_i, f_i) = (layout.slots[i], layout.factors[i]);
-            difference[i] = theta[i] - baseline.parameters[slot_i] / f_i;
-            for j in 0..n {
+            difference[i] = theta[i] - *baseline.parameters.get(slot_i)? / f_i;
+            let baseline_row = baseline.covariance.get(slot_i)?;
+            for j in 0..n.min(4) {
                 let (slot_j, f_j) = (layout.slots[j], layout.factors[j]);
                 sigma[i][j] =
-                    variance * covariance[i][j] + baseline.covariance[slot_i][slot_j] / (f_i * f_j);
+                    variance * covariance[i][j] + *baseline_row.get(slot_j)? / (f_i * f_j);
             }
         }
         let wald = quadratic_form(&sigma, &difference, n)?;
@@ -349,6 +361,21 @@ mod tests {
             freeze_after: 100,
             every: 1,
         }
+    }
+
+    #[test]
+    fn a_slot_outside_the_four_is_skipped_not_a_panic() {
+        // A layout `Layout::of` never makes (the fields are public).
+        let layout = Layout {
+            len: 2,
+            slots: [0, 9, 0, 0],
+            factors: [1.0, 0.5, 0.0, 0.0],
+        };
+        assert_eq!(layout.physical(&[2.0, 4.0]), [2.0, 0.0, 0.0, 0.0]);
+        let covariance = layout.physical_covariance(&[[1.0, 0.5], [0.5, 2.0]], 3.0);
+        let mut expected = [[0.0; 4]; 4];
+        expected[0][0] = 3.0;
+        assert_eq!(covariance, expected);
     }
 
     #[test]
