@@ -38,7 +38,7 @@ mod real {
         /// (`MonitorConfig::<f64>::default_for_range(low, high).convert()`). build.rs
         /// builds and validates the same configuration on the host and fails the build
         /// naming the parameter, so the board's message does not name it (the names of
-        /// `ConfigError::parameter` and the code that picks one take 918 B of its flash).
+        /// `ConfigError::parameter` and the code that picks one take about 920 B of its flash).
         pub fn new(low: f64, high: f64) -> Result<Channel, &'static str> {
             let config: MonitorConfig<f32> =
                 MonitorConfig::<f64>::default_for_range(low, high).convert();
