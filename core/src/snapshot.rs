@@ -61,6 +61,17 @@ pub const CRC_LEN: usize = 4;
 /// The CRC of a snapshot: CRC-32/ISO-HDLC (the CRC-32 of zlib, PNG and Ethernet).
 pub const CRC32: Crc<u32, CrcMethod> = Crc::<u32, CrcMethod>::new(&CRC_32_ISO_HDLC);
 
+/// Writes the [`CRC32`] of `bytes[..len]`, little-endian, into the [`CRC_LEN`] bytes after
+/// it and returns the sealed length; `None` when `bytes` has no room for it. A checked
+/// split, so no panic path on a board (the snapshot writer and the store's record writer
+/// both seal this way).
+pub(crate) fn seal_crc32(bytes: &mut [u8], len: usize) -> Option<usize> {
+    let sealed = len.checked_add(CRC_LEN)?;
+    let (data, crc_out) = bytes.get_mut(..sealed)?.split_last_chunk_mut::<CRC_LEN>()?;
+    *crc_out = CRC32.checksum(data).to_le_bytes();
+    Some(sealed)
+}
+
 /// Upper bound of the encoded snapshot of a `Monitor<R, P, BINS, Q>`, header and CRC
 /// included.
 ///
@@ -398,15 +409,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             payload_len: payload_len as u32,
         };
         header.write(header_out);
-        let body = HEADER_LEN + payload_len;
-        let Some((data, crc_out)) = out
-            .get_mut(..body + CRC_LEN)
-            .and_then(|bytes| bytes.split_last_chunk_mut::<CRC_LEN>())
-        else {
-            return Err(too_small);
-        };
-        *crc_out = CRC32.checksum(data).to_le_bytes();
-        Ok(body + CRC_LEN)
+        seal_crc32(out, HEADER_LEN + payload_len).ok_or(too_small)
     }
 
     /// A monitor from a snapshot written by [`Monitor::snapshot`]: `bytes` must hold exactly
@@ -423,6 +426,17 @@ mod tests {
     use crate::monitor::MonitorConfig;
     use crate::sample::Sample;
     use proptest::prelude::*;
+
+    #[test]
+    fn sealing_appends_the_crc_or_refuses_without_room() {
+        // "123456789" is the catalogue check input; CRC-32/ISO-HDLC gives 0xCBF43926
+        // (from memory, the CRC catalogue's check value).
+        let mut bytes = *b"123456789....";
+        assert_eq!(seal_crc32(&mut bytes, 9), Some(13));
+        assert_eq!(bytes[9..], 0xCBF4_3926u32.to_le_bytes());
+        assert_eq!(seal_crc32(&mut bytes, 10), None);
+        assert_eq!(seal_crc32(&mut bytes, usize::MAX), None);
+    }
 
     fn run(monitor: &mut Monitor<f32>, from: u64, to: u64) {
         // A deterministic proportional-error line (invented, for the test).

@@ -35,7 +35,7 @@ use embedded_storage::nor_flash::NorFlash;
 
 use crate::monitor::Monitor;
 use crate::real::Real;
-use crate::snapshot::{Header, Snapshot, SnapshotError, CRC32, CRC_LEN, HEADER_LEN};
+use crate::snapshot::{seal_crc32, Header, Snapshot, SnapshotError, CRC32, CRC_LEN, HEADER_LEN};
 
 /// Bytes of the sequence number before the snapshot in a slot.
 pub const SEQ_LEN: usize = 4;
@@ -337,13 +337,7 @@ impl<F: NorFlash> SnapshotStore<F> {
             return Err(StoreError::ScratchTooSmall);
         };
         *seq_out = seq.to_le_bytes();
-        let Some((data, crc_out)) = image
-            .get_mut(..record)
-            .and_then(|bytes| bytes.split_last_chunk_mut::<CRC_LEN>())
-        else {
-            return Err(StoreError::ScratchTooSmall);
-        };
-        *crc_out = CRC32.checksum(data).to_le_bytes();
+        seal_crc32(image, body).ok_or(StoreError::ScratchTooSmall)?;
         if let Some(padding) = image.get_mut(record..) {
             padding.fill(0xFF);
         }
