@@ -8,7 +8,7 @@
 
 pub mod assess;
 pub mod commands;
-pub mod config;
+pub use steadycal_config as config;
 pub mod decimal;
 pub mod device_log;
 pub mod feed;
