@@ -7,6 +7,7 @@
 #![forbid(unsafe_code)]
 
 pub mod assess;
+pub mod baseline;
 pub mod commands;
 pub use steadycal_config as config;
 pub mod decimal;

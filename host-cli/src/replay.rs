@@ -14,6 +14,7 @@ use std::str::FromStr;
 use anyhow::{Context, Result};
 use serde::Serialize;
 use serde_json::{json, Map, Value};
+use steadycal_config::Commissioned;
 use steadycal_core::event::{AlarmKind, Event, EventKind, Severity};
 use steadycal_core::monitor::{Monitor, MonitorConfig};
 use steadycal_core::real::Real;
@@ -21,6 +22,7 @@ use steadycal_core::record::Record;
 use steadycal_core::sample::{Flags, Outcome, Sample};
 use steadycal_core::transform::Rung;
 
+use crate::baseline::{cusum_json, BaselineOrigin};
 use crate::feed::{Batch, ColumnNames, CsvFeed, FeedError, FeedFloat};
 
 /// The caution every report and summary carries.
@@ -56,6 +58,9 @@ pub struct ReplayOptions {
     pub columns: ColumnNames,
     /// Monitor configuration (f64 values; rounded for f32 runs).
     pub config: MonitorConfig<f64>,
+    /// The commissioned baseline of the drift test (the configuration's `[baseline]`);
+    /// `None`: the monitor freezes its own.
+    pub baseline: Option<Commissioned>,
     /// Skip malformed rows (listing each in the summary) instead of stopping.
     pub skip_bad_rows: bool,
     /// Show a progress bar on standard error for long feed files.
@@ -111,6 +116,7 @@ impl ReplayOptions {
             precision: Precision::F32,
             columns: ColumnNames::default(),
             config,
+            baseline: None,
             skip_bad_rows: false,
             progress: false,
             warnings: true,
@@ -556,22 +562,30 @@ pub struct Engine<R: Real> {
     pub time_order: TimeOrder,
     /// Time of the last sample.
     pub last_t: f64,
+    /// Where the drift test's baseline came from.
+    pub baseline: BaselineOrigin,
 }
 
 impl<R: Real + Display> Engine<R> {
-    /// A fresh engine; a configuration the core refuses is an error naming the parameter.
-    pub fn new(config: &MonitorConfig<f64>) -> Result<Self> {
+    /// A fresh engine, starting from the commissioned `baseline` when given; a
+    /// configuration the core refuses is an error naming the parameter.
+    pub fn new(config: &MonitorConfig<f64>, baseline: Option<&Commissioned>) -> Result<Self> {
         let config: MonitorConfig<R> = config.convert();
-        let monitor: Monitor<R> = Monitor::new(config).map_err(|error| {
+        let mut monitor: Monitor<R> = Monitor::new(config).map_err(|error| {
             anyhow::anyhow!("configuration: `{}` is out of range", error.parameter())
         })?;
-        Ok(Self::with_monitor(monitor))
+        let origin = match baseline {
+            Some(baseline) => BaselineOrigin::commission(&mut monitor, baseline)?,
+            None => BaselineOrigin::Pending,
+        };
+        let mut engine = Self::with_monitor(monitor);
+        engine.baseline = origin;
+        Ok(engine)
     }
 
     /// An engine around an existing monitor (for example one resumed from a snapshot).
     pub fn with_monitor(monitor: Monitor<R>) -> Self {
         Engine {
-            monitor,
             counts: EventKind::<R>::NAMES
                 .iter()
                 .map(|name| (*name, 0))
@@ -579,6 +593,8 @@ impl<R: Real + Display> Engine<R> {
             raised: [0; 3],
             time_order: TimeOrder::default(),
             last_t: f64::NAN,
+            baseline: BaselineOrigin::resumed(&monitor, None),
+            monitor,
         }
     }
 
@@ -591,6 +607,7 @@ impl<R: Real + Display> Engine<R> {
     ) -> std::io::Result<Outcome<R>> {
         self.last_t = sample.t;
         let outcome = self.monitor.push(sample);
+        self.baseline.observe(&self.monitor, sample.seq);
         if outcome.new_events > 0 {
             while let Some(event) = self.monitor.pop_event() {
                 *self.counts.entry(event.kind.name()).or_insert(0) += 1;
@@ -620,6 +637,19 @@ impl<R: Real + Display> Engine<R> {
                 json!({"info": self.raised[0], "warn": self.raised[1], "alarm": self.raised[2]}),
             );
             map.insert("time_order".into(), json!(self.time_order));
+            if let Some(Value::Object(detectors)) = map.get_mut("detectors") {
+                if let Value::Object(cusum) = cusum_json(&self.monitor, number) {
+                    detectors.extend(cusum);
+                }
+            }
+            if let Some(Value::Object(baseline)) = map
+                .get_mut("drift")
+                .and_then(|drift| drift.get_mut("baseline"))
+            {
+                if let Value::Object(origin) = self.baseline.json() {
+                    baseline.extend(origin);
+                }
+            }
         }
         summary
     }
@@ -878,9 +908,10 @@ where
 /// configuration must match an explicitly given one).
 pub fn start_engine<R: Real + Display>(options: &ReplayOptions) -> Result<Engine<R>> {
     let Some(path) = &options.persist.resume else {
-        return Engine::<R>::new(&options.config);
+        return Engine::<R>::new(&options.config, options.baseline.as_ref());
     };
     let monitor = crate::snapshot_file::restore_as::<R>(path)?;
+    let origin = BaselineOrigin::resumed(&monitor, options.baseline.as_ref());
     if options.persist.config_explicit {
         let wanted: MonitorConfig<R> = options.config.convert();
         if wanted != *monitor.config() {
@@ -892,7 +923,9 @@ pub fn start_engine<R: Real + Display>(options: &ReplayOptions) -> Result<Engine
             );
         }
     }
-    Ok(Engine::with_monitor(monitor))
+    let mut engine = Engine::with_monitor(monitor);
+    engine.baseline = origin;
+    Ok(engine)
 }
 
 fn replay_rows_with<R, I>(
@@ -1255,15 +1288,26 @@ pub fn alarms_json<R: Real>(monitor: &Monitor<R>) -> Value {
     Value::Array(list)
 }
 
-/// The drift against the baseline (reported whether or not it alarms), or null before a
-/// baseline and a first evaluation exist.
+/// The baseline and the drift against it (reported whether or not it alarms; `evaluated`
+/// false before the first evaluation), or null before a baseline exists.
 pub fn drift_json<R: Real + Display>(monitor: &Monitor<R>) -> Value {
-    let (Some(status), Some(baseline)) = (monitor.drift_status(), monitor.baseline()) else {
+    let Some(baseline) = monitor.baseline() else {
         return Value::Null;
+    };
+    let p = baseline.parameters;
+    let baseline = json!({
+        "offset": number(p[0]),
+        "gain": number(p[1]),
+        "quadratic": number(p[2]),
+        "temperature": number(p[3]),
+    });
+    let Some(status) = monitor.drift_status() else {
+        return json!({ "baseline": baseline, "evaluated": false });
     };
     let optional = |value: Option<R>| value.map(number).unwrap_or(Value::Null);
     json!({
-        "baseline": { "offset": number(baseline.parameters[0]), "gain": number(baseline.parameters[1]) },
+        "baseline": baseline,
+        "evaluated": true,
         "gain_change": optional(status.gain_change),
         "gain_change_uncertainty": optional(status.gain_uncertainty),
         "offset_change": number(status.offset_change),

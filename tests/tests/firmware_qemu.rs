@@ -293,6 +293,7 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
         precision: Precision::F32,
         columns: ColumnNames::default(),
         config: MonitorConfig::default_for_range(1.0, 1000.0),
+        baseline: None,
         skip_bad_rows: false,
         progress: false,
         warnings: false,

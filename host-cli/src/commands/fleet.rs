@@ -126,6 +126,7 @@ fn channel(args: &FleetArgs, feed: &Path) -> FleetRow {
     let mut options = ReplayOptions::new(feed.to_path_buf(), resolved.config);
     options.precision = args.monitor.precision;
     options.columns = resolved.columns;
+    options.baseline = resolved.baseline;
     options.warnings = false;
     // Channels run in parallel on the pool, one thread each: no parser thread per channel,
     // so `--jobs N` keeps N cores busy and no more.

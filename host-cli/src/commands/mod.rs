@@ -141,6 +141,8 @@ impl ChatterArgs {
 pub struct Resolved {
     /// The monitor configuration.
     pub config: MonitorConfig<f64>,
+    /// The commissioned baseline (the file's `[baseline]`), if any.
+    pub baseline: Option<steadycal_config::Commissioned>,
     /// The column names.
     pub columns: ColumnNames,
 }
@@ -163,7 +165,7 @@ pub fn resolve(
     if let Some(high) = monitor.level_high {
         file.range.high = Some(crate::config::Positive(positive_arg("--level-high", high)?));
     }
-    let config = file.monitor_config(&name)?;
+    let channel = file.channel(&name)?;
     let mut names = ColumnNames::default();
     let section = &file.columns;
     let pick = |arg: &Option<String>, key: &Option<String>, default: &mut String| {
@@ -184,7 +186,8 @@ pub fn resolve(
         &mut names.temperature,
     );
     Ok(Resolved {
-        config,
+        config: channel.monitor,
+        baseline: channel.baseline,
         columns: names,
     })
 }

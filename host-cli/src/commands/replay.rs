@@ -89,6 +89,7 @@ impl ReplayArgs {
         options.checks = self.checks.clone();
         options.precision = self.monitor.precision;
         options.columns = resolved.columns;
+        options.baseline = resolved.baseline;
         options.skip_bad_rows = self.skip_bad_rows;
         options.progress = self.chatter.progress();
         options.warnings = !self.chatter.quiet;

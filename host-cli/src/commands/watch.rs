@@ -90,7 +90,7 @@ fn watch<R>(args: &WatchArgs, resolved: Resolved) -> anyhow::Result<ExitCode>
 where
     R: crate::feed::FeedFloat + Display + 'static,
 {
-    let mut engine = Engine::<R>::new(&resolved.config)?;
+    let mut engine = Engine::<R>::new(&resolved.config, resolved.baseline.as_ref())?;
     let stop = Arc::new(AtomicBool::new(false));
     {
         let stop = Arc::clone(&stop);
