@@ -1,18 +1,18 @@
-//! The monitored channel: a [`BoardMonitor`] with the replay's default configuration, or (with
+//! The monitored channel: a [`BoardMonitor`] with the compiled-in configuration, or (with
 //! the `footprint-baseline` feature) an opaque stand-in with the same interface, so that the
 //! size difference of the two builds is the core's share of flash.
 
 use steadycal_core::event::Event;
 use steadycal_core::sample::{Outcome, Sample};
 
-/// Fit parameters the board's monitor has room for: the replay's default calibration is a
-/// straight line (offset and gain), so the board declares two. The host's `Monitor<f32>`
-/// has room for three; a fit stores only the parameters it uses, so the two write the same
-/// snapshot payload (the header records the capacity). A board with a quadratic or
-/// temperature term declares three or four and carries the general fit code
-/// (firmware/README.md, "Footprint", has both figures).
+/// Fit parameters the board's monitor has room for: exactly what the configured basis needs
+/// (two for the default straight line, offset and gain). The host's `Monitor<f32>` has room
+/// for three; a fit stores only the parameters it uses, so the two write the same snapshot
+/// payload (the header records the capacity). A board with a quadratic or temperature term
+/// has three and carries the general fit code (firmware/README.md, "Footprint", has both
+/// figures).
 #[cfg(not(feature = "footprint-baseline"))]
-pub const PARAMETERS: usize = 2;
+pub const PARAMETERS: usize = crate::config::PARAMETERS;
 
 /// The monitor type this board runs.
 #[cfg(not(feature = "footprint-baseline"))]
@@ -22,7 +22,7 @@ pub type BoardMonitor = steadycal_core::monitor::Monitor<f32, PARAMETERS>;
 mod real {
     use super::BoardMonitor;
     use super::*;
-    use steadycal_core::monitor::{Counters, Monitor, MonitorConfig};
+    use steadycal_core::monitor::{Counters, Monitor};
     use steadycal_core::transform::Rung;
 
     /// One monitor.
@@ -34,17 +34,19 @@ mod real {
         /// `size_of::<BoardMonitor>()`.
         pub const MONITOR_BYTES: usize = core::mem::size_of::<BoardMonitor>();
 
-        /// The host's f32 configuration is built from the f64 one in the same way
-        /// (`MonitorConfig::<f64>::default_for_range(low, high).convert()`). build.rs
-        /// builds and validates the same configuration on the host and fails the build
-        /// naming the parameter, so the board's message does not name it (the names of
-        /// `ConfigError::parameter` and the code that picks one take about 920 B of its flash).
-        pub fn new(low: f64, high: f64) -> Result<Channel, &'static str> {
-            let config: MonitorConfig<f32> =
-                MonitorConfig::<f64>::default_for_range(low, high).convert();
-            Monitor::new(config)
-                .map(|monitor| Channel { monitor })
-                .map_err(|_| "monitor: configuration refused (build.rs names the parameter)")
+        /// The compiled-in configuration and baseline ([`crate::config`]). build.rs
+        /// validated both on the host and fails the build naming the key, so the board's
+        /// message does not name it (the names of `ConfigError::parameter` and the code
+        /// that picks one take about 920 B of its flash).
+        pub fn new() -> Result<Channel, &'static str> {
+            let mut monitor = Monitor::new(crate::config::MONITOR_CONFIG)
+                .map_err(|_| "monitor: configuration refused (build.rs names the key)")?;
+            if let Some(baseline) = crate::config::BASELINE {
+                monitor
+                    .set_baseline(baseline.parameters, Some(baseline.covariance))
+                    .map_err(|_| "monitor: baseline refused (build.rs checks it)")?;
+            }
+            Ok(Channel { monitor })
         }
         pub fn push(&mut self, sample: &Sample<f32>) -> Outcome<f32> {
             self.monitor.push(sample)
@@ -85,7 +87,7 @@ mod real {
 
     impl Channel {
         pub const MONITOR_BYTES: usize = 0;
-        pub fn new(_low: f64, _high: f64) -> Result<Channel, &'static str> {
+        pub fn new() -> Result<Channel, &'static str> {
             Ok(Channel)
         }
         pub fn push(&mut self, sample: &Sample<f32>) -> Outcome<f32> {

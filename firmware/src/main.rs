@@ -1,8 +1,9 @@
 //! Example firmware: one steadycal monitor on a Cortex-M4F board (QEMU `mps2-an386`).
 //!
 //! It reads the device log embedded in flash (see build.rs and [`log`]) with the core's
-//! record reader and pushes every sample through `Monitor<f32>` with the same
-//! configuration `steadycal replay --precision f32` uses by default, prints each event as
+//! record reader and pushes every sample through `Monitor<f32>` with the configuration
+//! build.rs compiled in from a TOML file (the one `steadycal replay --precision f32
+//! --config FILE` runs; [`config`]), prints each event as
 //! one canonical line over semihosting (see [`lines`]) and checks it against the event the
 //! log holds for that sample, appends it to the event log on the board's (RAM-backed) NOR
 //! flash, saves a snapshot through the core's two-slot store every
@@ -19,11 +20,11 @@
 
 mod board;
 mod channel;
+mod config;
 mod counter;
 mod lines;
 mod log;
 mod persist;
-mod range;
 mod sqrt_check;
 mod storage;
 
@@ -38,7 +39,6 @@ use steadycal_core::sample::Flags;
 
 use crate::channel::Channel;
 use crate::counter::{Counter, Tally};
-use crate::range::{LEVEL_HIGH, LEVEL_LOW};
 
 type Line = String<320>;
 
@@ -73,7 +73,7 @@ fn run() -> Result<(), &'static str> {
         "sqrt_check inputs={sqrt_inputs} mismatches={sqrt_mismatches}"
     ));
 
-    let mut monitor = Channel::new(LEVEL_LOW, LEVEL_HIGH)?;
+    let mut monitor = Channel::new()?;
     // User LED 0 lit while a warning or an alarm is raised.
     let mut alarm_led = AlarmOutput::new(board::UserLed0::new(), ActiveLevel::High, Severity::Warn)
         .map_err(|_| "alarm output")?;
