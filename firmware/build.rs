@@ -26,7 +26,7 @@
 
 use std::env;
 use std::fs;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use steadycal_config::rust_literal::to_rust;
 use steadycal_config::ConfigFile;
@@ -93,7 +93,7 @@ fn main() {
 
 /// Reads and validates the configuration file with the host's code; the f32 configuration
 /// and the checked baseline, as `steadycal replay --precision f32 --config FILE` builds them.
-fn board_config(path: &PathBuf) -> Result<Board, String> {
+fn board_config(path: &Path) -> Result<Board, String> {
     let name = path.display().to_string();
     let channel = ConfigFile::read(path)
         .and_then(|file| file.channel(&name))
@@ -113,7 +113,7 @@ fn board_config(path: &PathBuf) -> Result<Board, String> {
 }
 
 /// `board_config.rs`: the configuration as Rust constants.
-fn board_source(board: &Board, path: &PathBuf) -> Result<String, String> {
+fn board_source(board: &Board, path: &Path) -> Result<String, String> {
     let config = to_rust(&board.config).map_err(|e| e.to_string())?;
     let baseline = to_rust(&board.baseline).map_err(|e| e.to_string())?;
     Ok(format!(
