@@ -9,6 +9,7 @@
 pub mod assess;
 pub mod baseline;
 pub mod commands;
+pub mod commission;
 pub use steadycal_config as config;
 pub mod decimal;
 pub mod device_log;

@@ -7,7 +7,7 @@ use std::process::ExitCode;
 
 use clap::Args;
 
-use crate::replay;
+use crate::{commission, replay};
 
 /// Calibration mean of `assess`.
 #[derive(clap::ValueEnum, Clone, Copy, Debug)]
@@ -37,29 +37,92 @@ pub struct AssessArgs {
     /// spread against level) here.
     #[arg(long, value_name = "FILE")]
     pub report: Option<PathBuf>,
+    /// Monitor configuration (TOML): its `[acceptance]` criteria are judged on the run
+    /// (exit code 1 when one fails), its `range.origin` is the level origin, and
+    /// `--commission` starts from it.
+    #[arg(long, short = 'c', value_name = "FILE")]
+    pub config: Option<PathBuf>,
+    /// Write the monitor configuration this run commissions (complete and commented:
+    /// working range, level origin, initial rung, basis, and the calibration as the drift
+    /// baseline) to FILE.
+    #[arg(long, value_name = "FILE")]
+    pub commission: Option<PathBuf>,
 }
 
 /// Runs `assess`.
 pub fn run(args: AssessArgs) -> anyhow::Result<ExitCode> {
     use crate::assess::{self, AssessOptions, Basis};
     let data = assess::run_file::read_calibration_run(&args.feed)?;
+    let config = match &args.config {
+        Some(path) => {
+            let file = steadycal_config::ConfigFile::read(path)?;
+            file.channel(&path.display().to_string())?;
+            file
+        }
+        None => steadycal_config::ConfigFile::default(),
+    };
     let options = AssessOptions {
         basis: match args.basis {
             BasisArg::Linear => Basis::Linear,
             BasisArg::Quadratic => Basis::Quadratic,
         },
+        level_origin: config.range.origin.map_or(0.0, |origin| origin.0),
         ..AssessOptions::default()
     };
     let assessment = assess::assess(&data, &options)
         .map_err(|error| anyhow::anyhow!("{}: {error}", args.feed.display()))?;
+    let acceptance = config.acceptance.as_ref().map(|criteria| {
+        let verdicts = criteria.judge(&commission::figures(&data, &assessment));
+        (criteria.source.as_deref(), verdicts)
+    });
     let mut out = replay::create_output(&args.out)?;
     if args.json {
-        serde_json::to_writer_pretty(&mut out, &assessment)?;
+        let mut document = serde_json::to_value(&assessment)?;
+        if let (Some((source, verdicts)), serde_json::Value::Object(map)) =
+            (&acceptance, &mut document)
+        {
+            map.insert(
+                "acceptance".into(),
+                serde_json::json!({
+                    "source": source,
+                    "pass": verdicts.iter().all(|v| v.pass),
+                    "criteria": verdicts,
+                }),
+            );
+        }
+        serde_json::to_writer_pretty(&mut out, &document)?;
         out.write_all(b"\n")?;
     } else {
         out.write_all(assess::render_text(&assessment).as_bytes())?;
+        if let Some((source, verdicts)) = &acceptance {
+            out.write_all(commission::verdict_lines(*source, verdicts).as_bytes())?;
+        }
     }
     out.flush()?;
+    if let Some(path) = &args.commission {
+        let file = commission::commission(
+            &config,
+            &args.feed.display().to_string(),
+            &data,
+            &assessment,
+            &options,
+        )?;
+        let header = format!(
+            "Monitor configuration commissioned by `steadycal assess` from {} ({} points):\n\
+             working range, level origin, initial rung ({}), basis and the calibration as the\n\
+             drift baseline come from that run; every other key is the value in force.\n\
+             steadycal supports, and does not replace, calibration under the applicable\n\
+             standards, local codes and licensed practice.",
+            args.feed.display(),
+            data.raw.len(),
+            assessment.recommended,
+        );
+        let text = file.to_commented_toml(&header).map_err(|p| {
+            anyhow::anyhow!("commissioned configuration: `{}`: {}", p.key, p.message)
+        })?;
+        std::fs::write(path, text)
+            .map_err(|e| anyhow::anyhow!("{}: cannot write: {e}", path.display()))?;
+    }
     if let Some(path) = &args.report {
         let page = crate::report::assess_report(
             &args.feed.display().to_string(),
@@ -67,7 +130,18 @@ pub fn run(args: AssessArgs) -> anyhow::Result<ExitCode> {
             &assessment,
             &options,
         )?;
+        let page = match &acceptance {
+            Some((source, verdicts)) => page.replacen(
+                "\n</body>",
+                &format!("\n{}\n</body>", commission::verdict_html(*source, verdicts)),
+                1,
+            ),
+            None => page,
+        };
         super::report::write_page(path, &page)?;
+    }
+    if acceptance.is_some_and(|(_, verdicts)| verdicts.iter().any(|v| !v.pass)) {
+        return Ok(super::exit_alarms());
     }
     Ok(ExitCode::SUCCESS)
 }
