@@ -17,6 +17,12 @@
 //! must be the start and event frames of the host's device log; and the board's restore
 //! check must pass.
 //!
+//! Commissioning (issue 19): a second run builds the firmware with the configuration
+//! `steadycal assess simulated-feeds/lab/co_gas_cell.csv --commission` writes
+//! (`STEADYCAL_CONFIG`: log rung, commissioned drift baseline) and the drifting field feed of
+//! the same sensor (`STEADYCAL_FEED`), and compares it with `steadycal replay --config` in the
+//! same way, `gain_drift` included.
+//!
 //! The expected values are the host's own replay of the same feed (no published reference:
 //! the claim under test is that the two builds of the core agree exactly).
 //!
@@ -234,36 +240,39 @@ fn qemu_present() -> bool {
         .unwrap_or(false)
 }
 
-#[test]
-fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
-    if !qemu_present() {
-        assert!(
-            std::env::var("STEADYCAL_REQUIRE_QEMU").as_deref() != Ok("1"),
-            "qemu-system-arm is required (STEADYCAL_REQUIRE_QEMU=1): run firmware/install-qemu.sh"
-        );
-        eprintln!("SKIPPED firmware_under_qemu_matches_host_replay_bit_for_bit: qemu-system-arm not installed (firmware/install-qemu.sh installs it)");
-        return;
-    }
+/// One firmware build and QEMU run at a time: every build writes the same ELF.
+static BOARD: std::sync::Mutex<()> = std::sync::Mutex::new(());
+
+/// Builds the firmware with `config` (STEADYCAL_CONFIG; `None`: its shipped example) and
+/// `feed` (STEADYCAL_FEED) compiled in, runs it under QEMU and returns what it printed.
+fn board_run(config: Option<&Path>, feed: &Path, name: &str) -> String {
+    let _one_at_a_time = BOARD.lock().unwrap_or_else(|e| e.into_inner());
     let root = workspace_root();
     let firmware = root.join("firmware");
     let scratch = Path::new(env!("CARGO_TARGET_TMPDIR")).join("firmware-qemu");
     std::fs::create_dir_all(&scratch).unwrap();
-
     // Build the firmware in its own workspace (its .cargo/config.toml and target dir).
     let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".into());
-    let build = Command::new(&cargo)
+    let mut build = Command::new(&cargo);
+    build
         .current_dir(&firmware)
         .args(["build", "--release", "--target", "thumbv7em-none-eabihf"])
         .env_remove("CARGO_TARGET_DIR")
         .env_remove("RUSTFLAGS")
         .env_remove("CARGO_ENCODED_RUSTFLAGS")
-        .status()
-        .expect("cargo runs");
-    assert!(build.success(), "firmware build failed");
+        .env_remove("STEADYCAL_FEED_ROWS")
+        .env("STEADYCAL_FEED", feed);
+    match config {
+        Some(config) => build.env("STEADYCAL_CONFIG", config),
+        None => build.env_remove("STEADYCAL_CONFIG"),
+    };
+    assert!(
+        build.status().expect("cargo runs").success(),
+        "firmware build failed"
+    );
     let elf = firmware.join("target/thumbv7em-none-eabihf/release/steadycal-firmware");
-
     // Run it under QEMU, bounded, output to a file.
-    let output = scratch.join("qemu.out");
+    let output = scratch.join(format!("{name}.qemu.out"));
     let status = Command::new("bash")
         .arg(firmware.join("run-qemu.sh"))
         .arg(&elf)
@@ -277,23 +286,91 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
         "firmware exit status {status}; output:\n{}",
         tail(&printed)
     );
+    printed
+}
 
-    // Host replay of the same CSV, as `steadycal replay --precision f32 --events --summary`.
-    let events_path = scratch.join("host-events.jsonl");
-    let summary_path = scratch.join("host-summary.json");
-    let readings_path = scratch.join("host-readings.csv");
-    let snapshot_path = scratch.join("host-final.snapshot");
-    let log_path = scratch.join("host-device.log");
+fn qemu_required(test: &str) -> bool {
+    if qemu_present() {
+        return true;
+    }
+    assert!(
+        std::env::var("STEADYCAL_REQUIRE_QEMU").as_deref() != Ok("1"),
+        "qemu-system-arm is required (STEADYCAL_REQUIRE_QEMU=1): run firmware/install-qemu.sh"
+    );
+    eprintln!(
+        "SKIPPED {test}: qemu-system-arm not installed (firmware/install-qemu.sh installs it)"
+    );
+    false
+}
+
+#[test]
+fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
+    if !qemu_required("firmware_under_qemu_matches_host_replay_bit_for_bit") {
+        return;
+    }
+    let feed = workspace_root().join("simulated-feeds/gas-cell.csv");
+    let printed = board_run(None, &feed, "default");
+    // The firmware's shipped example configuration is the replay's default.
+    let example = workspace_root().join("firmware/monitor.toml");
+    let channel = steadycal_config::ConfigFile::read(&example)
+        .unwrap()
+        .channel("monitor.toml")
+        .unwrap();
+    assert_eq!(
+        channel.monitor,
+        MonitorConfig::default_for_range(1.0, 1000.0)
+    );
+    compare_with_host(&printed, &feed, channel, "default");
+}
+
+#[test]
+fn commissioned_configuration_under_qemu_matches_host_replay_bit_for_bit() {
+    // The configuration `steadycal assess lab/co_gas_cell.csv --commission` writes (log
+    // rung, commissioned baseline) and the field feed of the same sensor whose gain drifts.
+    if !qemu_required("commissioned_configuration_under_qemu_matches_host_replay_bit_for_bit") {
+        return;
+    }
+    let root = workspace_root();
+    let config = root.join("simulated-feeds/commissioning/co-cell.monitor.toml");
+    let feed = root.join("simulated-feeds/commissioning/co-cell-field-drift.csv");
+    let printed = board_run(Some(&config), &feed, "commissioned");
+    let channel = steadycal_config::ConfigFile::read(&config)
+        .unwrap()
+        .channel("co-cell.monitor.toml")
+        .unwrap();
+    assert!(channel.baseline.is_some());
+    let events = compare_with_host(&printed, &feed, channel, "commissioned");
+    assert!(
+        events.iter().any(|line| line.contains(" gain_drift ")),
+        "the drifting feed raises gain_drift on the board: {events:?}"
+    );
+}
+
+/// Replays `feed` on the host with `channel` as `steadycal replay --precision f32 --config`
+/// does and compares everything the board printed; returns the board's event lines.
+fn compare_with_host(
+    printed: &str,
+    feed: &Path,
+    channel: steadycal_config::ChannelConfig,
+    name: &str,
+) -> Vec<String> {
+    let scratch = Path::new(env!("CARGO_TARGET_TMPDIR")).join("firmware-qemu");
+    let events_path = scratch.join(format!("{name}.host-events.jsonl"));
+    let summary_path = scratch.join(format!("{name}.host-summary.json"));
+    let readings_path = scratch.join(format!("{name}.host-readings.csv"));
+    let snapshot_path = scratch.join(format!("{name}.host-final.snapshot"));
+    let log_path = scratch.join(format!("{name}.host-device.log"));
+    let parameters = channel.monitor.basis.len() as u8;
     let options = ReplayOptions {
-        feed: root.join("simulated-feeds/gas-cell.csv"),
+        feed: feed.to_path_buf(),
         events: Some(events_path.clone()),
         summary: Some(summary_path.clone()),
         readings: Some(readings_path.clone()),
         checks: None,
         precision: Precision::F32,
         columns: ColumnNames::default(),
-        config: MonitorConfig::default_for_range(1.0, 1000.0),
-        baseline: None,
+        config: channel.monitor,
+        baseline: channel.baseline,
         skip_bad_rows: false,
         progress: false,
         warnings: false,
@@ -323,43 +400,38 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
     for (index, (board, host)) in board_events.iter().zip(&host_events).enumerate() {
         assert_eq!(
             board, host,
-            "event {index} differs (board first, host second)"
+            "{name}: event {index} differs (board first, host second)"
         );
     }
     assert_eq!(
         board_events.len(),
         host_events.len(),
-        "event counts differ (board, host)"
+        "{name}: event counts differ (board, host)"
     );
 
     let summary: Value =
         serde_json::from_str(&std::fs::read_to_string(&summary_path).unwrap()).unwrap();
-    let board_summary = printed
-        .lines()
-        .find(|line| line.starts_with("summary "))
-        .expect("summary line");
+    let board_summary = board_line(printed, "summary ");
     assert_eq!(
         board_summary,
         canonical_summary(&summary).unwrap(),
-        "summaries differ (board, host)"
+        "{name}: summaries differ (board, host)"
     );
 
-    let board_readings = printed
-        .lines()
-        .find(|line| line.starts_with("readings "))
-        .expect("readings line");
+    let board_readings = board_line(printed, "readings ");
     let host_readings = readings_digest(&std::fs::read_to_string(&readings_path).unwrap()).unwrap();
     assert_eq!(
         board_readings, host_readings,
-        "calibrated readings differ (board, host)"
+        "{name}: calibrated readings differ (board, host)"
     );
 
     check_persistence(
-        &printed,
+        printed,
         &std::fs::read(&snapshot_path).unwrap(),
         &std::fs::read(&log_path).unwrap(),
         host_events.len(),
         summary["samples"].as_u64().unwrap(),
+        parameters,
     );
 
     let mut kinds: BTreeMap<&str, usize> = BTreeMap::new();
@@ -369,9 +441,10 @@ fn firmware_under_qemu_matches_host_replay_bit_for_bit() {
             .or_default() += 1;
     }
     eprintln!(
-        "firmware and host agree on {} events {kinds:?}; {board_readings}; {board_summary}",
+        "{name}: firmware and host agree on {} events {kinds:?}; {board_readings}; {board_summary}",
         board_events.len()
     );
+    board_events.iter().map(|line| line.to_string()).collect()
 }
 
 /// The value of `key=` in a line, or a panic naming the line.
@@ -400,6 +473,7 @@ fn check_persistence(
     host_log: &[u8],
     host_events: usize,
     samples: u64,
+    board_parameters: u8,
 ) {
     // The embedded device log is the host's --device-log-out, and the board matched every
     // event logged in it with its own.
@@ -447,7 +521,10 @@ fn check_persistence(
     let board = Snapshot::parse(&board_snapshot).expect("board snapshot parses");
     let host = Snapshot::parse(host_snapshot).expect("host snapshot parses");
     let (board_header, host_header) = (board.header(), host.header());
-    assert_eq!(board_header.layout.params, 2, "board fit capacity");
+    assert_eq!(
+        board_header.layout.params, board_parameters,
+        "board fit capacity"
+    );
     assert_eq!(host_header.layout.params, 3, "host fit capacity");
     let same_but_capacity = Layout {
         params: host_header.layout.params,
