@@ -222,79 +222,50 @@ impl<'a> ser::Serializer for Writer<'a> {
     }
 }
 
-impl ser::SerializeSeq for Compound<'_> {
-    type Ok = ();
-    type Error = Unsupported;
-    fn serialize_element<T: Serialize + ?Sized>(&mut self, value: &T) -> Result<(), Unsupported> {
-        self.element(value)
-    }
-    fn end(self) -> Result<(), Unsupported> {
-        self.finish()
-    }
+/// The sequence-like compounds: each element written in turn.
+macro_rules! elements {
+    ($($trait:ident::$method:ident),*) => {$(
+        impl ser::$trait for Compound<'_> {
+            type Ok = ();
+            type Error = Unsupported;
+            fn $method<T: Serialize + ?Sized>(&mut self, value: &T) -> Result<(), Unsupported> {
+                self.element(value)
+            }
+            fn end(self) -> Result<(), Unsupported> {
+                self.finish()
+            }
+        }
+    )*};
 }
 
-impl ser::SerializeTuple for Compound<'_> {
-    type Ok = ();
-    type Error = Unsupported;
-    fn serialize_element<T: Serialize + ?Sized>(&mut self, value: &T) -> Result<(), Unsupported> {
-        self.element(value)
-    }
-    fn end(self) -> Result<(), Unsupported> {
-        self.finish()
-    }
+elements!(
+    SerializeSeq::serialize_element,
+    SerializeTuple::serialize_element,
+    SerializeTupleStruct::serialize_field,
+    SerializeTupleVariant::serialize_field
+);
+
+/// The struct-like compounds: each field written with its name.
+macro_rules! fields {
+    ($($trait:ident),*) => {$(
+        impl ser::$trait for Compound<'_> {
+            type Ok = ();
+            type Error = Unsupported;
+            fn serialize_field<T: Serialize + ?Sized>(
+                &mut self,
+                key: &'static str,
+                value: &T,
+            ) -> Result<(), Unsupported> {
+                self.field(key, value)
+            }
+            fn end(self) -> Result<(), Unsupported> {
+                self.finish()
+            }
+        }
+    )*};
 }
 
-impl ser::SerializeTupleStruct for Compound<'_> {
-    type Ok = ();
-    type Error = Unsupported;
-    fn serialize_field<T: Serialize + ?Sized>(&mut self, value: &T) -> Result<(), Unsupported> {
-        self.element(value)
-    }
-    fn end(self) -> Result<(), Unsupported> {
-        self.finish()
-    }
-}
-
-impl ser::SerializeTupleVariant for Compound<'_> {
-    type Ok = ();
-    type Error = Unsupported;
-    fn serialize_field<T: Serialize + ?Sized>(&mut self, value: &T) -> Result<(), Unsupported> {
-        self.element(value)
-    }
-    fn end(self) -> Result<(), Unsupported> {
-        self.finish()
-    }
-}
-
-impl ser::SerializeStruct for Compound<'_> {
-    type Ok = ();
-    type Error = Unsupported;
-    fn serialize_field<T: Serialize + ?Sized>(
-        &mut self,
-        key: &'static str,
-        value: &T,
-    ) -> Result<(), Unsupported> {
-        self.field(key, value)
-    }
-    fn end(self) -> Result<(), Unsupported> {
-        self.finish()
-    }
-}
-
-impl ser::SerializeStructVariant for Compound<'_> {
-    type Ok = ();
-    type Error = Unsupported;
-    fn serialize_field<T: Serialize + ?Sized>(
-        &mut self,
-        key: &'static str,
-        value: &T,
-    ) -> Result<(), Unsupported> {
-        self.field(key, value)
-    }
-    fn end(self) -> Result<(), Unsupported> {
-        self.finish()
-    }
-}
+fields!(SerializeStruct, SerializeStructVariant);
 
 #[cfg(test)]
 mod tests {

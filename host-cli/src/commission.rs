@@ -224,6 +224,13 @@ pub fn figures(data: &CalibrationData, assessment: &Assessment) -> Figures {
     }
 }
 
+fn value_text(verdict: &Verdict) -> String {
+    verdict
+        .value
+        .map(|x| format!("{x:.6}"))
+        .unwrap_or_else(|| "not available".into())
+}
+
 /// The verdicts as text lines for the screen.
 pub fn verdict_lines(source: Option<&str>, verdicts: &[Verdict]) -> String {
     let mut out = String::from("\nAcceptance criteria");
@@ -232,10 +239,7 @@ pub fn verdict_lines(source: Option<&str>, verdicts: &[Verdict]) -> String {
     }
     out.push('\n');
     for v in verdicts {
-        let value = v
-            .value
-            .map(|x| format!("{x:.6}"))
-            .unwrap_or_else(|| "not available".into());
+        let value = value_text(v);
         out.push_str(&format!(
             "  {:<4} {:<18} {:<28} value {value}\n",
             if v.pass { "pass" } else { "FAIL" },
