@@ -64,6 +64,7 @@ pub const KEYS: &[Key] = &[
     key("columns.raw", "header name", "`raw`", "text", "raw output column"),
     key("columns.reference", "header name", "`ref`", "text", "reference column"),
     key("columns.temperature", "header name", "`temp`", "text", "temperature column"),
+    key("columns.missing", "cell texts", "`[]`", "texts; not `nan` or `inf`", "cells that mean \"no value\" besides the empty cell and `NA` (`[\"-200\"]`; `--missing` adds to them); a numeric marker also matches the same number written otherwise"),
     key("detect.screen.raw_low", "raw units", "origin − `range.high`", "finite, below `raw_high`", "lowest physically possible raw value: below it a sample is rejected (`signal_out_of_range`)"),
     key("detect.screen.raw_high", "raw units", "origin + 2·`range.high`", "finite, above `raw_low`", "highest physically possible raw value"),
     key("detect.screen.stuck_run", "samples", "50", "integer ≥ 2", "identical raw values in a row that make the signal stuck (`signal_stuck`)"),

@@ -217,6 +217,7 @@ impl ConfigFile {
         columns
             .temperature
             .get_or_insert(defaults.temperature.unwrap_or_default());
+        columns.missing.get_or_insert_with(Vec::new);
         file.detect.complete(&c.detect);
         Ok(file)
     }
@@ -230,6 +231,7 @@ impl ColumnsSection {
             raw: Some("raw".into()),
             reference: Some("ref".into()),
             temperature: Some("temp".into()),
+            missing: Some(Vec::new()),
         }
     }
 }

@@ -110,4 +110,7 @@ pub struct ColumnsSection {
     pub reference: Option<String>,
     /// Temperature column (default `temp`).
     pub temperature: Option<String>,
+    /// Cells that mean "no value", besides the empty cell and `NA` (the command line's
+    /// `--missing` adds to them).
+    pub missing: Option<Vec<String>>,
 }

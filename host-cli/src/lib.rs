@@ -14,6 +14,7 @@ pub use steadycal_config as config;
 pub mod decimal;
 pub mod device_log;
 pub mod feed;
+pub mod field;
 pub mod replay;
 pub mod report;
 pub mod simulate;
