@@ -1,7 +1,7 @@
 //! Field data as loggers and reference stations write it: time forms and zones
 //! ([`time`]), missing markers ([`missing`]), durations in options ([`duration`]), the
 //! census that notices undeclared markers ([`census`]), the time join of a sensor log and
-//! a reference log ([`join`]).
+//! a reference log ([`join`]), the reader of logs as loggers write them ([`reader`]).
 //!
 //! These modules know nothing of the replay engine; the feed readers and the commands use
 //! them. None of them panics on any cell.
@@ -10,4 +10,5 @@ pub mod census;
 pub mod duration;
 pub mod join;
 pub mod missing;
+pub mod reader;
 pub mod time;

@@ -1,0 +1,546 @@
+//! Reading a log as a logger wrote it: any one-byte separator, a decimal comma, the time in
+//! one column or spread over several (joined with one space), any [`TimeReader`] form,
+//! missing markers, one or several sensor columns, a channel column.
+//!
+//! Records are split by the `csv` crate (the one the canonical reader's tests compare
+//! against). A row whose every cell is blank (a spreadsheet's trailing `;;;;` rows) is
+//! skipped and counted. A cell that is a missing marker gives no value and is counted by
+//! column and marker ([`MissingTally`]); any other cell that is not a number stops the row
+//! with a [`FeedError`] naming file, line, column and what was expected.
+//!
+//! Invariants: never panics on any input; memory is flat in the log's length (one record
+//! buffer, one row buffer).
+
+use std::io::Read;
+use std::path::Path;
+
+use crate::feed::{FeedError, FeedFloat, Location};
+use crate::field::missing::{MissingMarkers, MissingTally};
+use crate::field::time::{join_cells, TimeReader};
+
+/// Where the columns of a log are and how its cells are written.
+#[derive(Clone, Debug)]
+pub struct LogLayout {
+    /// Field separator (`,` by default; `;` and tab are common).
+    pub separator: u8,
+    /// Numbers are written with a decimal comma (`0,7578`).
+    pub decimal_comma: bool,
+    /// Time columns, joined with one space; `None`: `t` when the header has it, else the
+    /// data-row index.
+    pub time: Option<Vec<String>>,
+    /// How time cells are read.
+    pub time_reader: TimeReader,
+    /// Sensor (raw) columns: one, or several for a wide file of many sensors. Empty: this
+    /// log has no sensor column (a reference log).
+    pub raw: Vec<String>,
+    /// Reference column, when the log has one (`None`: none is looked for).
+    pub reference: Option<String>,
+    /// The reference column must exist (a reference log).
+    pub reference_required: bool,
+    /// Temperature column, used when present.
+    pub temperature: Option<String>,
+    /// Channel column of a long file.
+    pub channel: Option<String>,
+    /// Missing markers.
+    pub missing: MissingMarkers,
+}
+
+impl Default for LogLayout {
+    fn default() -> Self {
+        LogLayout {
+            separator: b',',
+            decimal_comma: false,
+            time: None,
+            time_reader: TimeReader::default(),
+            raw: vec!["raw".into()],
+            reference: Some("ref".into()),
+            reference_required: false,
+            temperature: Some("temp".into()),
+            channel: None,
+            missing: MissingMarkers::default(),
+        }
+    }
+}
+
+/// One row of a log.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct LogRow<T> {
+    /// Seconds since the epoch (or the data-row index when the log has no time).
+    pub t: f64,
+    /// One value per sensor column (`None`: missing).
+    pub raw: Vec<Option<T>>,
+    /// The reference value.
+    pub reference: Option<T>,
+    /// The temperature.
+    pub temperature: Option<T>,
+    /// The channel cell of a long file.
+    pub channel: String,
+    /// 1-based line.
+    pub line: u64,
+    /// 0-based index among the data rows (blank rows not counted).
+    pub index: u64,
+}
+
+#[derive(Clone, Debug)]
+struct Columns {
+    time: Vec<usize>,
+    time_name: String,
+    raw: Vec<(usize, String)>,
+    reference: Option<(usize, String)>,
+    temperature: Option<(usize, String)>,
+    channel: Option<usize>,
+}
+
+/// A streaming reader of a log.
+pub struct LogReader {
+    file: String,
+    reader: csv::Reader<Box<dyn Read + Send>>,
+    record: csv::ByteRecord,
+    columns: Columns,
+    time: TimeReader,
+    missing: MissingMarkers,
+    decimal_comma: bool,
+    text: String,
+    number: Vec<u8>,
+    header: Vec<String>,
+    rows: u64,
+    /// Cells removed as missing, by column and marker.
+    pub tally: MissingTally,
+    /// Rows whose every cell is blank, skipped.
+    pub blank_rows: u64,
+}
+
+fn shorten(text: &str) -> String {
+    let mut out: String = text.chars().take(40).collect();
+    if text.chars().count() > 40 {
+        out.push('…');
+    }
+    out
+}
+
+impl LogReader {
+    /// Opens a log file, or standard input for `-`.
+    pub fn open(path: &Path, layout: &LogLayout) -> Result<Self, FeedError> {
+        let file = path.display().to_string();
+        let input: Box<dyn Read + Send> = if file == "-" {
+            Box::new(std::io::stdin())
+        } else {
+            Box::new(std::fs::File::open(path).map_err(|source| FeedError::Io {
+                file: file.clone(),
+                source,
+            })?)
+        };
+        LogReader::new(file, input, layout)
+    }
+
+    /// Reads the header of a log from any reader.
+    pub fn new(
+        file: String,
+        input: Box<dyn Read + Send>,
+        layout: &LogLayout,
+    ) -> Result<Self, FeedError> {
+        let mut reader = csv::ReaderBuilder::new()
+            .delimiter(layout.separator)
+            .has_headers(false)
+            .buffer_capacity(1 << 16)
+            .from_reader(input);
+        let mut record = csv::ByteRecord::new();
+        let read = reader
+            .read_byte_record(&mut record)
+            .map_err(|e| FeedError::BadRow {
+                location: Location {
+                    file: file.clone(),
+                    line: 1,
+                    column: 0,
+                },
+                message: format!("cannot read the header: {e}"),
+            })?;
+        if !read || record.iter().all(|c| c.iter().all(u8::is_ascii_whitespace)) {
+            return Err(FeedError::Empty { file });
+        }
+        let header: Vec<String> = record
+            .iter()
+            .map(|c| String::from_utf8_lossy(c).trim().to_string())
+            .collect();
+        let found = header
+            .iter()
+            .map(|h| shorten(h))
+            .collect::<Vec<_>>()
+            .join(", ");
+        let find = |name: &str| header.iter().position(|h| h == name);
+        let need = |name: &str| {
+            find(name).ok_or_else(|| FeedError::MissingColumn {
+                file: file.clone(),
+                column: name.to_string(),
+                found: found.clone(),
+            })
+        };
+        let (time, time_name) = match &layout.time {
+            Some(names) => {
+                let indices = names
+                    .iter()
+                    .map(|n| need(n))
+                    .collect::<Result<Vec<_>, _>>()?;
+                (indices, names.join(","))
+            }
+            None => match find("t") {
+                Some(index) => (vec![index], "t".to_string()),
+                None => (Vec::new(), String::new()),
+            },
+        };
+        let raw = layout
+            .raw
+            .iter()
+            .map(|n| need(n).map(|i| (i, n.clone())))
+            .collect::<Result<Vec<_>, _>>()?;
+        let reference = match &layout.reference {
+            Some(name) if layout.reference_required => Some((need(name)?, name.clone())),
+            Some(name) => find(name).map(|i| (i, name.clone())),
+            None => None,
+        };
+        let temperature = layout
+            .temperature
+            .as_ref()
+            .and_then(|name| find(name).map(|i| (i, name.clone())));
+        let channel = layout.channel.as_deref().map(need).transpose()?;
+        Ok(LogReader {
+            file,
+            reader,
+            record,
+            columns: Columns {
+                time,
+                time_name,
+                raw,
+                reference,
+                temperature,
+                channel,
+            },
+            time: layout.time_reader.clone(),
+            missing: layout.missing.clone(),
+            decimal_comma: layout.decimal_comma,
+            text: String::new(),
+            number: Vec::new(),
+            header,
+            rows: 0,
+            tally: MissingTally::default(),
+            blank_rows: 0,
+        })
+    }
+
+    /// The file name as given.
+    pub fn file(&self) -> &str {
+        &self.file
+    }
+
+    /// The header's column names.
+    pub fn header(&self) -> &[String] {
+        &self.header
+    }
+
+    /// True when the log has a time column.
+    pub fn has_time(&self) -> bool {
+        !self.columns.time.is_empty()
+    }
+
+    /// True when the log has a reference column.
+    pub fn has_reference(&self) -> bool {
+        self.columns.reference.is_some()
+    }
+
+    /// Bytes read so far.
+    pub fn bytes_read(&self) -> u64 {
+        self.reader.position().byte()
+    }
+
+    /// The sensor column names.
+    pub fn raw_names(&self) -> Vec<String> {
+        self.columns.raw.iter().map(|(_, n)| n.clone()).collect()
+    }
+
+    fn location(&self, line: u64, column: usize) -> Location {
+        Location {
+            file: self.file.clone(),
+            line,
+            column,
+        }
+    }
+
+    /// Reads the next row into `row`; `None` at the end.
+    pub fn next_row<T: FeedFloat>(&mut self, row: &mut LogRow<T>) -> Option<Result<(), FeedError>> {
+        loop {
+            match self.reader.read_byte_record(&mut self.record) {
+                Ok(false) => return None,
+                Ok(true) => {}
+                Err(error) => {
+                    let line = error.position().map(|p| p.line()).unwrap_or(0);
+                    let message = match error.kind() {
+                        csv::ErrorKind::UnequalLengths {
+                            expected_len, len, ..
+                        } => format!("{len} fields, expected {expected_len} as in the header"),
+                        _ => format!("cannot read the row: {error}"),
+                    };
+                    self.rows += 1;
+                    return Some(Err(FeedError::BadRow {
+                        location: self.location(line, 0),
+                        message,
+                    }));
+                }
+            }
+            if self
+                .record
+                .iter()
+                .all(|c| c.iter().all(u8::is_ascii_whitespace))
+            {
+                self.blank_rows += 1;
+                continue;
+            }
+            break;
+        }
+        let line = self.record.position().map(|p| p.line()).unwrap_or(0);
+        row.line = line;
+        row.index = self.rows;
+        self.rows += 1;
+        Some(self.parse(row, line))
+    }
+
+    fn parse<T: FeedFloat>(&mut self, row: &mut LogRow<T>, line: u64) -> Result<(), FeedError> {
+        row.t = if self.columns.time.is_empty() {
+            row.index as f64
+        } else {
+            self.time_cell(line)?
+        };
+        row.raw.clear();
+        for k in 0..self.columns.raw.len() {
+            let (index, _) = self.columns.raw[k];
+            let value = self.value::<T>(index, Column::Raw(k), line)?;
+            row.raw.push(value);
+        }
+        row.reference = match self.columns.reference {
+            Some((index, _)) => self.value(index, Column::Reference, line)?,
+            None => None,
+        };
+        row.temperature = match self.columns.temperature {
+            Some((index, _)) => self.value(index, Column::Temperature, line)?,
+            None => None,
+        };
+        row.channel.clear();
+        if let Some(index) = self.columns.channel {
+            let cell = self.record.get(index).unwrap_or(b"");
+            row.channel.push_str(String::from_utf8_lossy(cell).trim());
+        }
+        Ok(())
+    }
+
+    fn time_cell(&mut self, line: u64) -> Result<f64, FeedError> {
+        let record = &self.record;
+        let cells = self
+            .columns
+            .time
+            .iter()
+            .map(|&i| std::str::from_utf8(record.get(i).unwrap_or(b"")).unwrap_or("\u{fffd}"));
+        join_cells(cells, &mut self.text);
+        if let Some(seconds) = self.time.seconds(&self.text) {
+            return Ok(seconds);
+        }
+        let column = self.columns.time[0] + 1;
+        Err(FeedError::BadRow {
+            location: self.location(line, column),
+            message: format!(
+                "column `{}`: expected {} (zone {}), found {:?}",
+                self.columns.time_name,
+                self.time.expected(),
+                self.time.zone_name(),
+                shorten(&self.text)
+            ),
+        })
+    }
+
+    fn value<T: FeedFloat>(
+        &mut self,
+        index: usize,
+        column: Column,
+        line: u64,
+    ) -> Result<Option<T>, FeedError> {
+        let name = match column {
+            Column::Raw(k) => &self.columns.raw[k].1,
+            Column::Reference => &self.columns.reference.as_ref().expect("present").1,
+            Column::Temperature => &self.columns.temperature.as_ref().expect("present").1,
+        };
+        let cell = self.record.get(index).unwrap_or(b"");
+        let Ok(text) = std::str::from_utf8(cell) else {
+            return Err(FeedError::BadRow {
+                location: self.location(line, index + 1),
+                message: format!(
+                    "column `{name}`: expected a number in UTF-8 text (found invalid UTF-8)"
+                ),
+            });
+        };
+        let text = text.trim();
+        if let Some(marker) = self.missing.marker_of(text) {
+            self.tally.count(name, marker);
+            return Ok(None);
+        }
+        let parsed = if self.decimal_comma && text.contains(',') {
+            self.number.clear();
+            self.number
+                .extend(text.bytes().map(|b| if b == b',' { b'.' } else { b }));
+            std::str::from_utf8(&self.number)
+                .ok()
+                .and_then(|t| t.parse::<T>().ok())
+        } else {
+            text.parse::<T>().ok()
+        };
+        match parsed {
+            Some(value) => {
+                if let Some(marker) = self.missing.marker_of_value(value.to_f64()) {
+                    self.tally.count(name, marker);
+                    return Ok(None);
+                }
+                Ok(Some(value))
+            }
+            None => Err(FeedError::BadRow {
+                location: self.location(line, index + 1),
+                message: format!(
+                    "column `{name}`: expected a number{} or a missing marker ({}), found {:?}",
+                    if self.decimal_comma {
+                        " with a decimal comma"
+                    } else {
+                        ""
+                    },
+                    self.missing
+                        .texts()
+                        .iter()
+                        .map(|m| format!("{m:?}"))
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                    shorten(text)
+                ),
+            }),
+        }
+    }
+}
+
+#[derive(Clone, Copy)]
+enum Column {
+    Raw(usize),
+    Reference,
+    Temperature,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn reader(text: &str, layout: &LogLayout) -> Result<LogReader, FeedError> {
+        LogReader::new(
+            "log.csv".into(),
+            Box::new(std::io::Cursor::new(text.as_bytes().to_vec())),
+            layout,
+        )
+    }
+
+    fn rows(text: &str, layout: &LogLayout) -> Vec<Result<LogRow<f64>, String>> {
+        let mut r = reader(text, layout).unwrap();
+        let mut out = Vec::new();
+        loop {
+            let mut row = LogRow::default();
+            match r.next_row::<f64>(&mut row) {
+                None => return out,
+                Some(Ok(())) => out.push(Ok(row)),
+                Some(Err(e)) => out.push(Err(e.to_string())),
+            }
+        }
+    }
+
+    fn logger_layout() -> LogLayout {
+        LogLayout {
+            separator: b';',
+            decimal_comma: true,
+            time: Some(vec!["Date".into(), "Time".into()]),
+            time_reader: TimeReader::new(Some("%d/%m/%Y %H.%M.%S"), None, None).unwrap(),
+            raw: vec!["S1".into()],
+            reference: Some("CO".into()),
+            temperature: Some("T".into()),
+            missing: MissingMarkers::new(&["-200"]).unwrap(),
+            ..LogLayout::default()
+        }
+    }
+
+    #[test]
+    fn a_logger_file_with_two_time_columns_and_a_decimal_comma() {
+        let text = "Date;Time;CO;S1;T;;\n01/03/2026;18.00.00;2,6;1360;13,6;;\n01/03/2026;19.00.00;-200;1292;-200;;\n;;;;;;\n";
+        let mut r = reader(text, &logger_layout()).unwrap();
+        let mut row = LogRow::<f64>::default();
+        r.next_row(&mut row).unwrap().unwrap();
+        // 2026-03-01T18:00:00Z = 1,772,323,200 + 64,800 s (Python 3 datetime).
+        assert_eq!(row.t, 1_772_388_000.0);
+        assert_eq!(
+            (row.raw[0], row.reference, row.temperature),
+            (Some(1360.0), Some(2.6), Some(13.6))
+        );
+        r.next_row(&mut row).unwrap().unwrap();
+        assert_eq!(
+            (row.raw[0], row.reference, row.temperature),
+            (Some(1292.0), None, None)
+        );
+        assert!(r.next_row::<f64>(&mut row).is_none());
+        assert_eq!(r.blank_rows, 1);
+        assert_eq!(r.tally.column_total("CO"), 1);
+        assert_eq!(r.tally.column_total("T"), 1);
+    }
+
+    #[test]
+    fn a_time_cell_that_does_not_match_the_format_names_file_line_column_and_format() {
+        let text = "Date;Time;CO;S1;T\n01/03/2026;18.00.00;1;2;3\n2026-03-01;19:00;1;2;3\n";
+        let out = rows(text, &logger_layout());
+        assert_eq!(
+            out[1].as_ref().unwrap_err(),
+            "log.csv:3:1: column `Date,Time`: expected a time in the format %d/%m/%Y %H.%M.%S (zone UTC), found \"2026-03-01 19:00\""
+        );
+    }
+
+    #[test]
+    fn a_time_column_that_is_not_there_is_named() {
+        let text = "Date;CO;S1\n01/03/2026;1;2\n";
+        let error = reader(text, &logger_layout()).err().unwrap().to_string();
+        assert_eq!(
+            error,
+            "log.csv:1: no `Time` column in the header, expected one (found: Date, CO, S1)"
+        );
+    }
+
+    #[test]
+    fn a_bad_number_names_the_markers() {
+        let text = "t,raw,ref\n0,1,2\n1,x,2\n";
+        let out = rows(text, &LogLayout::default());
+        assert_eq!(
+            out[1].as_ref().unwrap_err(),
+            "log.csv:3:2: column `raw`: expected a number or a missing marker (\"\", \"NA\"), found \"x\""
+        );
+    }
+
+    #[test]
+    fn wide_and_long_files() {
+        let layout = LogLayout {
+            raw: vec!["s1".into(), "s2".into(), "s3".into()],
+            ..LogLayout::default()
+        };
+        let out = rows("t,s1,s2,s3,ref\n0,1,NA,3,9\n", &layout);
+        assert_eq!(out[0].as_ref().unwrap().raw, [Some(1.0), None, Some(3.0)]);
+        let layout = LogLayout {
+            channel: Some("id".into()),
+            ..LogLayout::default()
+        };
+        let out = rows("t,id,raw\n0,a,1\n0,b,2\n", &layout);
+        assert_eq!(out[1].as_ref().unwrap().channel, "b");
+    }
+
+    #[test]
+    fn a_row_of_the_wrong_width() {
+        let out = rows("t,raw\n0,1\n1,2,3\n", &LogLayout::default());
+        assert_eq!(
+            out[1].as_ref().unwrap_err(),
+            "log.csv:3: 3 fields, expected 2 as in the header"
+        );
+    }
+}
