@@ -34,6 +34,7 @@ fn read_run(name: &str) -> CalibrationData {
         raw,
         reference,
         temperature: None,
+        ..Default::default()
     }
 }
 

@@ -76,6 +76,7 @@ fn f_critical_values_match_printed_tables() {
         raw,
         reference,
         temperature: None,
+        ..Default::default()
     };
     let a = assess(&data, &AssessOptions::default()).unwrap();
     let ends = a.ends_of_range.unwrap();
@@ -97,6 +98,7 @@ fn read_feed(path: PathBuf) -> CalibrationData {
         raw,
         reference,
         temperature: None,
+        ..Default::default()
     }
 }
 
@@ -176,18 +178,21 @@ fn bad_input_is_an_error_not_a_panic() {
         raw: vec![1.0, f64::NAN, 3.0, 4.0],
         reference: vec![1.0, 2.0, 3.0, 4.0],
         temperature: None,
+        ..Default::default()
     };
     assert!(assess(&data, &AssessOptions::default()).is_err());
     let data = CalibrationData {
         raw: vec![1.0, 2.0],
         reference: vec![1.0, 2.0, 3.0],
         temperature: None,
+        ..Default::default()
     };
     assert!(assess(&data, &AssessOptions::default()).is_err());
     let data = CalibrationData {
         raw: vec![1.0; 6],
         reference: vec![2.0; 6],
         temperature: None,
+        ..Default::default()
     };
     assert!(assess(&data, &AssessOptions::default()).is_err());
 }

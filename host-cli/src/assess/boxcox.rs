@@ -19,9 +19,11 @@
 //! λ̂ maximizes ℓ over [−3, 3]: a grid of step 0.05, then golden-section search to 1e-10 in the
 //! best grid cell. The profile-likelihood interval is `{λ : ℓ(λ) ≥ ℓ(λ̂) − χ²₁(1 − α)/2}`,
 //! endpoints found by bisection; an endpoint beyond ±3 is reported as absent. The
-//! recommended rung is the ladder rung nearest to λ̂. Weighting (equivalently a power rung) is
-//! preferable to constant scatter when λ = 1 lies outside the interval (likelihood-ratio test
-//! of constant scatter at level α).
+//! recommended rung is the ladder rung nearest to λ̂. Constant scatter is rejected when λ = 1
+//! lies outside the interval (likelihood-ratio test at level α); weighting (equivalently a
+//! power rung) is advised only when it is rejected **and** the recommended rung is a power
+//! rung, so the advice never contradicts the rung (λ̂ > 1, scatter shrinking relative to the
+//! level, keeps `identity` and no weighting).
 //!
 //! With a design of one constant column the profile is the plain Box–Cox log-likelihood of a
 //! vector (scipy's `boxcox_llf`).
@@ -260,7 +262,10 @@ pub struct BoxCoxAnalysis {
     pub constant_scatter_lr: f64,
     /// Its χ²₁ p-value.
     pub constant_scatter_p_value: f64,
-    /// True when λ = 1 is outside the interval: weighting (a power rung) is preferable.
+    /// True when λ = 1 is outside the interval (constant scatter rejected).
+    pub constant_scatter_rejected: bool,
+    /// True when constant scatter is rejected and the recommended rung is a power rung:
+    /// weighting is preferable.
     pub weighting_preferred: bool,
     /// The recommended rung (nearest to λ̂).
     pub recommended: &'static str,
@@ -367,7 +372,7 @@ pub fn analyse(
     let constant_scatter_lr = (2.0 * (maximum - identity_value)).max(0.0);
     let constant_scatter_p_value =
         distributions::chi_squared_upper_tail(constant_scatter_lr, 1.0).unwrap_or(f64::NAN);
-    let weighting_preferred = match ci {
+    let constant_scatter_rejected = match ci {
         [Some(a), Some(b)] => !(a <= 1.0 && 1.0 <= b),
         [None, Some(b)] => b < 1.0,
         [Some(a), None] => a > 1.0,
@@ -375,6 +380,7 @@ pub fn analyse(
     };
 
     let recommended = Rung::nearest(lambda);
+    let weighting_preferred = constant_scatter_rejected && recommended != Rung::Identity;
     let rung_fit = profiler.profile(recommended.lambda_f64())?;
     let mean_adequacy = profiler
         .transformed(recommended.lambda_f64(), &rung_fit.params)
@@ -398,6 +404,7 @@ pub fn analyse(
         rungs,
         constant_scatter_lr,
         constant_scatter_p_value,
+        constant_scatter_rejected,
         weighting_preferred,
         recommended: recommended.name(),
         recommended_params: rung_fit.params,

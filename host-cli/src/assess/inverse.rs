@@ -11,7 +11,10 @@
 //! averaged into `y₀`, and `σ(y₀)` the SD of one reading (OLS: `s_y/x`; WLS: `s_w·(y₀ − o)^k`).
 //! For the straight line under OLS this is exactly the classical
 //! `s_x0 = (s_y/x / b)·√(1/m + 1/n + (y₀ − ȳ)² / (b²·Σ(xᵢ − x̄)²))` (Miller & Miller).
-//! The expanded uncertainty is `U = k·u` with coverage factor k (2 by default).
+//! The expanded uncertainty is `U = k·u`. By default `k = t(0.975; ν)` with ν the residual
+//! degrees of freedom of the headline fit (95 % coverage; `ν = ∞` when the uncertainties are
+//! known, `k = 1.96`); a fixed k can be given. Each row states its `m`: a standard's mean
+//! response averages that standard's replicates.
 
 use nalgebra::DMatrix;
 use serde::Serialize;
@@ -23,6 +26,8 @@ use super::design::{row_vector, Basis, CalibrationModel};
 pub struct InverseRow {
     /// The raw reading `y₀` (mean of `m` readings).
     pub raw: f64,
+    /// `m`, the readings averaged into `y₀`.
+    pub readings_averaged: usize,
     /// The calibrated value `x̂₀` in reference units (`null` when the mean cannot reach `y₀`).
     pub value: Option<f64>,
     /// Standard uncertainty `u(x̂₀)`.
@@ -40,8 +45,12 @@ pub struct InverseTable {
     pub fit: &'static str,
     /// Coverage factor of the expanded uncertainty.
     pub coverage_factor: f64,
-    /// Readings averaged into each `y₀`.
+    /// How the coverage factor was chosen.
+    pub coverage: String,
+    /// Readings averaged into each given `y₀` (rows state their own `m`).
     pub readings_averaged: usize,
+    /// What the standard uncertainty propagates.
+    pub uncertainty_sources: &'static str,
     /// The rows.
     pub rows: Vec<InverseRow>,
 }
@@ -106,6 +115,7 @@ pub fn inverse_row(
     let Some(value) = solve_mean(fit.model, fit.params, raw, fit.range) else {
         return InverseRow {
             raw,
+            readings_averaged: readings,
             value: None,
             standard_uncertainty: None,
             expanded_uncertainty: None,
@@ -123,6 +133,7 @@ pub fn inverse_row(
     let finite = standard.is_finite().then_some(standard);
     InverseRow {
         raw,
+        readings_averaged: readings,
         value: Some(value),
         standard_uncertainty: finite,
         expanded_uncertainty: finite.map(|u| coverage_factor * u),

@@ -13,14 +13,22 @@
 //! data cannot support (no replicates, a response at or below the level origin for Box–Cox)
 //! is `null` in the document and explained in `notes`.
 //!
-//! The WLS fit uses weights `wᵢ = (f_OLS(refᵢ) − o)^(−2k)` from the spread model's `k`
-//! (inverse variance under `SD ∝ level^k`). The headline limits and the inverse table use the
-//! WLS fit when weighting is preferable (Box–Cox interval excludes λ = 1; without Box–Cox,
-//! Koenker's test at level α), the OLS fit otherwise.
+//! The weighted fit follows [`AssessOptions::weights`] ([`weights`]): by default
+//! `wᵢ = (f_OLS(refᵢ) − o)^(−2k)` from the spread model's `k` (inverse variance under
+//! `SD ∝ level^k`); `ref^P` and `level^P` weights a lab chooses; known uncertainties of the
+//! responses (ISO/TS 28037 weighted least squares, weights `1/u²`, covariance not rescaled,
+//! χ² check) or of both variables ([`errors_in_both`]). The headline fit (`headline_fit`),
+//! which the limits and the inverse table use, is the weighted fit when the weights were
+//! chosen or known, or (auto) when weighting is advised (the recommended rung is a power rung
+//! and the Box–Cox interval excludes λ = 1; without Box–Cox, Koenker's test at level α); OLS
+//! otherwise.
+//!
+//! [`assess`] runs one step per part of the assessment, in [`steps`].
 
 pub mod boxcox;
 pub mod design;
 pub mod distributions;
+pub mod errors_in_both;
 pub mod heteroscedasticity;
 pub mod inverse;
 pub mod limits;
@@ -29,18 +37,20 @@ pub mod render;
 pub mod replicates;
 pub mod run_file;
 pub mod spread_model;
+mod steps;
+pub mod weights;
 
 use serde::Serialize;
 
 pub use design::{Basis, CalibrationModel};
 pub use render::render_text;
+pub use weights::{ReadingSpread, WeightRule};
 
 use boxcox::BoxCoxAnalysis;
 use heteroscedasticity::{BreuschPagan, EndsOfRange, GoldfeldQuandt};
-use inverse::{InverseModel, InverseTable};
-use limits::{DetectionLimits, Limits};
+use inverse::InverseTable;
+use limits::Limits;
 use regression::{LackOfFit, LeastSquaresFit, RegressionError};
-use replicates::ReplicateGroups;
 use spread_model::SpreadModel;
 
 /// The safety caution every rendering of an assessment ends with.
@@ -48,8 +58,9 @@ pub const CAUTION: &str = "steadycal supports, and does not replace, calibration
 applicable standards, local codes and licensed practice; an assessment made with it is not a \
 certified calibration.";
 
-/// A lab calibration run: responses against references, optional temperatures.
-#[derive(Debug, Clone, PartialEq)]
+/// A lab calibration run: responses against references, optional temperatures and known
+/// standard uncertainties.
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct CalibrationData {
     /// The sensor's responses (`raw`).
     pub raw: Vec<f64>,
@@ -57,6 +68,10 @@ pub struct CalibrationData {
     pub reference: Vec<f64>,
     /// Temperatures, one per row, if recorded.
     pub temperature: Option<Vec<f64>>,
+    /// Known standard uncertainty of each response `u(raw)`, if given.
+    pub raw_uncertainty: Option<Vec<f64>>,
+    /// Known standard uncertainty of each reference `u(ref)`, if given (needs `u(raw)`).
+    pub reference_uncertainty: Option<Vec<f64>>,
 }
 
 /// Options of the assessment.
@@ -78,10 +93,16 @@ pub struct AssessOptions {
     pub goldfeld_quandt_drop: f64,
     /// Raw readings for the inverse table (default: the mean response of each standard).
     pub inverse_readings: Option<Vec<f64>>,
-    /// Readings averaged into each inverse-table reading (default 1).
+    /// Readings averaged into each given inverse-table reading (default 1; the standards'
+    /// mean responses average their replicates).
     pub readings_averaged: usize,
-    /// Coverage factor of expanded uncertainties (default 2).
-    pub coverage_factor: f64,
+    /// Coverage factor of expanded uncertainties (default `None`: Student's t at 95 % on the
+    /// headline fit's degrees of freedom).
+    pub coverage_factor: Option<f64>,
+    /// How the weighted fit is weighted (default `auto`).
+    pub weights: WeightRule,
+    /// α and β of the DIN 32645 limits (default 0.01, the standard's worked level).
+    pub din32645_alpha: f64,
 }
 
 impl Default for AssessOptions {
@@ -96,7 +117,9 @@ impl Default for AssessOptions {
             goldfeld_quandt_drop: 0.2,
             inverse_readings: None,
             readings_averaged: 1,
-            coverage_factor: 2.0,
+            coverage_factor: None,
+            weights: WeightRule::Auto,
+            din32645_alpha: 0.01,
         }
     }
 }
@@ -149,6 +172,16 @@ pub enum AssessError {
         /// What is wrong.
         reason: &'static str,
     },
+    /// Weights a rule cannot form.
+    #[error("weights {rule}: data row {row}: {reason}")]
+    WeightsUndefined {
+        /// The rule.
+        rule: String,
+        /// 0-based data row.
+        row: usize,
+        /// Why.
+        reason: &'static str,
+    },
     /// The least-squares fit failed.
     #[error("calibration fit: {0}")]
     Regression(#[from] RegressionError),
@@ -177,13 +210,27 @@ pub struct FitReport {
     pub lack_of_fit: Option<LackOfFit>,
 }
 
-/// The WLS fit with the spread exponent its weights came from.
+/// The weighted fit, its weighting rule and (known uncertainties) its χ² check.
 #[derive(Debug, Clone, Serialize)]
 pub struct WlsReport {
-    /// How the weights were formed.
-    pub weights: &'static str,
-    /// The exponent `k` in the weights.
+    /// The weighting rule: `auto`, `ref^P`, `level^P`, `known u(raw)` or `known u(raw),
+    /// u(ref)` (errors in both variables).
+    pub weights: String,
+    /// What the weights are, in words.
+    pub weights_formula: String,
+    /// The exponent `k` of `SD ∝ basis^k` the weights assume (`null` for known
+    /// uncertainties).
     pub exponent: f64,
+    /// True when the parameter covariance is scaled by the residual variance (false when the
+    /// uncertainties are known).
+    pub covariance_rescaled: bool,
+    /// Known uncertainties: `χ² = Σ rᵢ²` of the weighted residuals.
+    pub chi_squared: Option<f64>,
+    /// Its degrees of freedom `n − p`.
+    pub chi_squared_df: Option<usize>,
+    /// `P(χ² > observed)`: a small value says the data scatter more than the stated
+    /// uncertainties allow (or the model misfits).
+    pub chi_squared_p: Option<f64>,
     /// The fit and its lack-of-fit test.
     #[serde(flatten)]
     pub report: FitReport,
@@ -218,8 +265,13 @@ pub struct Assessment {
     pub boxcox: Option<BoxCoxAnalysis>,
     /// The recommended rung's name.
     pub recommended: &'static str,
-    /// True when weighting (a power rung) is preferable to constant scatter.
+    /// True when weighting (a power rung) is preferable to constant scatter; never true when
+    /// the recommended rung is `identity`.
     pub weighting_preferred: bool,
+    /// The fit the limits and the inverse table use: `ols` or `wls`.
+    pub headline_fit: &'static str,
+    /// The SD of one reading under the headline fit.
+    pub reading_spread: ReadingSpread,
     /// Headline limit of detection (reference units).
     pub lod: f64,
     /// Headline limit of quantification (reference units).
@@ -239,7 +291,11 @@ pub(crate) fn above(value: f64, bound: f64) -> bool {
     value > bound
 }
 
-fn check_column(column: &'static str, values: &[f64], expected: usize) -> Result<(), AssessError> {
+pub(crate) fn check_column(
+    column: &'static str,
+    values: &[f64],
+    expected: usize,
+) -> Result<(), AssessError> {
     if values.len() != expected {
         return Err(AssessError::LengthMismatch {
             column,
@@ -269,8 +325,13 @@ fn check_options(options: &AssessOptions) -> Result<(), AssessError> {
     {
         return invalid("goldfeld_quandt_drop", "split + drop must be below 1");
     }
-    if !(options.coverage_factor > 0.0 && options.coverage_factor.is_finite()) {
-        return invalid("coverage_factor", "must be a positive number");
+    if let Some(k) = options.coverage_factor {
+        if !(k > 0.0 && k.is_finite()) {
+            return invalid("coverage_factor", "must be a positive number");
+        }
+    }
+    if !(options.din32645_alpha > 0.0 && options.din32645_alpha < 0.5) {
+        return invalid("din32645_alpha", "must be between 0 and 0.5");
     }
     if options.readings_averaged == 0 {
         return invalid("readings_averaged", "must be at least 1");
@@ -283,249 +344,57 @@ fn check_options(options: &AssessOptions) -> Result<(), AssessError> {
     Ok(())
 }
 
-/// Assesses a lab calibration run (see module docs).
+/// Assesses a lab calibration run (see module docs): one step per part.
 pub fn assess(data: &CalibrationData, options: &AssessOptions) -> Result<Assessment, AssessError> {
     check_options(options)?;
-    let rows = data.raw.len();
-    check_column("raw", &data.raw, rows)?;
-    check_column("ref", &data.reference, rows)?;
-    let temperature = match (&data.temperature, options.temperature_term) {
-        (Some(t), true) => {
-            check_column("temp", t, rows)?;
-            Some(t.as_slice())
-        }
-        (None, true) => return Err(AssessError::MissingTemperature),
-        _ => None,
-    };
-    let reference_temperature = temperature.map(|t| {
-        options
-            .reference_temperature
-            .unwrap_or_else(|| t.iter().sum::<f64>() / t.len() as f64)
-    });
-    let model = CalibrationModel {
-        basis: options.basis,
-        reference_temperature,
-    };
-    let parameters = model.parameter_count();
-    if rows < parameters + 2 {
-        return Err(AssessError::TooFewObservations {
-            needed: parameters + 2,
-            got: rows,
-        });
-    }
-    let groups = ReplicateGroups::from_reference(&data.reference);
-    let power_count = parameters - usize::from(reference_temperature.is_some());
-    if groups.groups.len() < power_count + 1 {
-        return Err(AssessError::TooFewLevels {
-            needed: power_count + 1,
-            got: groups.groups.len(),
-        });
-    }
-    let alpha = options.alpha;
-    let origin = options.level_origin;
+    let run = steps::prepare(data, options)?;
     let mut notes = Vec::new();
-    let design = model.design(&data.reference, temperature);
-    let raw = &data.raw;
-
-    // Ordinary least squares.
-    let ols_fit = regression::least_squares(&design, raw, None)?;
-    let ols_lack_of_fit = regression::lack_of_fit(
-        raw,
-        &ols_fit.weights,
-        ols_fit.residual_sum_of_squares,
-        &groups,
-        parameters,
-        alpha,
-    );
-    if ols_lack_of_fit.is_none() {
-        notes.push(
-            "no lack-of-fit test: it needs replicates and more levels than parameters".into(),
-        );
-    }
-    let fitted_level: Vec<f64> = ols_fit.fitted.iter().map(|f| f - origin).collect();
-
-    // Constant-scatter tests.
-    let koenker = heteroscedasticity::breusch_pagan(&ols_fit.residuals, &ols_fit.fitted, true)?;
-    let breusch_pagan =
-        heteroscedasticity::breusch_pagan(&ols_fit.residuals, &ols_fit.fitted, false)?;
-    let goldfeld_quandt = match heteroscedasticity::goldfeld_quandt(
-        &design,
-        raw,
-        &data.reference,
-        options.goldfeld_quandt_split,
-        options.goldfeld_quandt_drop,
-    ) {
-        Ok(test) => Some(test),
-        Err(error) => {
-            notes.push(format!("no Goldfeld-Quandt test: {error}"));
-            None
-        }
+    let ols = steps::ordinary_fit(&run, data, options, &mut notes)?;
+    let scatter = steps::scatter_tests(&run, data, &ols.fit, options, &mut notes)?;
+    let spread = steps::spread(&run, data, &ols.fit, options, &mut notes);
+    let boxcox = steps::power_transform(&run, data, &ols.fit, options, &mut notes);
+    let (recommended, weighting_preferred) =
+        steps::advice(boxcox.as_ref(), &scatter.koenker, options.alpha, &mut notes);
+    let weighted = steps::weighted_fit(&run, data, options, &ols.fit, spread.as_ref(), &mut notes)?;
+    let use_wls = steps::headline_is_weighted(options, data, weighting_preferred, &weighted);
+    let (headline_fit, reading_spread) = match (&weighted, use_wls) {
+        (Some((_, spread)), true) => ("wls", spread.clone()),
+        _ => (
+            "ols",
+            ReadingSpread::Constant {
+                sd: ols.fit.residual_sd,
+            },
+        ),
     };
-    let ends_of_range = heteroscedasticity::ends_of_range(&groups, raw, alpha);
-    if ends_of_range.is_none() {
-        notes.push(
-            "no ends-of-range F test: it needs two or more replicates at the lowest and highest standard"
-                .into(),
-        );
-    }
-
-    // Spread model and WLS.
-    let spread =
-        spread_model::fit_spread_model(&groups, raw, &fitted_level, &ols_fit.residuals, alpha);
-    let wls = match &spread {
-        None => {
-            notes.push("no spread model: fewer than three usable levels or bins".into());
-            None
-        }
-        Some(spread) if fitted_level.iter().any(|l| !above(*l, 0.0)) => {
-            let _ = spread;
-            notes.push("no WLS fit: a fitted level is not above the level origin".into());
-            None
-        }
-        Some(spread) => {
-            let weights: Vec<f64> = fitted_level
-                .iter()
-                .map(|l| (-2.0 * spread.k * l.ln()).exp())
-                .collect();
-            match regression::least_squares(&design, raw, Some(&weights)) {
-                Ok(fit) => {
-                    let lack_of_fit = regression::lack_of_fit(
-                        raw,
-                        &fit.weights,
-                        fit.residual_sum_of_squares,
-                        &groups,
-                        parameters,
-                        alpha,
-                    );
-                    Some(WlsReport {
-                        weights: "(fitted OLS level - origin)^(-2k)",
-                        exponent: spread.k,
-                        report: FitReport { fit, lack_of_fit },
-                    })
-                }
-                Err(error) => {
-                    notes.push(format!("no WLS fit: {error}"));
-                    None
-                }
-            }
-        }
+    let limits = steps::detection_limits(&run, data, options, &ols.fit, weighted.as_ref(), use_wls);
+    let headline = match (&weighted, use_wls) {
+        (Some((wls, _)), true) => &wls.report.fit,
+        _ => &ols.fit,
     };
-
-    // Box–Cox.
-    let boxcox = match boxcox::analyse(&design, raw, origin, &ols_fit.params, &groups, alpha) {
-        Ok(analysis) => Some(analysis),
-        Err(error) => {
-            notes.push(format!("no Box-Cox analysis: {error}"));
-            None
-        }
-    };
-    let (recommended, weighting_preferred) = match &boxcox {
-        Some(analysis) => (analysis.recommended, analysis.weighting_preferred),
-        None => ("identity", koenker.p_value < alpha),
-    };
-    if let Some(analysis) = &boxcox {
-        if analysis.at_search_bound {
-            notes.push("Box-Cox lambda sits on the end of the search range [-3, 3]".into());
-        }
-        if let Some(adequacy) = &analysis.mean_adequacy {
-            if !adequacy.adequate {
-                notes.push(format!(
-                    "the calibration mean misfits on the {} scale (lack-of-fit p = {:.3}): try the quadratic or the temperature term",
-                    recommended, adequacy.p_value
-                ));
-            }
-        }
-    }
-
-    // Limits.
-    let lowest = groups.groups.first().map_or(f64::NAN, |g| g.reference);
-    let highest = groups.groups.last().map_or(f64::NAN, |g| g.reference);
-    let constant_sigma =
-        DetectionLimits::new(ols_fit.residual_sd, model.slope(&ols_fit.params, lowest));
-    let spread_limits = match (&wls, &spread) {
-        (Some(wls), Some(spread)) => {
-            let low_level = model.mean(&ols_fit.params, lowest, 0.0) - origin;
-            let sigma = wls.report.fit.residual_sd * low_level.powf(spread.k);
-            Some(DetectionLimits::new(
-                sigma,
-                model.slope(&wls.report.fit.params, lowest),
-            ))
-        }
-        _ => None,
-    };
-    let use_wls = weighting_preferred && wls.is_some();
-    let limits = limits::limits(constant_sigma, spread_limits, use_wls, lowest, highest);
-
-    // Inverse prediction.
-    let readings: Vec<f64> = match &options.inverse_readings {
-        Some(readings) => readings.clone(),
-        None => groups
-            .groups
-            .iter()
-            .map(|g| replicates::mean_and_sd(raw, &g.members).0)
-            .collect(),
-    };
-    let range = [lowest, highest];
-    let inverse_prediction = match (&wls, &spread, use_wls) {
-        (Some(wls), Some(spread), true) => {
-            let scale = wls.report.fit.residual_sd;
-            let k = spread.k;
-            let reading_sd = move |y: f64| {
-                let level = y - origin;
-                if level > 0.0 {
-                    scale * level.powf(k)
-                } else {
-                    f64::NAN
-                }
-            };
-            table(
-                &model,
-                &wls.report.fit,
-                &reading_sd,
-                range,
-                &readings,
-                options,
-                "wls",
-            )
-        }
-        _ => {
-            let scale = ols_fit.residual_sd;
-            let reading_sd = move |_: f64| scale;
-            table(
-                &model,
-                &ols_fit,
-                &reading_sd,
-                range,
-                &readings,
-                options,
-                "ols",
-            )
-        }
-    };
-
+    let inverse_prediction =
+        steps::inverse_table(&run, data, options, headline, &reading_spread, headline_fit);
     Ok(Assessment {
-        observations: rows,
-        reference_levels: groups.groups.len(),
-        replicates: groups.has_replicates(),
+        observations: data.raw.len(),
+        reference_levels: run.groups.groups.len(),
+        replicates: run.groups.has_replicates(),
         model: ModelSummary {
-            basis: model.basis,
-            parameter_names: model.parameter_names(),
-            reference_temperature,
-            level_origin: origin,
+            basis: run.model.basis,
+            parameter_names: run.model.parameter_names(),
+            reference_temperature: run.model.reference_temperature,
+            level_origin: options.level_origin,
         },
-        ols: FitReport {
-            fit: ols_fit,
-            lack_of_fit: ols_lack_of_fit,
-        },
-        wls,
+        ols,
+        wls: weighted.map(|(wls, _)| wls),
         spread,
-        koenker,
-        breusch_pagan,
-        goldfeld_quandt,
-        ends_of_range,
+        koenker: scatter.koenker,
+        breusch_pagan: scatter.breusch_pagan,
+        goldfeld_quandt: scatter.goldfeld_quandt,
+        ends_of_range: scatter.ends_of_range,
         boxcox,
         recommended,
         weighting_preferred,
+        headline_fit,
+        reading_spread,
         lod: limits.lod,
         loq: limits.loq,
         limits,
@@ -535,36 +404,12 @@ pub fn assess(data: &CalibrationData, options: &AssessOptions) -> Result<Assessm
     })
 }
 
-fn table(
-    model: &CalibrationModel,
-    fit: &LeastSquaresFit,
-    reading_sd: &dyn Fn(f64) -> f64,
-    range: [f64; 2],
-    readings: &[f64],
-    options: &AssessOptions,
-    name: &'static str,
-) -> InverseTable {
-    let inverse_model = InverseModel {
-        model,
-        params: &fit.params,
-        covariance: &fit.covariance,
-        reading_sd,
-        range,
-    };
-    InverseTable {
-        fit: name,
-        coverage_factor: options.coverage_factor,
-        readings_averaged: options.readings_averaged,
-        rows: readings
-            .iter()
-            .map(|&raw| {
-                inverse::inverse_row(
-                    &inverse_model,
-                    raw,
-                    options.readings_averaged,
-                    options.coverage_factor,
-                )
-            })
-            .collect(),
+impl Assessment {
+    /// The headline fit (the one the limits and the inverse table use).
+    pub fn headline(&self) -> &LeastSquaresFit {
+        match (&self.wls, self.headline_fit) {
+            (Some(wls), "wls") => &wls.report.fit,
+            _ => &self.ols.fit,
+        }
     }
 }

@@ -98,6 +98,27 @@ pub fn least_squares(
     response: &[f64],
     weights: Option<&[f64]>,
 ) -> Result<LeastSquaresFit, RegressionError> {
+    fit(design, response, weights, true)
+}
+
+/// Weighted least squares with weights `1/u²` from known standard uncertainties `u` (ISO/TS
+/// 28037): the parameter covariance is `(XᵀWX)⁻¹`, **not** rescaled by the residual
+/// variance; `residual_sum_of_squares` is then the χ² statistic on `n − p` degrees of
+/// freedom.
+pub fn least_squares_known_variance(
+    design: &DMatrix<f64>,
+    response: &[f64],
+    weights: &[f64],
+) -> Result<LeastSquaresFit, RegressionError> {
+    fit(design, response, Some(weights), false)
+}
+
+fn fit(
+    design: &DMatrix<f64>,
+    response: &[f64],
+    weights: Option<&[f64]>,
+    rescale: bool,
+) -> Result<LeastSquaresFit, RegressionError> {
     let (rows, columns) = design.shape();
     if response.len() != rows {
         return Err(RegressionError::LengthMismatch {
@@ -185,13 +206,17 @@ pub fn least_squares(
         .sum();
     let df_resid = rows - columns;
     let variance = residual_sum_of_squares / df_resid as f64;
+    let covariance_scale = if rescale { variance } else { 1.0 };
 
     let inverse_r = factors.inverse_r();
     let scaled_covariance = &inverse_r * inverse_r.transpose();
     let covariance: Vec<Vec<f64>> = (0..columns)
         .map(|i| {
             (0..columns)
-                .map(|j| variance * scaled_covariance[(i, j)] / (column_norms[i] * column_norms[j]))
+                .map(|j| {
+                    covariance_scale * scaled_covariance[(i, j)]
+                        / (column_norms[i] * column_norms[j])
+                })
                 .collect()
         })
         .collect();

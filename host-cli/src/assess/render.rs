@@ -38,6 +38,11 @@ fn optional(value: Option<f64>) -> String {
     value.map_or("n/a".into(), significant)
 }
 
+/// The level of the tests (the Box–Cox interval's complement; 0.05 without it).
+fn a_alpha(a: &Assessment) -> f64 {
+    a.boxcox.as_ref().map_or(0.05, |b| 1.0 - b.confidence)
+}
+
 /// Renders the assessment as plain text.
 pub fn render_text(assessment: &Assessment) -> String {
     let mut out = String::new();
@@ -105,12 +110,38 @@ pub fn render_text(assessment: &Assessment) -> String {
         fit_lines(
             &mut out,
             &format!(
-                "Weighted least squares (weights level^(-2k), k = {})",
-                significant(wls.exponent)
+                "Weighted least squares (weights {}: {}{})",
+                wls.weights,
+                wls.weights_formula,
+                if wls.exponent.is_finite() {
+                    format!("; SD exponent k = {}", significant(wls.exponent))
+                } else {
+                    String::new()
+                }
             ),
             &wls.report,
         );
+        if let (Some(chi), Some(df), Some(p)) =
+            (wls.chi_squared, wls.chi_squared_df, wls.chi_squared_p)
+        {
+            let _ = writeln!(
+                out,
+                "  chi-squared  {} on {df} df, p = {} -> {}",
+                significant(chi),
+                significant(p),
+                if p >= a_alpha(a) {
+                    "consistent with the stated uncertainties"
+                } else {
+                    "the data scatter more than the stated uncertainties allow"
+                }
+            );
+        }
     }
+    let _ = writeln!(
+        out,
+        "\nHeadline fit (limits and inverse table): {}",
+        a.headline_fit.to_uppercase()
+    );
 
     let _ = writeln!(out, "\nScatter against level");
     if let Some(spread) = &a.spread {
@@ -204,7 +235,8 @@ pub fn render_text(assessment: &Assessment) -> String {
         if a.weighting_preferred { "yes" } else { "no" }
     );
 
-    let _ = writeln!(out, "\nLimits ({})", a.limits.convention);
+    let _ = writeln!(out, "\nLimits: {}", a.limits.rule);
+    let _ = writeln!(out, "  headline sigma: {}", a.limits.sigma_basis);
     let _ = writeln!(
         out,
         "  constant sigma: sigma {} -> LOD {}, LOQ {}",
@@ -215,7 +247,7 @@ pub fn render_text(assessment: &Assessment) -> String {
     if let Some(spread) = &a.limits.spread_model {
         let _ = writeln!(
             out,
-            "  spread model (sigma at the lowest standard): sigma {} -> LOD {}, LOQ {}",
+            "  weighted fit (sigma at the lowest standard): sigma {} -> LOD {}, LOQ {}",
             significant(spread.sigma),
             significant(spread.lod),
             significant(spread.loq)
@@ -223,31 +255,50 @@ pub fn render_text(assessment: &Assessment) -> String {
     }
     let _ = writeln!(
         out,
-        "  reported: LOD {}, LOQ {}; working range {} to {}",
+        "  reported: LOD {}, LOQ {}; working range {} to {}{}",
         significant(a.lod),
         significant(a.loq),
         significant(a.limits.working_range[0]),
-        significant(a.limits.working_range[1])
+        significant(a.limits.working_range[1]),
+        if a.limits.lod_extrapolated {
+            "  (LOD below the lowest standard: an extrapolation of the calibration)"
+        } else {
+            ""
+        }
     );
+    if let Some(din) = &a.limits.din32645 {
+        let _ = writeln!(
+            out,
+            "  DIN 32645 / ISO 11843-2 (OLS line, alpha = beta = {}, m = {}, k = {}): critical value {}, detection limit {}, quantification limit {}",
+            din.alpha,
+            din.readings_averaged,
+            number(din.k),
+            significant(din.critical_value),
+            significant(din.detection_limit),
+            significant(din.quantification_limit)
+        );
+    }
 
     let table = &a.inverse_prediction;
     let _ = writeln!(
         out,
-        "\nInverse prediction ({} fit, mean of {} reading(s), expanded with k = {})",
+        "\nInverse prediction ({} fit; U = k u with k = {}: {}; u from {})",
         table.fit,
-        table.readings_averaged,
-        number(table.coverage_factor)
+        number(table.coverage_factor),
+        table.coverage,
+        table.uncertainty_sources
     );
     let _ = writeln!(
         out,
-        "  {:>14} {:>14} {:>14} {:>14}",
-        "raw", "value", "u", "U"
+        "  {:>14} {:>4} {:>14} {:>14} {:>14}",
+        "raw", "m", "value", "u", "U"
     );
     for row in &table.rows {
         let _ = writeln!(
             out,
-            "  {:>14} {:>14} {:>14} {:>14}{}",
+            "  {:>14} {:>4} {:>14} {:>14} {:>14}{}",
             significant(row.raw),
+            row.readings_averaged,
             optional(row.value),
             optional(row.standard_uncertainty),
             optional(row.expanded_uncertainty),

@@ -1,10 +1,13 @@
 //! The spread model `SD ∝ level^k`: how the scatter of the response grows with the level.
 //!
-//! Points: when the run has replicate groups (at least three groups with two or more members),
-//! one point per group: the group's fitted level (OLS mean at its reference, minus the level
-//! origin) and the sample SD (n − 1) of its responses. Otherwise the rows are sorted by fitted
-//! level and cut into `clamp(n / 6, 3, 10)` bins of equal count; a point per bin is the mean
-//! fitted level and the SD of the OLS residuals about their bin mean.
+//! Points (`method`): `replicates` when the run is built of replicate groups (at least three
+//! groups with two or more members, holding at least half of the rows): one point per group,
+//! the group's fitted level (OLS mean at its reference, minus the level origin) and the sample
+//! SD (n − 1) of its responses. Otherwise (field-style data, references mostly distinct)
+//! `binned`: the rows are sorted by fitted level and cut into `min(10, n / 5)` bins of equal
+//! count (so every bin holds at least [`MIN_BIN_POINTS`] rows; at least three bins, so at
+//! least 15 rows); a point per bin is the mean fitted level and the SD of the OLS residuals
+//! about their bin mean.
 //!
 //! `k` is the slope of a weighted least-squares fit of `ln SD` on `ln level`, weight `count − 1`
 //! per point (the variance of `ln s` is close to `1 / (2(count − 1))`). Its standard error is
@@ -19,6 +22,11 @@ use super::distributions;
 use super::regression::least_squares;
 use super::replicates::{mean_and_sd, ReplicateGroups};
 
+/// Fewest rows in a bin of residuals.
+pub const MIN_BIN_POINTS: usize = 5;
+/// Most bins of residuals.
+pub const MAX_BINS: usize = 10;
+
 /// One point of the spread profile.
 #[derive(Debug, Clone, Serialize)]
 pub struct SpreadPoint {
@@ -32,11 +40,12 @@ pub struct SpreadPoint {
 
 /// Where the spread points came from.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "snake_case")]
 pub enum SpreadSource {
     /// One point per replicate group.
+    #[serde(rename = "replicates")]
     ReplicateGroups,
     /// One point per bin of residuals sorted by fitted level.
+    #[serde(rename = "binned")]
     BinnedResiduals,
 }
 
@@ -51,7 +60,8 @@ pub struct SpreadModel {
     pub k_ci: [f64; 2],
     /// Intercept of the log–log fit: `ln SD ≈ ln_sd_at_unit_level + k·ln level`.
     pub ln_sd_at_unit_level: f64,
-    /// Where the points came from.
+    /// Where the points came from (`replicates` or `binned`).
+    #[serde(rename = "method")]
     pub source: SpreadSource,
     /// The points used.
     pub points: Vec<SpreadPoint>,
@@ -72,7 +82,9 @@ pub fn fit_spread_model(
         .iter()
         .filter(|g| g.members.len() >= 2)
         .collect();
-    let (source, candidates) = if replicate_groups.len() >= 3 {
+    let replicated_rows: usize = replicate_groups.iter().map(|g| g.members.len()).sum();
+    let (source, candidates) = if replicate_groups.len() >= 3 && 2 * replicated_rows >= level.len()
+    {
         let points = replicate_groups
             .iter()
             .map(|g| {
@@ -89,8 +101,8 @@ pub fn fit_spread_model(
         (SpreadSource::ReplicateGroups, points)
     } else {
         let rows = level.len();
-        let bins = (rows / 6).clamp(3, 10);
-        if rows < 2 * bins {
+        let bins = (rows / MIN_BIN_POINTS).min(MAX_BINS);
+        if bins < 3 {
             return None;
         }
         let mut order: Vec<usize> = (0..rows).collect();

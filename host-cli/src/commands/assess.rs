@@ -1,5 +1,4 @@
-//! `steadycal assess FEED`: batch analysis of a lab calibration run (arguments moved here
-//! unchanged from `main.rs`).
+//! `steadycal assess FEED`: batch analysis of a lab calibration run.
 
 use std::io::Write;
 use std::path::PathBuf;
@@ -7,6 +6,8 @@ use std::process::ExitCode;
 
 use clap::Args;
 
+use super::ColumnArgs;
+use crate::assess::WeightRule;
 use crate::{commission, replay};
 
 /// Calibration mean of `assess`.
@@ -47,12 +48,39 @@ pub struct AssessArgs {
     /// baseline) to FILE.
     #[arg(long, value_name = "FILE")]
     pub commission: Option<PathBuf>,
+    /// Weights of the weighted fit: `auto` (from the estimated spread exponent; the headline
+    /// fit only when weighting is advised), `none`, `ref^P` (e.g. `ref^-1` for 1/x, `ref^-2`
+    /// for 1/x²) or `level^P` (of the fitted level above the origin). Chosen weights make
+    /// the weighted fit the headline.
+    #[arg(long, value_name = "RULE", default_value = "auto", value_parser = parse_weights)]
+    pub weights: WeightRule,
+    /// Column holding each response's known standard uncertainty u(raw): ISO/TS 28037
+    /// weighted least squares (weights 1/u², covariance not rescaled, χ² check).
+    #[arg(long, value_name = "NAME")]
+    pub raw_uncertainty_column: Option<String>,
+    /// Column holding each reference's known standard uncertainty u(ref) (with
+    /// --raw-uncertainty-column: the errors-in-both-variables line of ISO/TS 28037).
+    #[arg(long, value_name = "NAME", requires = "raw_uncertainty_column")]
+    pub ref_uncertainty_column: Option<String>,
+    /// Origin of levels for the spread model, the power transforms and level weights [default:
+    /// the config's range.origin, else 0].
+    #[arg(long, value_name = "RAW", allow_hyphen_values = true)]
+    pub level_origin: Option<f64>,
+    /// Coverage factor of the inverse table's expanded uncertainties [default: Student t at
+    /// 95 % on the headline fit's degrees of freedom].
+    #[arg(long, value_name = "K")]
+    pub coverage_factor: Option<f64>,
+    #[command(flatten)]
+    pub columns: ColumnArgs,
+}
+
+fn parse_weights(text: &str) -> Result<WeightRule, String> {
+    text.parse()
 }
 
 /// Runs `assess`.
 pub fn run(args: AssessArgs) -> anyhow::Result<ExitCode> {
     use crate::assess::{self, AssessOptions, Basis};
-    let data = assess::run_file::read_calibration_run(&args.feed)?;
     let config = match &args.config {
         Some(path) => {
             let file = steadycal_config::ConfigFile::read(path)?;
@@ -61,12 +89,36 @@ pub fn run(args: AssessArgs) -> anyhow::Result<ExitCode> {
         }
         None => steadycal_config::ConfigFile::default(),
     };
+    let columns = super::column_names(&config, &args.columns);
+    let data = assess::run_file::read_calibration_run_with(
+        &args.feed,
+        &columns,
+        &assess::run_file::UncertaintyColumns {
+            raw: args.raw_uncertainty_column.clone(),
+            reference: args.ref_uncertainty_column.clone(),
+        },
+    )?;
+    if let Some(origin) = args.level_origin {
+        if !origin.is_finite() {
+            anyhow::bail!("--level-origin: {origin} is not a finite number");
+        }
+    }
+    if let Some(k) = args.coverage_factor {
+        if !(k.is_finite() && k > 0.0) {
+            anyhow::bail!("--coverage-factor: {k} is not a positive finite number");
+        }
+    }
     let options = AssessOptions {
         basis: match args.basis {
             BasisArg::Linear => Basis::Linear,
             BasisArg::Quadratic => Basis::Quadratic,
         },
-        level_origin: config.range.origin.map_or(0.0, |origin| origin.0),
+        level_origin: args
+            .level_origin
+            .or(config.range.origin.map(|origin| origin.0))
+            .unwrap_or(0.0),
+        weights: args.weights,
+        coverage_factor: args.coverage_factor,
         ..AssessOptions::default()
     };
     let assessment = assess::assess(&data, &options)

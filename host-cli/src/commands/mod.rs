@@ -166,6 +166,17 @@ pub fn resolve(
         file.range.high = Some(crate::config::Positive(positive_arg("--level-high", high)?));
     }
     let channel = file.channel(&name)?;
+    let names = column_names(&file, columns);
+    Ok(Resolved {
+        config: channel.monitor,
+        baseline: channel.baseline,
+        columns: names,
+    })
+}
+
+/// The feed's column names: the command line's, else the file's `[columns]`, else the
+/// defaults.
+pub fn column_names(file: &ConfigFile, columns: &ColumnArgs) -> ColumnNames {
     let mut names = ColumnNames::default();
     let section = &file.columns;
     let pick = |arg: &Option<String>, key: &Option<String>, default: &mut String| {
@@ -185,11 +196,7 @@ pub fn resolve(
         &section.temperature,
         &mut names.temperature,
     );
-    Ok(Resolved {
-        config: channel.monitor,
-        baseline: channel.baseline,
-        columns: names,
-    })
+    names
 }
 
 fn positive_arg(name: &str, value: f64) -> anyhow::Result<f64> {

@@ -762,25 +762,9 @@ pub fn assess_report(
         basis: assessment.model.basis,
         reference_temperature: assessment.model.reference_temperature,
     };
-    let use_wls = assessment.inverse_prediction.fit == "wls";
-    let fit = match (&assessment.wls, use_wls) {
-        (Some(wls), true) => &wls.report.fit,
-        _ => &assessment.ols.fit,
-    };
-    let k = assessment.spread.as_ref().map(|s| s.k);
-    let sd_scale = fit.residual_sd;
-    let reading_sd = move |y: f64| match (use_wls, k) {
-        (true, Some(k)) => {
-            let level = y - origin;
-            if level > 0.0 {
-                sd_scale * level.powf(k)
-            } else {
-                f64::NAN
-            }
-        }
-        _ => sd_scale,
-    };
+    let fit = assessment.headline();
     let range = assessment.limits.working_range;
+    let reading_sd = |y: f64| assessment.reading_spread.sd(&model, &fit.params, range, y);
     let inverse = assess::inverse::InverseModel {
         model: &model,
         params: &fit.params,
@@ -799,7 +783,7 @@ pub fn assess_report(
                 &inverse,
                 raw,
                 options.readings_averaged,
-                options.coverage_factor,
+                assessment.inverse_prediction.coverage_factor,
             );
             Some((raw, row.value?, row.expanded_uncertainty?))
         })
@@ -811,7 +795,7 @@ pub fn assess_report(
             points_name: "standards".into(),
             curve,
             band,
-            coverage_factor: options.coverage_factor,
+            coverage_factor: assessment.inverse_prediction.coverage_factor,
             limits: Some((assessment.lod, assessment.loq)),
             x_label: "reference value (reference units)".into(),
             y_label: "raw output (raw units)".into(),
@@ -820,7 +804,7 @@ pub fn assess_report(
                 assessment.inverse_prediction.fit.to_uppercase(),
                 short(range[0]),
                 short(range[1]),
-                short(options.coverage_factor),
+                short(assessment.inverse_prediction.coverage_factor),
                 assessment.limits.convention
             ),
         })?,
@@ -994,7 +978,10 @@ pub fn assess_report(
                     ("basis".into(), assessment.model.basis.name().to_string()),
                     ("level origin".into(), short(origin)),
                     ("alpha".into(), short(options.alpha)),
-                    ("coverage factor".into(), short(options.coverage_factor)),
+                    (
+                        "coverage factor".into(),
+                        short(assessment.inverse_prediction.coverage_factor),
+                    ),
                 ],
             ),
         ),

@@ -1,0 +1,120 @@
+//! `steadycal assess` end to end: chosen weights, known uncertainties from named columns,
+//! renamed columns and the level origin in the JSON document; bad uncertainty cells refused
+//! with file, line and column. Inputs are written by the tests (invented).
+
+mod common;
+
+use common::steadycal;
+
+/// A small run (x = 1…6 twice) with renamed columns and uncertainty columns.
+fn lab_file(dir: &std::path::Path, bad_cell: Option<&str>) -> std::path::PathBuf {
+    let mut text = String::from("time,counts,gas,u_counts,u_gas\n");
+    let rows = [
+        (1.0, 3.3),
+        (2.0, 5.6),
+        (3.0, 7.1),
+        (4.0, 9.3),
+        (5.0, 10.7),
+        (6.0, 12.1),
+        (1.0, 3.1),
+        (2.0, 5.4),
+        (3.0, 7.4),
+        (4.0, 9.0),
+        (5.0, 11.0),
+        (6.0, 12.4),
+    ];
+    for (i, (x, y)) in rows.iter().enumerate() {
+        let u = match (i, bad_cell) {
+            (4, Some(cell)) => cell.to_string(),
+            _ => "0.5".to_string(),
+        };
+        text.push_str(&format!("{i},{y},{x},{u},0.05\n"));
+    }
+    let path = dir.join("lab.csv");
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+fn assess_json(args: &[&str], bad_cell: Option<&str>) -> (i32, serde_json::Value, String) {
+    let dir = tempfile::tempdir().unwrap();
+    let path = lab_file(dir.path(), bad_cell);
+    let output = steadycal()
+        .arg("assess")
+        .arg(&path)
+        .args(["--raw-column", "counts", "--ref-column", "gas", "--json"])
+        .args(args)
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&output.stderr).into_owned();
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    let json = serde_json::from_slice(&output.stdout).unwrap_or_default();
+    (output.status.code().unwrap_or(-1), json, stderr)
+}
+
+#[test]
+fn chosen_weights_are_named_and_make_the_headline() {
+    let (code, json, stderr) = assess_json(&["--weights", "ref^-2"], None);
+    assert_eq!(code, 0, "{stderr}");
+    assert_eq!(json["wls"]["weights"], "ref^-2");
+    assert_eq!(json["headline_fit"], "wls");
+    assert_eq!(json["reading_spread"]["model"], "reference_power");
+    assert_eq!(json["inverse_prediction"]["fit"], "wls");
+    assert_eq!(
+        json["inverse_prediction"]["rows"][0]["readings_averaged"],
+        2
+    );
+    let (_, none, _) = assess_json(&["--weights", "none"], None);
+    assert!(none["wls"].is_null());
+    assert_eq!(none["headline_fit"], "ols");
+    let (code, _, stderr) = assess_json(&["--weights", "1/x"], None);
+    assert_eq!(code, 2, "{stderr}");
+    assert!(
+        stderr.contains("expected auto, none, ref^P or level^P"),
+        "{stderr}"
+    );
+}
+
+#[test]
+fn uncertainty_columns_give_the_chi_squared_check() {
+    let (code, json, stderr) = assess_json(&["--raw-uncertainty-column", "u_counts"], None);
+    assert_eq!(code, 0, "{stderr}");
+    assert_eq!(json["wls"]["weights"], "known u(raw)");
+    assert_eq!(json["wls"]["covariance_rescaled"], false);
+    assert_eq!(json["wls"]["chi_squared_df"], 10);
+    assert!(json["wls"]["chi_squared_p"].as_f64().unwrap() > 0.0);
+    let (code, both, stderr) = assess_json(
+        &[
+            "--raw-uncertainty-column",
+            "u_counts",
+            "--ref-uncertainty-column",
+            "u_gas",
+        ],
+        None,
+    );
+    assert_eq!(code, 0, "{stderr}");
+    assert_eq!(both["wls"]["weights"], "known u(raw), u(ref)");
+}
+
+#[test]
+fn bad_uncertainty_cells_are_refused_with_line_and_column() {
+    for cell in ["", "n/a", "-0.5"] {
+        let (code, _, stderr) = assess_json(&["--raw-uncertainty-column", "u_counts"], Some(cell));
+        assert_eq!(code, 2, "{cell:?}: {stderr}");
+        assert!(
+            stderr.contains("lab.csv: line 6, column `u_counts`"),
+            "{cell:?}: {stderr}"
+        );
+    }
+    let (code, _, stderr) = assess_json(&["--raw-uncertainty-column", "u_missing"], None);
+    assert_eq!(code, 2, "{stderr}");
+    assert!(stderr.contains("no column `u_missing`"), "{stderr}");
+}
+
+#[test]
+fn level_origin_is_reported_and_used() {
+    let (code, json, stderr) = assess_json(&["--level-origin", "-1"], None);
+    assert_eq!(code, 0, "{stderr}");
+    assert_eq!(json["model"]["level_origin"], -1.0);
+    let (code, _, stderr) = assess_json(&["--level-origin", "nan"], None);
+    assert_eq!(code, 2, "{stderr}");
+}
