@@ -56,7 +56,11 @@ fn cell_coverage(cell: &Cell, seed: u64) -> (f64, usize, usize) {
         let a = assess(&data, &options).expect("assessment");
         // The advice never contradicts the rung, and the headline follows the advice.
         if a.weighting_preferred {
-            assert_ne!(a.recommended, "identity", "{}: weighting with identity", cell.name);
+            assert_ne!(
+                a.recommended, "identity",
+                "{}: weighting with identity",
+                cell.name
+            );
         }
         assert_eq!(
             a.headline_fit == "wls",
@@ -122,5 +126,8 @@ fn expanded_uncertainty_covers_about_95_percent_and_advice_is_consistent() {
             failures.push(format!("{}: {coverage:.4}", cell.name));
         }
     }
-    assert!(failures.is_empty(), "coverage outside 0.93-0.97: {failures:?}");
+    assert!(
+        failures.is_empty(),
+        "coverage outside 0.93-0.97: {failures:?}"
+    );
 }
