@@ -14,7 +14,12 @@ On the stored runs tests/reference/runs/*.csv (made by assess_reference.py --mak
   - statsmodels WLS with weights 1/u**2, u = 0.02 * ref + 0.5 (a stated standard uncertainty
     of each response), fitted with cov_type="fixed scale" (scale 1: the covariance is not
     rescaled, ISO/TS 28037): params, bse, and chi-squared = sum w * resid**2 with its
-    scipy chi2.sf p-value on n - p degrees of freedom.
+    scipy chi2.sf p-value on n - p degrees of freedom;
+  - Goldfeld-Quandt with unequal groups (split 0.3, drop 0.1 of the rows sorted stably by
+    ref: 12 low rows, 24 high rows of 40): F = s2_high / s2_low from separate statsmodels
+    OLS fits, p = scipy.stats.f.sf(F, df_high, df_low); and statsmodels' own
+    het_goldfeldquandt p-value, which evaluates f.sf(F, df_low, df_high) (the degrees of
+    freedom in the other order: equal only for equal groups).
 """
 
 import argparse
@@ -28,12 +33,14 @@ import scipy
 import statsmodels
 import statsmodels.api as sm
 from scipy import stats
+from statsmodels.stats.diagnostic import het_goldfeldquandt
 
 HERE = Path(__file__).resolve().parent
 RUNS = HERE / "runs"
 EXPECTED = HERE / "weights_expected.json"
 BASIS = {"constant_sd": "linear", "proportional_sd": "linear", "counting_quadratic": "quadratic"}
 REFERENCE_POWERS = [-1.0, -1.5, -2.0]
+GQ_SPLIT, GQ_DROP = 0.3, 0.1
 LEVEL_POWERS = [-2.0]
 
 
@@ -88,6 +95,24 @@ def compute_all():
             "chi_squared": chi2,
             "chi_squared_df": df,
             "chi_squared_p": float(stats.chi2.sf(chi2, df)),
+        }
+        order = np.argsort(ref, kind="stable")
+        ys, Xs = y[order], X[order]
+        n = len(y)
+        low_rows = int(n * GQ_SPLIT)
+        high_start = low_rows + int(n * GQ_DROP)
+        low = sm.OLS(ys[:low_rows], Xs[:low_rows]).fit()
+        high = sm.OLS(ys[high_start:], Xs[high_start:]).fit()
+        f_value = float(high.mse_resid / low.mse_resid)
+        sm_f, sm_p, _ = het_goldfeldquandt(ys, Xs, split=GQ_SPLIT, drop=GQ_DROP,
+                                           alternative="increasing")
+        run["goldfeld_quandt"] = {
+            "statistic": f_value,
+            "df_low": int(low.df_resid),
+            "df_high": int(high.df_resid),
+            "p_value": float(stats.f.sf(f_value, high.df_resid, low.df_resid)),
+            "statsmodels_statistic": float(sm_f),
+            "statsmodels_p_value": float(sm_p),
         }
         out["runs"][name] = run
     return out

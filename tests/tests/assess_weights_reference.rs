@@ -5,7 +5,9 @@
 //! tests/reference/weights_reference.py from statsmodels 0.14.1 (WLS; `cov_type="fixed
 //! scale"` for known uncertainties), scipy 1.11.4 (chi2.sf), numpy 1.26.4, pandas 2.2.3
 //! (pinned in tests/reference/requirements.txt; CI re-runs it with `--check`). Agreement
-//! required: 1e-10 relative on coefficients, standard errors, residual SD, χ² and its p-value.
+//! required: 1e-10 relative on coefficients, standard errors, residual SD, χ² and its p-value,
+//! and on the Goldfeld–Quandt statistic and p-value with unequal groups (scipy's F with
+//! (df_high, df_low); statsmodels' own p-value uses (df_low, df_high) and is shown to differ).
 
 use std::path::PathBuf;
 
@@ -152,4 +154,65 @@ fn chosen_and_known_weights_match_statsmodels() {
     }
     println!("{compared} weighted fits compared; worst relative error {worst:.1e}");
     assert_eq!(compared, 15);
+}
+
+/// Goldfeld–Quandt with unequal groups (split 0.3, drop 0.1: 12 low rows, 24 high rows of 40)
+/// against scipy 1.11.4's F tail with (df_high, df_low). statsmodels 0.14.1's
+/// het_goldfeldquandt gives the same statistic but evaluates `f.sf(F, df_low, df_high)`: its
+/// p-value differs here, which is why the assessment documents its own order.
+#[test]
+fn goldfeld_quandt_with_unequal_groups_matches_scipy() {
+    let expected: Value = serde_json::from_str(
+        &std::fs::read_to_string(reference_dir().join("weights_expected.json")).unwrap(),
+    )
+    .unwrap();
+    let mut worst = 0.0_f64;
+    for (name, run) in expected["runs"].as_object().unwrap() {
+        let data = read_run(name);
+        let basis = match run["basis"].as_str().unwrap() {
+            "quadratic" => Basis::Quadratic,
+            _ => Basis::Linear,
+        };
+        let options = AssessOptions {
+            basis,
+            goldfeld_quandt_split: 0.3,
+            goldfeld_quandt_drop: 0.1,
+            ..AssessOptions::default()
+        };
+        let a = assess(&data, &options).unwrap();
+        let gq = a.goldfeld_quandt.as_ref().unwrap();
+        let values = &run["goldfeld_quandt"];
+        assert_eq!(gq.df_low as u64, values["df_low"].as_u64().unwrap());
+        assert_eq!(gq.df_high as u64, values["df_high"].as_u64().unwrap());
+        assert_ne!(gq.df_low, gq.df_high, "{name}: the groups must be unequal");
+        close(
+            &format!("{name} GQ F"),
+            gq.statistic,
+            &values["statistic"],
+            &mut worst,
+        );
+        close(
+            &format!("{name} GQ p"),
+            gq.p_value,
+            &values["p_value"],
+            &mut worst,
+        );
+        close(
+            &format!("{name} GQ F (statsmodels)"),
+            gq.statistic,
+            &values["statsmodels_statistic"],
+            &mut worst,
+        );
+        let theirs = values["statsmodels_p_value"].as_f64().unwrap();
+        assert!(
+            (gq.p_value - theirs).abs() > 1e-3 * gq.p_value,
+            "{name}: statsmodels' p {theirs} should differ from ours {}",
+            gq.p_value
+        );
+        println!(
+            "{name}: F = {:.6} on ({}, {}) df, p = {:.6e} (statsmodels' order: {theirs:.6e})",
+            gq.statistic, gq.df_high, gq.df_low, gq.p_value
+        );
+    }
+    println!("worst relative error {worst:.1e}");
 }
