@@ -2,7 +2,9 @@
 //! (issue 2, item 6).
 //!
 //! Source: J. N. Miller and J. C. Miller, *Statistics and Chemometrics for Analytical
-//! Chemistry*, the fluorescence calibration worked example (from memory): standards
+//! Chemistry*, the fluorescence calibration worked example (from memory; edition and page
+//! not checked: the book could not be reached here, and the stored public material holds the
+//! data without its page): standards
 //! x = 0, 2, 4, 6, 8, 10, 12 pg/ml give fluorescence y = 2.1, 5.0, 9.0, 12.6, 17.3, 21.0,
 //! 24.7; the line is a = 1.52, b = 1.93; for single readings y0 = 2.9, 13.5, 23.0 the book
 //! prints x0 = 0.72, 6.21, 11.13 pg/ml with s_x0 = 0.26, 0.24, 0.26 pg/ml.
