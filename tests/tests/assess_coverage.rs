@@ -131,3 +131,54 @@ fn expanded_uncertainty_covers_about_95_percent_and_advice_is_consistent() {
         "coverage outside 0.93-0.97: {failures:?}"
     );
 }
+
+/// A sensor with a baseline (an invented scenario): raw = 500 + 2·ref, scatter 2 % of the
+/// signal above the baseline. Measured from the origin 0 the scatter is not a power of the
+/// level (seed 20261206: the inverse rung is picked and U runs 0.45 to 131, overstating
+/// both ends); from the level origin 500 it is proportional, the assessment advises the log
+/// rung and weights, and the inverse table's U follows the true scatter (k·σ/b for a mean of
+/// m = 4 readings is 0.02·ref: 0.02 at ref = 1, 20 at ref = 1000; U adds the calibration's
+/// own uncertainty: 0.038 and 29.7).
+#[test]
+fn a_baseline_sensor_is_assessed_from_its_level_origin() {
+    let mut rng = Pcg64::seed_from_u64(20_261_206);
+    let mut data = CalibrationData::default();
+    let levels = [1.0, 3.0, 10.0, 30.0, 100.0, 300.0, 1000.0];
+    for &x in &levels {
+        for _ in 0..4 {
+            let signal = 2.0 * x;
+            let z: f64 = StandardNormal.sample(&mut rng);
+            data.reference.push(x);
+            data.raw.push(500.0 + signal + 0.02 * signal * z);
+        }
+    }
+    let flat = assess(&data, &AssessOptions::default()).unwrap();
+    let origin = assess(
+        &data,
+        &AssessOptions {
+            level_origin: 500.0,
+            ..AssessOptions::default()
+        },
+    )
+    .unwrap();
+    let spread = |a: &steadycal_cli::assess::Assessment| {
+        let rows = &a.inverse_prediction.rows;
+        let first = rows[0].expanded_uncertainty.unwrap();
+        let last = rows[rows.len() - 1].expanded_uncertainty.unwrap();
+        (first, last)
+    };
+    let (flat_low, flat_high) = spread(&flat);
+    let (low, high) = spread(&origin);
+    println!(
+        "origin 0: rung {}, headline {}, U {flat_low:.3} .. {flat_high:.3}; origin 500: rung {}, headline {}, U {low:.4} .. {high:.3}",
+        flat.recommended, flat.headline_fit, origin.recommended, origin.headline_fit
+    );
+    assert_eq!(origin.recommended, "log");
+    assert!(origin.weighting_preferred);
+    assert_eq!(origin.headline_fit, "wls");
+    // True k·σ(x)/b for one mean of m = 4 readings: 2·0.02·2x/(2·√4) = 0.02·x.
+    assert!(low < 0.2, "U at ref = 1: {low}");
+    assert!(high > 5.0 && high < 80.0, "U at ref = 1000: {high}");
+    assert!(high / low > 100.0);
+    assert!(flat_low > 5.0 * low, "origin 0 overstates U at the low end");
+}
