@@ -38,6 +38,54 @@ fn optional(value: Option<f64>) -> String {
     value.map_or("n/a".into(), significant)
 }
 
+/// Key–value rows of the weighting, the headline fit and the named limits (for the report
+/// page's summary table).
+pub fn metrology_rows(a: &Assessment) -> Vec<(String, String)> {
+    let mut rows = vec![("headline fit".to_string(), a.headline_fit.to_string())];
+    if let Some(wls) = &a.wls {
+        rows.push((
+            "weights".into(),
+            format!("{}: {}", wls.weights, wls.weights_formula),
+        ));
+        if let (Some(chi), Some(df), Some(p)) =
+            (wls.chi_squared, wls.chi_squared_df, wls.chi_squared_p)
+        {
+            rows.push((
+                "χ² (known uncertainties)".into(),
+                format!("{} on {df} df, p = {}", significant(chi), significant(p)),
+            ));
+        }
+    }
+    rows.push(("limits rule".into(), a.limits.rule.to_string()));
+    rows.push(("limits σ".into(), a.limits.sigma_basis.clone()));
+    if a.limits.lod_extrapolated {
+        rows.push((
+            "LOD".into(),
+            "below the lowest standard: an extrapolation of the calibration".into(),
+        ));
+    }
+    if let Some(din) = &a.limits.din32645 {
+        rows.push((
+            format!("DIN 32645 (α = β = {}, k = {})", din.alpha, number(din.k)),
+            format!(
+                "critical value {}, detection limit {}, quantification limit {}",
+                significant(din.critical_value),
+                significant(din.detection_limit),
+                significant(din.quantification_limit)
+            ),
+        ));
+    }
+    rows.push((
+        "coverage".into(),
+        format!(
+            "k = {} ({})",
+            number(a.inverse_prediction.coverage_factor),
+            a.inverse_prediction.coverage
+        ),
+    ));
+    rows
+}
+
 /// The level of the tests (the Box–Cox interval's complement; 0.05 without it).
 fn a_alpha(a: &Assessment) -> f64 {
     a.boxcox.as_ref().map_or(0.05, |b| 1.0 - b.confidence)

@@ -929,6 +929,7 @@ pub fn assess_report(
         rows.push(("Box–Cox λ".into(), short(b.lambda)));
     }
     rows.push(("Koenker p".into(), short(assessment.koenker.p_value)));
+    rows.extend(assess::render::metrology_rows(assessment));
     let inverse_rows: Vec<Vec<String>> = assessment
         .inverse_prediction
         .rows
