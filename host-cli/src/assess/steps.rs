@@ -617,3 +617,62 @@ pub(super) fn inverse_table(
             .collect(),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use proptest::prelude::*;
+
+    use super::super::{assess, AssessOptions, CalibrationData, WeightRule};
+
+    fn rule(index: u8, power: f64) -> WeightRule {
+        match index % 4 {
+            0 => WeightRule::Auto,
+            1 => WeightRule::None,
+            2 => WeightRule::Reference(power),
+            _ => WeightRule::Level(power),
+        }
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(64))]
+        /// Any run and any rule: an assessment or an error, never a panic; the advice never
+        /// pairs weighting with the identity rung; the headline is the weighted fit exactly
+        /// when a weighted fit exists and (auto) weighting is advised or the rule was chosen.
+        #[test]
+        fn any_run_and_rule_is_consistent(
+            rows in proptest::collection::vec((-5.0f64..1000.0, 0u8..8, -3.0f64..3.0), 3..40),
+            rule_index in 0u8..4,
+            power in -3.0f64..1.0,
+            origin in -10.0f64..10.0,
+            known in any::<bool>(),
+        ) {
+            let mut data = CalibrationData::default();
+            for (i, (x, replicate, noise)) in rows.iter().enumerate() {
+                let x = (x / 10.0).round() * 10.0 + f64::from(*replicate % 2);
+                data.reference.push(x);
+                data.raw.push(20.0 + 1.5 * x + noise * (1.0 + 0.05 * x.abs()) + i as f64 * 1e-3);
+            }
+            if known {
+                data.raw_uncertainty = Some(data.reference.iter().map(|x| 0.5 + 0.01 * x.abs()).collect());
+            }
+            let options = AssessOptions {
+                weights: if known { WeightRule::Auto } else { rule(rule_index, power) },
+                level_origin: origin,
+                ..AssessOptions::default()
+            };
+            if let Ok(a) = assess(&data, &options) {
+                if a.weighting_preferred {
+                    prop_assert_ne!(a.recommended, "identity");
+                }
+                let chosen = known || options.weights != WeightRule::Auto;
+                prop_assert_eq!(
+                    a.headline_fit == "wls",
+                    a.wls.is_some() && (chosen || a.weighting_preferred)
+                );
+                for row in &a.inverse_prediction.rows {
+                    prop_assert!(row.readings_averaged >= 1);
+                }
+            }
+        }
+    }
+}
