@@ -16,8 +16,7 @@ use steadycal_core::real::Real;
 use steadycal_core::record::{self, Frames, LogStart, Record, MAX_FRAME_LEN};
 use steadycal_core::sample::Sample;
 
-use crate::feed::FeedError;
-use crate::replay::ParsedRow;
+use crate::feed::{FeedError, ParsedRow};
 
 /// A byte range of a device log that holds no intact record: `[start, end)`.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]

@@ -283,6 +283,16 @@ fn fast_row<T: DecimalFloat>(bytes: &[u8], roles: &[Role]) -> Option<FastRow<T>>
     Some(row)
 }
 
+/// One parsed row: the sample or why it is bad, its line, and the bytes read so far.
+pub struct ParsedRow<R> {
+    /// The sample, or the error for this row.
+    pub next: std::result::Result<Sample<R>, FeedError>,
+    /// 1-based line of the row (for a device log: the record's number).
+    pub line: u64,
+    /// Bytes of input read so far.
+    pub bytes: u64,
+}
+
 /// Rows parsed in one go for the engine: samples in feed order with their lines, and the
 /// bad rows between them.
 #[derive(Debug)]

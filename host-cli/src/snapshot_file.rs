@@ -15,7 +15,10 @@ use steadycal_core::monitor::{Monitor, MonitorConfig};
 use steadycal_core::real::Real;
 use steadycal_core::snapshot::{Snapshot, SnapshotError, CRC_LEN, HEADER_LEN, MAGIC};
 
-use crate::replay::{alarms_json, number, Precision};
+use crate::io::create_output;
+use crate::number::number;
+use crate::precision::Precision;
+use crate::replay::sink::summary::alarms_json;
 
 /// A monitor restored from a snapshot file, in the float width the snapshot holds.
 pub enum Restored {
@@ -149,7 +152,7 @@ pub fn write<R: Real>(path: &Path, monitor: &mut Monitor<R>) -> Result<usize> {
             e.reason()
         )
     })?;
-    let mut out = crate::replay::create_output(path)?;
+    let mut out = create_output(path)?;
     out.write_all(&buffer[..len])
         .and_then(|_| out.flush())
         .with_context(|| format!("{}: cannot write", path.display()))?;

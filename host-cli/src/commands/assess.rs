@@ -8,7 +8,7 @@ use clap::Args;
 
 use super::ColumnArgs;
 use crate::assess::WeightRule;
-use crate::{commission, replay};
+use crate::{commission, io};
 
 /// Calibration mean of `assess`.
 #[derive(clap::ValueEnum, Clone, Copy, Debug)]
@@ -127,7 +127,7 @@ pub fn run(args: AssessArgs) -> anyhow::Result<ExitCode> {
         let verdicts = criteria.judge(&commission::figures(&data, &assessment));
         (criteria.source.as_deref(), verdicts)
     });
-    let mut out = replay::create_output(&args.out)?;
+    let mut out = io::create_output(&args.out)?;
     if args.json {
         let mut document = serde_json::to_value(&assessment)?;
         if let (Some((source, verdicts)), serde_json::Value::Object(map)) =

@@ -15,22 +15,19 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use super::{exit_alarms, exit_bad_input, reaches, resolve, ColumnArgs, FailOn, MonitorArgs};
-use crate::replay::{self, create_output, ReplayOptions};
+use crate::io::create_output;
+use crate::replay::{self, ReplayOptions};
 
 /// Arguments of `fleet`.
 #[derive(Args, Debug)]
-#[command(after_help = concat!(
+#[command(after_help = super::after_help(concat!(
     "Examples:\n",
     "  steadycal fleet simulated-feeds\n",
     "  steadycal fleet /data/site-7 --config site-7.toml --csv fleet.csv --json fleet.json\n",
     "  steadycal fleet logs --json - | jq '.[] | select(.alarms > 0) | .file'\n\n",
     "A channel's configuration is NAME.monitor.toml beside NAME.csv when present, else\n",
-    "--config, else the defaults.\n\n",
-    "Exit codes:\n",
-    "  0  every feed replayed (and nothing reached the --fail-on level, when given)\n",
-    "  1  an event at or above the --fail-on level was raised on some channel\n",
-    "  2  bad input or usage (a feed or config could not be read, bad arguments)"
-))]
+    "--config, else the defaults.",
+)))]
 pub struct FleetArgs {
     /// Directory of feeds (`*.csv`).
     pub dir: PathBuf,

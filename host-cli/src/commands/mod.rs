@@ -4,10 +4,12 @@
 //! returns the process exit code; `main.rs` only dispatches. Arguments are parsed raw by
 //! clap, then resolved here into ready-to-use options (config file + overrides).
 //!
-//! # Exit codes (the contract, also in `--help` and the README)
-//! - 0: the run completed (and no event reached the `--fail-on` level, when given),
-//! - 1: the run completed and an event of the `--fail-on` level or above was raised,
-//! - 2: bad input or usage: unreadable or malformed feed, bad config, bad arguments.
+//! # Exit codes (the contract, in every `--help` through [`EXIT_CODES`] and in the README)
+//! - 0: the run completed (and no event reached the `--fail-on` level, no acceptance
+//!   criterion failed),
+//! - 1: the run completed and an event of the `--fail-on` level or above was raised, or an
+//!   acceptance criterion failed,
+//! - 2: bad input or usage: unreadable or malformed input, bad config file, bad arguments.
 
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -18,9 +20,10 @@ use steadycal_core::monitor::MonitorConfig;
 
 use crate::config::ConfigFile;
 use crate::feed::ColumnNames;
-use crate::replay::Precision;
+use crate::precision::Precision;
 
 pub mod assess;
+mod choices;
 pub mod fleet;
 pub mod replay;
 pub mod report;
@@ -28,12 +31,18 @@ pub mod simulate;
 pub mod snapshot;
 pub mod watch;
 
-/// The exit-code contract, shown at the end of `--help`.
+/// The exit-code contract, shown at the end of every `--help` (through [`after_help`]).
 pub const EXIT_CODES: &str = "\
 Exit codes:
-  0  the run completed (and nothing reached the --fail-on level, when given)
-  1  the run completed and an event at or above the --fail-on level was raised
-  2  bad input or usage (unreadable or malformed feed, bad config file, bad arguments)";
+  0  the run completed (nothing reached the --fail-on level, no acceptance criterion failed)
+  1  the run completed and an event at or above the --fail-on level was raised, or an
+     acceptance criterion of the configuration failed
+  2  bad input or usage (unreadable or malformed input or snapshot, bad config, bad arguments)";
+
+/// A subcommand's closing help: its own `text` (examples, notes), then [`EXIT_CODES`].
+pub fn after_help(text: &str) -> String {
+    format!("{text}\n\n{EXIT_CODES}")
+}
 
 /// Exit code 1: alarms raised at the `--fail-on` level.
 pub fn exit_alarms() -> ExitCode {

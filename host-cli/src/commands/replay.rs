@@ -13,19 +13,15 @@ use crate::replay::{self, InputFormat, PersistOptions, ReplayOptions};
 
 /// Arguments of `replay`.
 #[derive(Args, Debug)]
-#[command(after_help = concat!(
+#[command(after_help = super::after_help(concat!(
     "Examples:\n",
     "  steadycal replay simulated-feeds/gas-cell.csv --events events.jsonl --summary summary.json\n",
     "  steadycal replay feed.csv --config monitor.toml --readings readings.csv --fail-on warn\n",
     "  cat feed.csv | steadycal replay - --summary - | jq .rung\n",
     "  steadycal replay logger.csv --raw-column counts --ref-column cal_gas --skip-bad-rows\n",
     "  steadycal replay first.csv --save-snapshot state.bin && steadycal replay rest.csv --resume state.bin\n",
-    "  steadycal replay board.log --summary summary.json   (a device log, detected by content)\n\n",
-    "Exit codes:\n",
-    "  0  the run completed (and nothing reached the --fail-on level, when given)\n",
-    "  1  the run completed and an event at or above the --fail-on level was raised\n",
-    "  2  bad input or usage (unreadable or malformed feed, bad config file, bad arguments)"
-))]
+    "  steadycal replay board.log --summary summary.json   (a device log, detected by content)",
+)))]
 pub struct ReplayArgs {
     /// Feed to replay: CSV with a header naming `raw` and optionally `t` (seconds or RFC
     /// 3339), `ref`, `temp` (`-` = stdin).

@@ -8,23 +8,20 @@ use anyhow::{Context, Result};
 use clap::Args;
 
 use super::{resolve, ColumnArgs, MonitorArgs};
-use crate::replay::Precision;
+use crate::precision::Precision;
 use crate::report::model::{self, RunConfig, RunFiles};
 
 /// Arguments of `report`.
 #[derive(Args, Debug)]
-#[command(after_help = concat!(
+#[command(after_help = super::after_help(concat!(
     "A run directory holds summary.json, events.jsonl, checks.csv and optionally monitor.toml;\n",
     "a summary path NAME.summary.json finds NAME.events.jsonl, NAME.checks.csv and\n",
     "NAME.monitor.toml beside it. Write them with\n",
     "  steadycal replay FEED --summary run/summary.json --events run/events.jsonl --checks run/checks.csv\n\n",
     "Examples:\n",
     "  steadycal report run/ --out report.html\n",
-    "  steadycal report gas.summary.json --config gas.monitor.toml --out gas.html\n\n",
-    "Exit codes:\n",
-    "  0  the report was written\n",
-    "  2  bad input or usage (missing or malformed run files, bad config file, bad arguments)"
-))]
+    "  steadycal report gas.summary.json --config gas.monitor.toml --out gas.html",
+)))]
 pub struct ReportArgs {
     /// A run directory, or the path of a run's summary JSON.
     pub run: PathBuf,

@@ -7,20 +7,17 @@ use std::process::ExitCode;
 use anyhow::Context;
 use clap::Args;
 
-use crate::replay::create_output;
+use crate::io::create_output;
 use crate::simulate::{write_feed, Scenario};
 
 /// Arguments of `simulate`.
 #[derive(Args, Debug)]
-#[command(after_help = concat!(
+#[command(after_help = super::after_help(concat!(
     "Examples:\n",
     "  steadycal simulate simulated-feeds/gas-cell.toml --out gas-cell.csv --truth gas-cell.truth.json\n",
     "  steadycal simulate simulated-feeds/gas-cell.toml --rows 10000000 --out big.csv\n",
-    "  steadycal simulate scenario.toml | steadycal replay - --summary -\n\n",
-    "Exit codes:\n",
-    "  0  the feed was written\n",
-    "  2  bad input or usage (bad scenario file, bad arguments)"
-))]
+    "  steadycal simulate scenario.toml | steadycal replay - --summary -",
+)))]
 pub struct SimulateArgs {
     /// Scenario file (TOML; see simulated-feeds/README.md for the keys).
     pub scenario: PathBuf,

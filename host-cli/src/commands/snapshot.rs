@@ -10,16 +10,13 @@ use crate::snapshot_file;
 
 /// Arguments of `snapshot`.
 #[derive(Args, Debug)]
-#[command(after_help = concat!(
+#[command(after_help = super::after_help(concat!(
     "Examples:\n",
     "  steadycal replay feed.csv --save-snapshot state.bin\n",
     "  steadycal snapshot inspect state.bin\n",
     "  steadycal snapshot inspect state.bin --json | jq .rung\n",
-    "  steadycal snapshot verify state.bin && steadycal replay more.csv --resume state.bin\n\n",
-    "Exit codes:\n",
-    "  0  the snapshot is good (header, CRC and contents check)\n",
-    "  2  it is not (the reason and byte offset are printed), or it cannot be read"
-))]
+    "  steadycal snapshot verify state.bin && steadycal replay more.csv --resume state.bin",
+)))]
 pub struct SnapshotArgs {
     /// What to do with the snapshot.
     #[command(subcommand)]

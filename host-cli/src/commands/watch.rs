@@ -26,12 +26,16 @@ use super::{
     MonitorArgs, Resolved,
 };
 use crate::feed::{CsvFeed, FeedError};
-use crate::replay::{create_output, event_json, Engine, Precision, TimeStep};
+use crate::io::create_output;
+use crate::precision::Precision;
+use crate::replay::engine::Engine;
+use crate::replay::sink::events::event_json;
+use crate::replay::time_order::TimeStep;
 use crate::terminal::{colour_enabled, paint, stderr_is_terminal, stdout_is_terminal, Colour};
 
 /// Arguments of `watch`.
 #[derive(Args, Debug)]
-#[command(after_help = concat!(
+#[command(after_help = super::after_help(concat!(
     "Examples:\n",
     "  stty -F /dev/ttyUSB0 115200 raw && steadycal watch /dev/ttyUSB0 --config monitor.toml\n",
     "  tail -f -n +1 logger.csv | steadycal watch - --summary summary.json\n",
@@ -39,12 +43,8 @@ use crate::terminal::{colour_enabled, paint, stderr_is_terminal, stdout_is_termi
     "Events go to standard output as they happen: JSON lines when it is not a terminal (or\n",
     "with --json), one readable line each on a terminal. The status line is drawn on\n",
     "standard error when it is a terminal. Ctrl-C or end of input stops the watch and\n",
-    "writes the summary.\n\n",
-    "Exit codes:\n",
-    "  0  the stream ended (or Ctrl-C) and nothing reached the --fail-on level\n",
-    "  1  an event at or above the --fail-on level was raised\n",
-    "  2  bad input or usage (unreadable stream, malformed row, bad config, bad arguments)"
-))]
+    "writes the summary.",
+)))]
 pub struct WatchArgs {
     /// The stream: a CSV with a header line, as in `replay` (`-` = stdin, the default).
     #[arg(default_value = "-")]

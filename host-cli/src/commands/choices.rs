@@ -1,0 +1,61 @@
+//! The library's fixed-choice option types as command-line values: their names and help
+//! lines, so the library types carry no command-line code.
+
+use clap::builder::PossibleValue;
+use clap::ValueEnum;
+
+use crate::precision::Precision;
+use crate::replay::InputFormat;
+
+impl ValueEnum for Precision {
+    fn value_variants<'a>() -> &'a [Self] {
+        &[Precision::F32, Precision::F64]
+    }
+
+    fn to_possible_value(&self) -> Option<PossibleValue> {
+        Some(match self {
+            Precision::F32 => {
+                PossibleValue::new("f32").help("Single precision, as on a Cortex-M4F board")
+            }
+            Precision::F64 => PossibleValue::new("f64").help("Double precision"),
+        })
+    }
+}
+
+impl ValueEnum for InputFormat {
+    fn value_variants<'a>() -> &'a [Self] {
+        &[InputFormat::Auto, InputFormat::Csv, InputFormat::DeviceLog]
+    }
+
+    fn to_possible_value(&self) -> Option<PossibleValue> {
+        Some(match self {
+            InputFormat::Auto => PossibleValue::new("auto").help(
+                "Decide by content: a device log starts with a 0x00 byte, a CSV feed never does",
+            ),
+            InputFormat::Csv => PossibleValue::new("csv").help("CSV with a header"),
+            InputFormat::DeviceLog => PossibleValue::new("device-log")
+                .help("A device log (COBS-framed postcard records, see `steadycal_core::record`)"),
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn names_match_the_summary_names() {
+        for precision in Precision::value_variants() {
+            let name = precision
+                .to_possible_value()
+                .unwrap()
+                .get_name()
+                .to_string();
+            assert_eq!(serde_json::json!(precision), serde_json::json!(name));
+        }
+        for format in InputFormat::value_variants() {
+            let name = format.to_possible_value().unwrap().get_name().to_string();
+            assert_eq!(serde_json::json!(format), serde_json::json!(name));
+        }
+    }
+}

@@ -1,0 +1,342 @@
+//! A replay under way ([`Run`]): the engine, every output, and the bookkeeping of the rows
+//! seen (bad rows skipped or stopping the run, time-order warnings, the progress bar). Each
+//! input (CSV rows, device-log records) drives it row by row; [`Run::finish`] flushes the
+//! outputs, saves the snapshot and writes the summary.
+
+use std::fmt::Display;
+
+use anyhow::Result;
+use serde::Serialize;
+use serde_json::{json, Map, Value};
+use steadycal_core::event::Severity;
+use steadycal_core::monitor::MonitorConfig;
+use steadycal_core::real::Real;
+use steadycal_core::record::Record;
+use steadycal_core::sample::Sample;
+
+use crate::baseline::BaselineOrigin;
+use crate::device_log::DeviceLogWriter;
+use crate::feed::{FeedError, ParsedRow};
+use crate::io::create_output;
+use crate::replay::engine::Engine;
+use crate::replay::options::ReplayOptions;
+use crate::replay::progress::progress_bar;
+use crate::replay::sink::checks::ChecksSink;
+use crate::replay::sink::events::EventsSink;
+use crate::replay::sink::readings::ReadingsSink;
+use crate::replay::sink::summary::write_summary;
+use crate::replay::time_order::{TimeStep, LIST_LIMIT};
+use crate::snapshot_file;
+
+/// The outcome of a replay.
+#[derive(Debug)]
+pub struct ReplayResult {
+    /// The summary document.
+    pub summary: Value,
+    /// The feed error that stopped the run, if any (outputs up to it are written).
+    pub error: Option<FeedError>,
+    /// Events raised, by severity: `[info, warn, alarm]` (see [`crate::replay::engine::event_severity`]).
+    pub raised: [u64; 3],
+}
+
+impl ReplayResult {
+    /// True when at least one event of `level` or above was raised.
+    pub fn raised_at_least(&self, level: Severity) -> bool {
+        self.raised[level as usize..].iter().any(|&n| n > 0)
+    }
+}
+
+/// A row skipped by `--skip-bad-rows`.
+#[derive(Clone, Debug, Serialize)]
+pub struct SkippedRow {
+    /// 1-based line.
+    pub line: u64,
+    /// Why it was skipped.
+    pub error: String,
+}
+
+/// The engine at the start of a replay: fresh, or resumed from the options' snapshot (whose
+/// configuration must match an explicitly given one).
+pub fn start_engine<R: Real + Display>(options: &ReplayOptions) -> Result<Engine<R>> {
+    let Some(path) = &options.persist.resume else {
+        return Engine::<R>::new(&options.config, options.baseline.as_ref());
+    };
+    let monitor = snapshot_file::restore_as::<R>(path)?;
+    let origin = BaselineOrigin::resumed(&monitor, options.baseline.as_ref());
+    if options.persist.config_explicit {
+        let wanted: MonitorConfig<R> = options.config.convert();
+        if wanted != *monitor.config() {
+            let keys = snapshot_file::config_differences(&wanted, monitor.config());
+            anyhow::bail!(
+                "{}: the snapshot's monitor configuration differs from the one given on the command line (--config/--level-low/--level-high) in: {}; leave those options out to resume with the snapshot's own configuration",
+                path.display(),
+                keys.join(", ")
+            );
+        }
+    }
+    let mut engine = Engine::with_monitor(monitor);
+    engine.baseline = origin;
+    Ok(engine)
+}
+
+/// A replay under way: the engine, the outputs and the bookkeeping of the rows seen.
+pub(crate) struct Run<'a, R: Real> {
+    file: &'a str,
+    options: &'a ReplayOptions,
+    device_log: bool,
+    engine: Engine<R>,
+    seq_offset: u64,
+    log_out: Option<DeviceLogWriter<R>>,
+    events_out: Option<EventsSink>,
+    readings_out: Option<ReadingsSink>,
+    checks_out: Option<ChecksSink>,
+    bar: Option<indicatif::ProgressBar>,
+    error: Option<FeedError>,
+    skipped: Vec<SkippedRow>,
+    skipped_count: u64,
+    rows: u64,
+}
+
+impl<'a, R: Real + Display> Run<'a, R> {
+    pub(crate) fn start(
+        file: &'a str,
+        options: &'a ReplayOptions,
+        device_log: bool,
+    ) -> Result<Self> {
+        let engine = start_engine::<R>(options)?;
+        // A resumed CSV replay numbers its rows on from the samples the snapshot counted,
+        // so that two halves number their events like one whole run.
+        let seq_offset = if !device_log && options.persist.resume.is_some() {
+            engine.monitor.counters().samples
+        } else {
+            0
+        };
+        let log_out = options
+            .persist
+            .device_log_out
+            .as_deref()
+            .map(|path| create_output(path).and_then(|out| Ok(DeviceLogWriter::<R>::new(out)?)))
+            .transpose()?;
+        let events_out = options
+            .events
+            .as_deref()
+            .map(EventsSink::create)
+            .transpose()?;
+        let readings_out = options
+            .readings
+            .as_deref()
+            .map(ReadingsSink::create)
+            .transpose()?;
+        let checks_out = options
+            .checks
+            .as_deref()
+            .map(ChecksSink::create)
+            .transpose()?;
+        Ok(Run {
+            file,
+            options,
+            device_log,
+            engine,
+            seq_offset,
+            log_out,
+            events_out,
+            readings_out,
+            checks_out,
+            bar: progress_bar(options),
+            error: None,
+            skipped: Vec::new(),
+            skipped_count: 0,
+            rows: 0,
+        })
+    }
+
+    /// Moves the progress bar to `bytes` read.
+    pub(crate) fn progress(&self, bytes: u64) {
+        if let Some(bar) = &self.bar {
+            bar.set_position(bytes);
+        }
+    }
+
+    /// One row, good or bad; false when the run stops here.
+    pub(crate) fn row(&mut self, row: ParsedRow<R>) -> Result<bool> {
+        if (self.rows + 1).is_multiple_of(65_536) {
+            self.progress(row.bytes);
+        }
+        match row.next {
+            Ok(sample) => {
+                self.good(sample, row.line)?;
+                Ok(true)
+            }
+            Err(error) => Ok(self.bad(error)),
+        }
+    }
+
+    /// A bad row: skipped and listed with `--skip-bad-rows` (when it is about one line),
+    /// otherwise the error that stops the run. False when the run stops.
+    pub(crate) fn bad(&mut self, feed_error: FeedError) -> bool {
+        self.rows += 1;
+        if self.options.skip_bad_rows && feed_error.line().is_some() {
+            if self.options.warnings && self.skipped_count == 0 {
+                eprintln!("steadycal: warning: skipping bad row: {feed_error} (every skipped line is listed in the summary)");
+            }
+            self.skipped_count += 1;
+            if self.skipped.len() < LIST_LIMIT {
+                self.skipped.push(SkippedRow {
+                    line: feed_error.line().unwrap_or(0),
+                    error: feed_error.to_string(),
+                });
+            }
+            return true;
+        }
+        self.error = Some(feed_error);
+        false
+    }
+
+    /// A good row, on `line`: time order, the core, and every output.
+    #[inline]
+    pub(crate) fn good(&mut self, mut sample: Sample<R>, line: u64) -> Result<()> {
+        self.rows += 1;
+        sample.seq += self.seq_offset;
+        // `seq` stays the 0-based data-row index, skipped rows included, so an event points
+        // at its line (line = seq + 2 for a one-line header).
+        let engine = &mut self.engine;
+        let step = engine.time_order.check(sample.t, line);
+        if step != TimeStep::Forward && self.options.warnings {
+            let order = &engine.time_order;
+            if (step == TimeStep::Repeated && order.repeated == 1)
+                || (step == TimeStep::Backwards && order.backwards == 1)
+            {
+                let what = if step == TimeStep::Repeated {
+                    "repeats the previous row's time"
+                } else {
+                    "is before the previous row's time"
+                };
+                eprintln!(
+                    "steadycal: warning: {}:{line}: time {} {what}; every such row is counted in the summary (`time_order`)",
+                    self.file, sample.t
+                );
+            }
+        }
+        let t = sample.t;
+        let before = match self.checks_out {
+            Some(_) => ChecksSink::before(&engine.monitor, &sample),
+            None => None,
+        };
+        if let Some(log) = self.log_out.as_mut() {
+            log.write(&Record::Sample(sample))?;
+        }
+        let log_out = &mut self.log_out;
+        let events_out = &mut self.events_out;
+        let outcome = engine.push(&sample, |event| {
+            if let Some(log) = log_out.as_mut() {
+                log.write(&Record::Event(*event))?;
+            }
+            match events_out.as_mut() {
+                Some(out) => out.write(event, t),
+                None => Ok(()),
+            }
+        })?;
+        if let Some(out) = self.readings_out.as_mut() {
+            out.write(&sample, &outcome, engine.monitor.rung())?;
+        }
+        if let (Some(out), Some(before)) = (self.checks_out.as_mut(), before) {
+            out.write(&engine.monitor, &sample, &before, &outcome)?;
+        }
+        Ok(())
+    }
+
+    /// Flushes the outputs, saves the snapshot and writes the summary; `extra` adds the
+    /// input's own summary entries.
+    pub(crate) fn finish(
+        self,
+        extra: impl FnOnce(&mut Map<String, Value>),
+    ) -> Result<ReplayResult> {
+        let Run {
+            file,
+            options,
+            device_log,
+            mut engine,
+            log_out,
+            events_out,
+            readings_out,
+            checks_out,
+            bar,
+            mut error,
+            skipped,
+            skipped_count,
+            rows,
+            ..
+        } = self;
+        if let Some(bar) = bar {
+            bar.finish_and_clear();
+        }
+        if rows == 0 && error.is_none() {
+            error = Some(if device_log {
+                FeedError::NoRecords {
+                    file: file.to_string(),
+                }
+            } else {
+                FeedError::NoRows {
+                    file: file.to_string(),
+                }
+            });
+        }
+        if let Some(out) = events_out {
+            out.finish()?;
+        }
+        if let Some(out) = readings_out {
+            out.finish()?;
+        }
+        if let Some(out) = checks_out {
+            out.finish()?;
+        }
+        if let Some(mut log) = log_out {
+            log.flush()?;
+        }
+        // The state after the last good row is saved even when a bad row stopped the run.
+        let snapshot_bytes = match &options.persist.save_snapshot {
+            Some(path) => Some(snapshot_file::write(path, &mut engine.monitor)?),
+            None => None,
+        };
+        let mut summary = engine.summary(file, options.precision, error.as_ref());
+        if let Value::Object(map) = &mut summary {
+            map.insert("rows_skipped".into(), json!(skipped_count));
+            map.insert("skipped_rows".into(), json!(skipped));
+            map.insert(
+                "resumed_from".into(),
+                json!(options
+                    .persist
+                    .resume
+                    .as_ref()
+                    .map(|p| p.display().to_string())),
+            );
+            map.insert(
+                "snapshot".into(),
+                match (&options.persist.save_snapshot, snapshot_bytes) {
+                    (Some(path), Some(bytes)) => {
+                        json!({"file": path.display().to_string(), "bytes": bytes})
+                    }
+                    _ => Value::Null,
+                },
+            );
+            extra(map);
+        }
+        if options.warnings {
+            let order = &engine.time_order;
+            if order.repeated + order.backwards > 0 {
+                eprintln!(
+                    "steadycal: warning: {file}: {} rows repeat the previous time, {} go backwards",
+                    order.repeated, order.backwards
+                );
+            }
+        }
+        if let Some(path) = &options.summary {
+            write_summary(path, &summary)?;
+        }
+        Ok(ReplayResult {
+            summary,
+            error,
+            raised: engine.raised,
+        })
+    }
+}
