@@ -28,7 +28,7 @@ fn mean(x: f64) -> f64 {
     TRUE_OFFSET + TRUE_GAIN * x
 }
 
-fn cell_coverage(cell: &Cell, seed: u64) -> (f64, usize, usize) {
+fn cell_coverage(cell: &Cell, seed: u64) -> (f64, usize, usize, usize) {
     let mut rng = Pcg64::seed_from_u64(seed);
     let mut normal = move || -> f64 { StandardNormal.sample(&mut rng) };
     let lowest = cell.levels[0];
@@ -36,7 +36,8 @@ fn cell_coverage(cell: &Cell, seed: u64) -> (f64, usize, usize) {
     let targets: Vec<f64> = (1..=5)
         .map(|i| lowest + (highest - lowest) * i as f64 / 6.0)
         .collect();
-    let (mut covered, mut trials, mut weighted) = (0usize, 0usize, 0usize);
+    let (mut covered, mut trials, mut weighted, mut kept_identity) =
+        (0usize, 0usize, 0usize, 0usize);
     for _ in 0..RUNS {
         let mut data = CalibrationData::default();
         for &x in cell.levels {
@@ -75,6 +76,8 @@ fn cell_coverage(cell: &Cell, seed: u64) -> (f64, usize, usize) {
                 a.weighting_preferred,
                 b.constant_scatter_rejected && a.recommended != "identity"
             );
+            kept_identity +=
+                usize::from(b.constant_scatter_rejected && a.recommended == "identity");
         }
         weighted += usize::from(a.headline_fit == "wls");
         for (row, &x) in a.inverse_prediction.rows.iter().zip(&targets) {
@@ -86,7 +89,12 @@ fn cell_coverage(cell: &Cell, seed: u64) -> (f64, usize, usize) {
             }
         }
     }
-    (covered as f64 / trials as f64, trials, weighted)
+    (
+        covered as f64 / trials as f64,
+        trials,
+        weighted,
+        kept_identity,
+    )
 }
 
 #[test]
@@ -117,9 +125,11 @@ fn expanded_uncertainty_covers_about_95_percent_and_advice_is_consistent() {
     ];
     let mut failures = Vec::new();
     for (i, cell) in cells.iter().enumerate() {
-        let (coverage, trials, weighted) = cell_coverage(cell, 20_261_205 + i as u64);
+        let (coverage, trials, weighted, kept_identity) =
+            cell_coverage(cell, 20_261_205 + i as u64);
         println!(
-            "{}: coverage {coverage:.4} of {trials} trials; headline WLS in {weighted} of {RUNS} runs",
+            "{}: coverage {coverage:.4} of {trials} trials; headline WLS in {weighted} of {RUNS} runs; \
+             constant scatter rejected with lambda nearest identity (no weighting advised) in {kept_identity}",
             cell.name
         );
         if !(0.93..=0.97).contains(&coverage) {
