@@ -26,7 +26,7 @@ enum Command {
     /// Run a recorded feed through the monitor exactly as a board would.
     ///
     /// Example: steadycal replay simulated-feeds/gas-cell.csv --events events.jsonl --summary summary.json
-    Replay(replay::ReplayArgs),
+    Replay(Box<replay::ReplayArgs>),
     /// Write a seeded, reproducible synthetic feed from a scenario file (TOML).
     ///
     /// Example: steadycal simulate simulated-feeds/gas-cell.toml --out gas-cell.csv --truth gas-cell.truth.json
@@ -63,7 +63,7 @@ fn main() -> ExitCode {
         }
     };
     let result = match cli.command {
-        Command::Replay(args) => replay::run(args),
+        Command::Replay(args) => replay::run(*args),
         Command::Simulate(args) => simulate::run(args),
         Command::Assess(args) => assess::run(args),
         Command::Watch(args) => watch::run(args),
@@ -73,6 +73,7 @@ fn main() -> ExitCode {
     };
     match result {
         Ok(code) => code,
+        Err(error) if commands::is_broken_pipe(&error) => commands::exit_broken_pipe(),
         Err(error) => {
             eprintln!("steadycal: {error:#}");
             commands::exit_bad_input()

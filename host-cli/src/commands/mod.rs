@@ -24,6 +24,8 @@ use crate::precision::Precision;
 
 pub mod assess;
 mod choices;
+pub mod field;
+pub mod field_replay;
 pub mod fleet;
 pub mod replay;
 pub mod report;
@@ -52,6 +54,22 @@ pub fn exit_alarms() -> ExitCode {
 /// Exit code 2: bad input or usage.
 pub fn exit_bad_input() -> ExitCode {
     ExitCode::from(2)
+}
+
+/// True when the error is a write to a closed pipe (a reader such as `head` stopped
+/// reading): the run then ends quietly.
+pub fn is_broken_pipe(error: &anyhow::Error) -> bool {
+    error.chain().any(|cause| {
+        cause
+            .downcast_ref::<std::io::Error>()
+            .is_some_and(|e| e.kind() == std::io::ErrorKind::BrokenPipe)
+    })
+}
+
+/// The status of a process ended by a closed pipe: 128 + SIGPIPE (13), as POSIX shells
+/// report it (common practice, no source).
+pub fn exit_broken_pipe() -> ExitCode {
+    ExitCode::from(141)
 }
 
 /// The levels `--fail-on` accepts.

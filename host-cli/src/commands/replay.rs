@@ -72,6 +72,10 @@ pub struct ReplayArgs {
     pub columns: ColumnArgs,
     #[command(flatten)]
     pub chatter: ChatterArgs,
+    #[command(flatten)]
+    pub field: super::field::FieldArgs,
+    #[command(flatten)]
+    pub reference: super::field::ReferenceArgs,
 }
 
 impl ReplayArgs {
@@ -102,9 +106,42 @@ impl ReplayArgs {
     }
 }
 
+/// The configuration file's `columns.missing`.
+fn config_missing(args: &ReplayArgs) -> anyhow::Result<Vec<String>> {
+    Ok(match &args.monitor.config {
+        Some(path) => crate::config::ConfigFile::read(path)?
+            .columns
+            .missing
+            .unwrap_or_default(),
+        None => Vec::new(),
+    })
+}
+
 /// Runs `replay`.
 pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
     let mut options = args.options()?;
+    let missing = config_missing(&args)?;
+    if super::field::FieldPlan::wanted(&args.field, &args.reference, &args.columns, &missing) {
+        let time_given = args.columns.time_column.is_some()
+            || args
+                .monitor
+                .config
+                .as_deref()
+                .map(crate::config::ConfigFile::read)
+                .transpose()?
+                .is_some_and(|f| f.columns.time.is_some());
+        let plan = super::field::FieldPlan::new(
+            &args.field,
+            &args.reference,
+            &options.columns,
+            time_given,
+            &missing,
+        )?;
+        if args.report.is_some() {
+            let _ = super::report::SideFiles::prepare(&mut options)?;
+        }
+        return super::field_replay::run(&args, options, plan);
+    }
     let side = match &args.report {
         Some(_) => Some(super::report::SideFiles::prepare(&mut options)?),
         None => None,
@@ -113,6 +150,19 @@ pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
     if let (Some(side), Some(path)) = (&side, &args.report) {
         side.write_report(&options, &args.monitor, path)?;
     }
+    finish(&args, &options, result, false)
+}
+
+/// What every replay does after the run: reports a feed error (exit 2), prints the human
+/// summary, applies `--fail-on`; `strict_failed` (a suspected undeclared missing marker
+/// under `--strict`) gives exit 2 after everything was written.
+pub fn finish(
+    args: &ReplayArgs,
+    options: &ReplayOptions,
+    result: replay::ReplayResult,
+    strict_failed: bool,
+) -> anyhow::Result<ExitCode> {
+    let _ = options;
     if let Some(error) = result.error {
         eprintln!("steadycal: {error}");
         eprintln!("steadycal: outputs up to the previous row were written");
@@ -123,6 +173,10 @@ pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
             "{}",
             human_summary(&result.summary, crate::terminal::colour_enabled())
         );
+    }
+    if strict_failed {
+        eprintln!("steadycal: --strict: values that look like undeclared missing markers were found (listed in the summary's `suspected_missing_markers`); declare them with --missing");
+        return Ok(exit_bad_input());
     }
     if reaches(&result.raised, args.fail_on) {
         return Ok(exit_alarms());

@@ -157,6 +157,11 @@ where
         &self.tally
     }
 
+    /// The two inputs.
+    pub fn parts(&self) -> (&S, &F) {
+        (&self.sensor, &self.reference)
+    }
+
     /// Moves to the next usable reference row; errors go to the output in order.
     fn advance_reference(&mut self) {
         self.next_reference = None;

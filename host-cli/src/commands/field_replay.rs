@@ -1,0 +1,222 @@
+//! `replay` on field logs: the working range from the data when nothing sets it (a first
+//! pass over the checks), the run through the replay engine, the field summary entries,
+//! the warnings, `--save-config` and `--strict`.
+
+use std::io::Write;
+use std::process::ExitCode;
+
+use anyhow::Result;
+use serde_json::Value;
+
+use super::field::{range_source, save_config, summary_entries, FieldPlan};
+use super::replay::ReplayArgs;
+use crate::feed::FeedFloat;
+use crate::field::rows::{FieldSample, FieldTally, JoinedSamples, LogSamples};
+use crate::replay::{self, ParsedRow, Precision, ReplayOptions, ReplayResult};
+
+/// Share of checks outside the working range above which the run warns (the rule
+/// of thumb; common practice, no source).
+pub const OUTSIDE_SHARE: f64 = 0.05;
+/// Quantiles of the checks' raw values that set a range from the data (robust ends: one
+/// check in a hundred may lie outside at each end; common practice, no source).
+pub const RANGE_QUANTILES: (f64, f64) = (0.01, 0.99);
+/// Largest systematic sample of check values kept for those quantiles.
+const RANGE_SAMPLE: usize = 8192;
+
+/// Samples of a field run, one log or two joined.
+enum Samples<R: FeedFloat> {
+    One(Box<LogSamples<R>>),
+    Two(Box<JoinedSamples<R>>),
+}
+
+impl<R: FeedFloat> Samples<R> {
+    fn open(plan: &FieldPlan, options: &ReplayOptions, names: [&str; 3]) -> Result<Self> {
+        let (sensor, reference) = plan.open(&options.feed)?;
+        let c = &options.config;
+        let range = Some((c.level_origin + c.level_low, c.level_origin + c.level_high));
+        let tally = FieldTally::new(names, range);
+        Ok(match (reference, &plan.reference) {
+            (Some(reference), Some((_, _, offset, pairing))) => Samples::Two(Box::new(
+                JoinedSamples::new(sensor, reference, *offset, *pairing, tally),
+            )),
+            _ => Samples::One(Box::new(LogSamples::new(sensor, tally))),
+        })
+    }
+
+    fn tally(&self) -> &FieldTally {
+        match self {
+            Samples::One(s) => &s.tally,
+            Samples::Two(s) => &s.tally,
+        }
+    }
+}
+
+impl<R: FeedFloat> Iterator for Samples<R> {
+    type Item = FieldSample<R>;
+    fn next(&mut self) -> Option<FieldSample<R>> {
+        match self {
+            Samples::One(s) => s.next(),
+            Samples::Two(s) => s.next(),
+        }
+    }
+}
+
+/// Robust ends of the checks' raw values (first pass), as a working range above the
+/// origin (the raw value stands for the fitted level, which it estimates without the
+/// warm-up a fit needs); `None` when there are too few checks or the ends do not make a
+/// range.
+fn range_from_data<R: FeedFloat>(
+    plan: &FieldPlan,
+    options: &ReplayOptions,
+    names: [&str; 3],
+) -> Result<Option<(f64, f64)>> {
+    let mut samples = Samples::<R>::open(plan, options, names)?;
+    let (mut kept, mut stride, mut seen) = (Vec::new(), 1u64, 0u64);
+    for sample in samples.by_ref() {
+        let Ok(sample) = sample.next else { continue };
+        if sample.reference.is_none() || !sample.raw.to_f64().is_finite() {
+            continue;
+        }
+        if seen.is_multiple_of(stride) {
+            if kept.len() == RANGE_SAMPLE {
+                kept = kept.iter().copied().step_by(2).collect();
+                stride *= 2;
+            }
+            if seen.is_multiple_of(stride) {
+                kept.push(sample.raw.to_f64());
+            }
+        }
+        seen += 1;
+    }
+    if kept.len() < 20 {
+        return Ok(None);
+    }
+    kept.sort_by(f64::total_cmp);
+    let at = |p: f64| kept[((p * kept.len() as f64).ceil() as usize).clamp(1, kept.len()) - 1];
+    let origin = options.config.level_origin;
+    let (low, high) = (
+        at(RANGE_QUANTILES.0) - origin,
+        at(RANGE_QUANTILES.1) - origin,
+    );
+    if !(low > 0.0 && high > low && high.is_finite()) {
+        return Ok(None);
+    }
+    Ok(Some((low, high)))
+}
+
+fn run_typed<R: FeedFloat + std::fmt::Display>(
+    plan: &FieldPlan,
+    options: &ReplayOptions,
+    names: [&str; 3],
+) -> Result<(ReplayResult, FieldTally)> {
+    let mut samples = Samples::<R>::open(plan, options, names)?;
+    let file = options.feed.display().to_string();
+    let rows = samples.by_ref().map(|s| ParsedRow {
+        next: s.next,
+        line: s.line,
+        bytes: s.bytes,
+    });
+    let result = replay::replay_rows::<R>(rows, &file, options)?;
+    // Drain what the engine left (a bad row stops it): the counts cover what was read.
+    Ok((result, samples.tally().clone()))
+}
+
+/// Runs `replay` on field logs; the summary is written here, with the field entries.
+pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Result<ExitCode> {
+    let config_has_range = match &args.monitor.config {
+        Some(path) => {
+            let file = crate::config::ConfigFile::read(path)?;
+            file.range.low.is_some() || file.range.high.is_some()
+        }
+        None => false,
+    };
+    let names = [
+        options.columns.raw.clone(),
+        options.columns.reference.clone(),
+        options.columns.temperature.clone(),
+    ];
+    let names = [names[0].as_str(), names[1].as_str(), names[2].as_str()];
+    let explicit =
+        config_has_range || args.monitor.level_low.is_some() || args.monitor.level_high.is_some();
+    let mut from_data = false;
+    if !explicit && options.feed.as_os_str() != "-" && options.persist.resume.is_none() {
+        let found = match options.precision {
+            Precision::F32 => range_from_data::<f32>(&plan, &options, names)?,
+            Precision::F64 => range_from_data::<f64>(&plan, &options, names)?,
+        };
+        if let Some((low, high)) = found {
+            options.config.level_low = low;
+            options.config.level_high = high;
+            from_data = true;
+        }
+    }
+    let source = range_source(&args.monitor, config_has_range, from_data);
+    let summary_path = options.summary.take();
+    let (mut result, tally) = match options.precision {
+        Precision::F32 => run_typed::<f32>(&plan, &options, names)?,
+        Precision::F64 => run_typed::<f64>(&plan, &options, names)?,
+    };
+    let suspects = tally.suspects();
+    if let Value::Object(map) = &mut result.summary {
+        summary_entries(
+            map,
+            &tally,
+            &plan,
+            &suspects,
+            source,
+            (tally.checks, tally.checks_outside),
+        );
+        map.insert(
+            "level_low".into(),
+            serde_json::json!(options.config.level_low),
+        );
+        map.insert(
+            "level_high".into(),
+            serde_json::json!(options.config.level_high),
+        );
+    }
+    if let Some(path) = &summary_path {
+        let mut out = replay::create_output(path)?;
+        serde_json::to_writer_pretty(&mut out, &result.summary)?;
+        out.write_all(b"\n")?;
+        out.flush()?;
+    }
+    let file = options.feed.display();
+    if options.warnings {
+        for suspect in &suspects {
+            eprintln!("steadycal: warning: {file}: {}", suspect.warning());
+        }
+        if tally.checks > 0 && tally.checks_outside as f64 > OUTSIDE_SHARE * tally.checks as f64 {
+            eprintln!(
+                "steadycal: warning: {file}: {} of {} checks ({:.1} %) lie outside the working range [{}, {}] above the origin {} (range from {source}); set range.low/high in the configuration or --level-low/--level-high",
+                tally.checks_outside,
+                tally.checks,
+                100.0 * tally.checks_outside as f64 / tally.checks as f64,
+                options.config.level_low,
+                options.config.level_high,
+                options.config.level_origin,
+            );
+        }
+        let c = &options.config;
+        for value in plan
+            .sensor
+            .missing
+            .inside(c.level_origin + c.level_low, c.level_origin + c.level_high)
+        {
+            eprintln!(
+                "steadycal: warning: {file}: the missing marker {value} is also a valid reading of the working range; the cells it removed are counted in the summary's `missing`"
+            );
+        }
+    }
+    if let Some(path) = &args.field.save_config {
+        save_config(
+            path,
+            args.monitor.config.as_deref(),
+            options.config.level_low,
+            options.config.level_high,
+            source,
+        )?;
+    }
+    options.summary = summary_path;
+    super::replay::finish(args, &options, result, plan.strict && !suspects.is_empty())
+}
