@@ -11,8 +11,11 @@ use serde_json::Value;
 use super::field::{range_source, save_config, summary_entries, FieldPlan};
 use super::replay::ReplayArgs;
 use crate::feed::FeedFloat;
+use crate::feed::ParsedRow;
 use crate::field::rows::{FieldSample, FieldTally, JoinedSamples, LogSamples};
-use crate::replay::{self, ParsedRow, Precision, ReplayOptions, ReplayResult};
+use crate::io::create_output;
+use crate::replay::pipeline::replay_rows;
+use crate::replay::{Precision, ReplayOptions, ReplayResult};
 
 /// Share of checks outside the working range above which the run warns (the rule
 /// of thumb; common practice, no source).
@@ -116,7 +119,7 @@ fn run_typed<R: FeedFloat + std::fmt::Display>(
         line: s.line,
         bytes: s.bytes,
     });
-    let result = replay::replay_rows::<R>(rows, &file, options)?;
+    let result = replay_rows::<R>(rows, &file, options)?;
     // Drain what the engine left (a bad row stops it): the counts cover what was read.
     Ok((result, samples.tally().clone()))
 }
@@ -176,7 +179,7 @@ pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Re
         );
     }
     if let Some(path) = &summary_path {
-        let mut out = replay::create_output(path)?;
+        let mut out = create_output(path)?;
         serde_json::to_writer_pretty(&mut out, &result.summary)?;
         out.write_all(b"\n")?;
         out.flush()?;
