@@ -176,7 +176,7 @@ pub(super) fn spread(
     );
     if spread.is_none() {
         notes.push(
-            "no spread model: fewer than three replicate groups and fewer than 15 rows for bins of 5"
+            "no spread model: fewer than three usable replicate groups or bins (binning needs 15 rows, at least 5 per bin)"
                 .into(),
         );
     }

@@ -937,6 +937,7 @@ pub fn assess_report(
         .map(|r| {
             vec![
                 short(r.raw),
+                r.readings_averaged.to_string(),
                 r.value.map(short).unwrap_or_else(|| "-".into()),
                 r.standard_uncertainty
                     .map(short)
@@ -963,6 +964,7 @@ pub fn assess_report(
                 "inverse",
                 &[
                     "raw",
+                    "m (readings averaged)",
                     "value",
                     "standard uncertainty",
                     "expanded uncertainty",
