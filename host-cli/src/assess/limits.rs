@@ -27,6 +27,10 @@
 //!   (the standard's approximation; `2·x_c` for α = β),
 //! - quantification limit `x_q = k · s_x0 · t(1 − α/2; f) · √(1/m + 1/n + (x_q − x̄)²/Q_x)`,
 //!   solved by fixed-point iteration (relative uncertainty `1/k` of a result at `x_q`).
+//!
+//! These are the definitions of the R package chemCal's `lod(method = "din")` (critical
+//! value with β = 0.5) and `loq()`; `tests/tests/assess_din32645.rs` reproduces the
+//! standard's worked example as published there (0.07, 0.14, 0.212).
 
 use serde::Serialize;
 
