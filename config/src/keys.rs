@@ -37,7 +37,7 @@ const fn key(
 pub const KEYS: &[Key] = &[
     key("range.low", "raw units above the origin", "1", "> 0, below `range.high`", "lower end of the working range (spread bins start here)"),
     key("range.high", "raw units above the origin", "1000", "finite, above `range.low`", "upper end of the working range"),
-    key("range.origin", "raw units", "0", "finite", "level origin: levels are measured from it, power rungs need values above it"),
+    key("range.origin", "raw units", "the sensor's baseline", "finite", "known level origin: levels are measured from it from the first check and power rungs need values above it; not given: from the end of the warm-up, levels are measured from the sensor's baseline (its fitted raw output at zero reference)"),
     key("basis.quadratic", "bool", "false", "true, false", "add `c·ref²` to the calibration mean"),
     key("basis.temperature", "bool", "false", "true, false; not with `quadratic`", "add `d·(T − T₀)` (3 parameters at most)"),
     key("basis.reference_scale", "reference units", "`range.high`", "> 0", "regressor scaling"),

@@ -59,6 +59,9 @@ impl ConfigFile {
         }
         let mut config = MonitorConfig::<f64>::default_for_range(low, high);
         set(&mut config.level_origin, self.range.origin, |v| v.0);
+        // A given origin is known: it is used from the first check; otherwise the monitor
+        // finds the sensor's baseline (steadycal_core::origin).
+        config.find_baseline = self.range.origin.is_none();
         config.detect = DetectConfig::default_for_range(config.level_origin, low, high);
         let basis = &self.basis;
         let b = &mut config.basis;
@@ -160,7 +163,8 @@ impl ConfigFile {
         let range = &mut file.range;
         range.low.get_or_insert(Positive(c.level_low));
         range.high.get_or_insert(Positive(c.level_high));
-        range.origin.get_or_insert(Finite(c.level_origin));
+        // `range.origin` stays unset unless given: the monitor then finds the sensor's
+        // baseline, which a written value would replace.
         let basis = &mut file.basis;
         basis.quadratic.get_or_insert(c.basis.quadratic);
         basis.temperature.get_or_insert(c.basis.temperature);

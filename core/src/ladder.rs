@@ -20,10 +20,19 @@
 //! - The active rung always has a fit that has seen every sample the other rungs saw, so a
 //!   switch hands over a warmed-up fit and causes no transient.
 //! - The likelihood sums only take samples that every rung could use (level above the
-//!   origin, prediction above the origin), so the rungs are compared on the same data.
-//! - A rung only becomes active after it has led the active rung by `switch_margin` at
+//!   origin, prediction above the origin), so the rungs are compared on the same data, and
+//!   only samples at or above the bottom of the working range (`level_floor`).
+//! - A rung only becomes active after it has led the active rung by the required lead at
 //!   every comparison (one each `decide_every` checks) over `switch_hold` checks; that is,
-//!   for `switch_hold` checks in a row.
+//!   for `switch_hold` checks in a row. The required lead is `switch_margin·(1 + s)`, with
+//!   `s` the count of recent switches (each fades over eight memories of the fits,
+//!   `8/(1 − β)` checks), and `switch_margin·(1 + 2s)` for going back to the rung left
+//!   last: a ladder that has just switched needs more evidence to switch again, and more
+//!   still to undo the switch.
+//! - While held ([`PowerLadder::hold`], the monitor holds it while the calibration mean is
+//!   inadequate), no rung becomes active and no challenger is followed.
+//! - [`PowerLadder::provisional`] is true during the warm-up and while a challenger leads
+//!   but has not yet won: the active rung is not yet backed by the evidence.
 
 use serde::{Deserialize, Serialize};
 
@@ -78,6 +87,10 @@ pub struct Switch<R> {
     pub to: Rung,
     /// Log-likelihood lead of `to` over `from` at the switch.
     pub gain: R,
+    /// The lead it needed (the margin grown by recent switches).
+    pub required: R,
+    /// Checks over which `to` kept the lead before the switch.
+    pub held: u32,
 }
 
 /// What one check did to the ladder, seen from the active rung before the update.
@@ -148,7 +161,16 @@ pub struct PowerLadder<R, const P: usize> {
     lead: u32,
     checks: u32,
     since_decision: u32,
+    /// Recent switches, each fading over eight memories of the fits.
+    recent_switches: R,
+    /// The rung left at the last switch.
+    left: Option<Rung>,
+    /// No switch while true (the calibration mean is inadequate).
+    held: bool,
 }
+
+/// Recent switches fade over this many memories `1/(1 − β)` of the fits.
+const SWITCH_MEMORIES: f64 = 8.0;
 
 impl<R: Real, const P: usize> PowerLadder<R, P> {
     /// A ladder of `dim`-parameter fits, starting on `initial` rung. A calibration has at
@@ -168,7 +190,46 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             lead: 0,
             checks: 0,
             since_decision: 0,
+            recent_switches: R::ZERO,
+            left: None,
+            held: false,
         }
+    }
+
+    /// True while the active rung is not yet backed by the evidence: during the warm-up,
+    /// and while a challenger leads but has not yet won.
+    pub fn provisional(&self, config: &LadderConfig<R>) -> bool {
+        !self.warmed_up(config) || self.candidate.is_some()
+    }
+
+    /// The challenger leading the active rung, and the checks it has held the lead.
+    pub fn challenger(&self) -> Option<(Rung, u32)> {
+        self.candidate.map(|rung| (rung, self.lead))
+    }
+
+    /// Holds the active rung (`true`: no switch until released) or releases it.
+    pub fn hold(&mut self, held: bool) {
+        self.held = held;
+        if held {
+            self.candidate = None;
+            self.lead = 0;
+        }
+    }
+
+    /// True while the ladder is held.
+    pub fn held(&self) -> bool {
+        self.held
+    }
+
+    /// The lead `rung` needs over the active one to count as winning: the margin, grown
+    /// by recent switches, and twice as much for going back to the rung left last.
+    pub fn required_lead(&self, config: &LadderConfig<R>, rung: Rung) -> R {
+        let back = if self.left == Some(rung) {
+            R::TWO
+        } else {
+            R::ONE
+        };
+        config.switch_margin * (R::ONE + back * self.recent_switches)
     }
 
     /// The rung the calibration currently uses.
@@ -434,7 +495,10 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             x,
             raw,
             raw_level,
-            comparing: counting && !below_origin,
+            // Below the working range the rungs' weights sit at the floor and their
+            // transforms at the steep end: such checks would decide between rungs on levels
+            // the calibration does not serve, so they are left out of the comparison.
+            comparing: counting && !below_origin && !(raw_level < config.level_floor),
             transformed: raw_transforms,
             predictions_positive: true,
             log_rung_log_level: None,
@@ -586,8 +650,16 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
 
     fn decide(&mut self, config: &LadderConfig<R>) -> Option<Switch<R>> {
         let elapsed = core::mem::take(&mut self.since_decision);
+        if self.recent_switches > R::ZERO {
+            // Linear fading per comparison: `1 − (1 − β)·elapsed / SWITCH_MEMORIES`.
+            let fade = R::ONE
+                - (R::ONE - config.fit.forgetting)
+                    * R::from_u32(elapsed)
+                    * R::from_f64(1.0 / SWITCH_MEMORIES);
+            self.recent_switches = (self.recent_switches * fade).max(R::ZERO);
+        }
         let (best, lead) = self.leader()?;
-        if best == self.active || !(lead >= config.switch_margin) {
+        if self.held || best == self.active || !(lead >= self.required_lead(config, best)) {
             self.candidate = None;
             self.lead = 0;
             return None;
@@ -602,13 +674,19 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             return None;
         }
         let from = self.active;
+        let required = self.required_lead(config, best);
+        let held = self.lead;
         self.active = best;
         self.candidate = None;
         self.lead = 0;
+        self.left = Some(from);
+        self.recent_switches += R::ONE;
         Some(Switch {
             from,
             to: best,
             gain: lead,
+            required,
+            held,
         })
     }
 }

@@ -9,7 +9,8 @@
 //!
 //! Modules, one concept each: [`real`] (the float trait), [`basis`] (regressors),
 //! [`fit`] (recursive least squares), [`transform`] (Box–Cox rungs), [`spread`] (spread
-//! against level), [`ladder`] (shadow fits per rung), [`adequacy`] (mean check after a
+//! against level), [`ladder`] (shadow fits per rung), [`origin`] (where levels are measured from: the
+//! sensor's baseline), [`adequacy`] (mean check after a
 //! switch), [`detect`] (drift and fault detectors, alarms), [`event`] (events and their
 //! queue), [`sample`] (inputs and outcomes),
 //! [`monitor`] (the composition), [`snapshot`] (the monitor as bytes, to resume after a
@@ -37,6 +38,7 @@ mod fit_encoding;
 pub mod hal;
 pub mod ladder;
 pub mod monitor;
+pub mod origin;
 pub mod real;
 pub mod record;
 pub mod sample;

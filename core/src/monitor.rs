@@ -27,6 +27,7 @@ use crate::detect::{DetectConfig, DetectConfigError, DetectorCounts, Detectors};
 use crate::event::{AlarmKind, Event, EventKind, EventQueue, RejectReason, Severity};
 use crate::fit::FitConfig;
 use crate::ladder::{LadderConfig, PowerLadder};
+use crate::origin::{BaselineEstimate, LevelOrigin};
 use crate::real::{non_negative_setting, positive_setting, Real};
 use crate::sample::{Flags, Outcome, Reading, Sample};
 use crate::spread::{SpreadConfig, SpreadExponent, SpreadProfile};
@@ -43,8 +44,13 @@ pub struct MonitorConfig<R> {
     pub forgetting: R,
     /// Initial covariance diagonal of the fits (also the wind-up ceiling).
     pub initial_variance: R,
-    /// Levels are measured above this origin; power rungs need values above it.
+    /// Levels are measured above this origin; power rungs need values above it. With
+    /// `find_baseline`, only until the end of the warm-up.
     pub level_origin: R,
+    /// From the end of the warm-up on, measure levels above the sensor's baseline (the
+    /// fitted raw output at zero reference, see [`crate::origin`]) instead of
+    /// `level_origin`. False when the origin is known (configured).
+    pub find_baseline: bool,
     /// Lower end of the working range, raw units above the origin (spread bins start here).
     pub level_low: R,
     /// Upper end of the working range, raw units above the origin.
@@ -121,6 +127,10 @@ impl ConfigError {
     }
 }
 
+/// Residuals (effective count) a spread profile restarted at a switch needs before its
+/// exponent and Koenker statistic are reported again: eight per bin of the default sixteen.
+const SPREAD_RESTART_CHECKS: u32 = 128;
+
 /// `count` is a multiple of `period` (a mask for a power of two, which the defaults are:
 /// a 64-bit remainder is a library call on a 32-bit board).
 #[inline]
@@ -153,6 +163,7 @@ impl<R: Real> MonitorConfig<R> {
             forgetting: R::from_f64(0.999),
             initial_variance: R::from_f64(1e6),
             level_origin: R::ZERO,
+            find_baseline: true,
             level_low: low,
             level_high: high,
             warm_up: 200,
@@ -229,6 +240,7 @@ impl<R: Real> MonitorConfig<R> {
             forgetting: c(self.forgetting),
             initial_variance: c(self.initial_variance),
             level_origin: c(self.level_origin),
+            find_baseline: self.find_baseline,
             level_low: c(self.level_low),
             level_high: c(self.level_high),
             warm_up: self.warm_up,
@@ -328,6 +340,8 @@ pub struct Monitor<R, const P: usize = 3, const BINS: usize = 16, const Q: usize
     spread_raised: bool,
     last_exponent: Option<SpreadExponent<R>>,
     detectors: Detectors<R>,
+    /// Where levels are measured from (the sensor's baseline once found).
+    origin: LevelOrigin<R>,
     /// `ALARM`/`WARNING` for the alarms raised now: derived from the alarm states, updated
     /// at each raise and clear, so a sample does not scan every alarm; not in a snapshot
     /// (rebuilt by `complete_restored`).
@@ -351,6 +365,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             spread_raised: false,
             last_exponent: None,
             detectors: Detectors::new(),
+            origin: LevelOrigin::new(config.level_origin, config.find_baseline),
             alarm_flags: Flags::empty(),
         })
     }
@@ -366,6 +381,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             .validate(P)
             .map_err(SnapshotError::InvalidConfig)?;
         self.ladder_config = self.config.ladder();
+        self.ladder_config.level_origin = self.origin.value();
         self.ladder.set_fit_config(self.ladder_config.fit);
         let dim = self.config.basis.len();
         let fits_agree = Rung::ALL
@@ -381,6 +397,12 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     /// The configuration.
     pub fn config(&self) -> &MonitorConfig<R> {
         &self.config
+    }
+
+    /// The origin levels are measured from: the configured one, or the sensor's baseline
+    /// once found (see [`crate::origin`]).
+    pub fn level_origin(&self) -> &LevelOrigin<R> {
+        &self.origin
     }
 
     /// The active rung.
@@ -694,6 +716,10 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             .ladder
             .update_assessed(&self.ladder_config, &x, sample.raw, assessment);
         self.counters.checks += 1;
+        // The origin settles by the end of the warm-up (tested first: after it, nothing).
+        if !warmed_up && self.origin.due(self.ladder.checks(), self.config.warm_up) {
+            self.find_baseline();
+        }
         if step.below_origin {
             self.counters.below_origin += 1;
             outcome.flags.insert(Flags::BELOW_ORIGIN);
@@ -707,7 +733,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 );
             }
         }
-        let level = step.prediction - self.config.level_origin;
+        let level = step.prediction - self.ladder_config.level_origin;
         if warmed_up {
             let bin = match step.log_level {
                 Some(log_level) => {
@@ -731,6 +757,11 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 outcome,
             );
             self.mean_check.arm();
+            // The profile describes the rung in use: it restarts on the new rung's
+            // residuals (the old rung's, with its mean off at the ends of the range, would
+            // dominate the end bins for thousands of checks).
+            self.spread.clear();
+            self.last_exponent = None;
         }
         if self.mean_check.armed() && self.mean_check.since_reset() >= self.config.mean_check_after
         {
@@ -739,7 +770,23 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 .mean_check
                 .evaluate(self.config.mean_check_min_per_bin, z)
             {
+                // The ladder holds its rung while the mean is inadequate (the likelihoods
+                // of a wrong mean wander from rung to rung); the check runs again until
+                // the mean is adequate, which releases the hold.
+                let was_held = self.ladder.held();
+                self.ladder.hold(result.misfit);
                 if result.misfit {
+                    self.mean_check.arm();
+                } else if was_held {
+                    self.raise(
+                        sample.seq,
+                        EventKind::Cleared {
+                            alarm: AlarmKind::MeanMisfit,
+                        },
+                        outcome,
+                    );
+                }
+                if result.misfit && !was_held {
                     let basis = self.config.basis;
                     let kind = EventKind::MeanMisfit {
                         rung: self.ladder.active(),
@@ -895,7 +942,30 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         );
     }
 
+    /// Takes the origin's next stage from the `log` rung's raw output at zero reference
+    /// (see [`crate::origin`]) and measures the ladder's levels from it.
+    #[inline(never)]
+    fn find_baseline(&mut self) {
+        let fit = self.ladder.fit(Rung::Log);
+        if (fit.updates() as usize) <= fit.dim() {
+            return;
+        }
+        let zero: [R; P] = self.config.basis.regressors(R::ZERO, None);
+        let estimate = BaselineEstimate {
+            value: fit.predict(&zero),
+            standard_error: (fit.residual_variance() * fit.leverage(&zero)).sqrt(),
+        };
+        let final_stage = self.ladder.checks() >= self.config.warm_up;
+        self.origin
+            .take_estimate(estimate, self.config.level_origin, final_stage);
+        self.ladder_config.level_origin = self.origin.value();
+    }
+
     fn evaluate_spread(&mut self, seq: u64, outcome: &mut Outcome<R>) {
+        // A profile restarted at a switch reports once it holds a few residuals per bin.
+        if self.spread.weight() < R::from_u32(SPREAD_RESTART_CHECKS) {
+            return;
+        }
         let exponent = self.spread.exponent();
         self.last_exponent = exponent;
         let (Some(exponent), Some(koenker)) = (exponent, self.spread.koenker()) else {
@@ -933,7 +1003,8 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             Some(reading) => {
                 self.counters.readings += 1;
                 outcome.reading = Some(reading);
-                if self.ladder.active().needs_positive() && !(sample.raw > self.config.level_origin)
+                if self.ladder.active().needs_positive()
+                    && !(sample.raw > self.ladder_config.level_origin)
                 {
                     outcome.flags.insert(Flags::BELOW_ORIGIN);
                 }

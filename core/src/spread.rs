@@ -274,6 +274,12 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
         &self.config
     }
 
+    /// The residuals the profile holds, as an effective count (the sum of their
+    /// forgetting weights; the plain count at β = 1).
+    pub fn weight(&self) -> R {
+        self.koenker.weight
+    }
+
     /// Forgets everything (for example at the end of a warm-up); keeps the configuration.
     pub fn clear(&mut self) {
         self.koenker = KoenkerSums::EMPTY;

@@ -662,7 +662,8 @@ walk_struct!(impl[R: Real] Basis<R> {
     quadratic, temperature, reference_scale, temperature_reference, temperature_scale
 });
 walk_struct!(impl[R: Real] MonitorConfig<R> {
-    basis, forgetting, initial_variance, level_origin, level_low, level_high, warm_up,
+    basis, forgetting, initial_variance, level_origin, find_baseline, level_low, level_high,
+    warm_up,
     switch_margin, switch_hold, initial_rung, spread_threshold, spread_every,
     mean_check_after, mean_check_min_per_bin, mean_check_z, interval_z, coverage_factor,
     detect,

@@ -1,5 +1,5 @@
-//! The committed snapshot fixture of the current format, `tests/data/snapshot-v2.bin`
-//! (format version 2), must keep decoding, and must re-encode to the same bytes: if a change
+//! The committed snapshot fixture of the current format, `tests/data/snapshot-v3.bin`
+//! (format version 3), must keep decoding, and must re-encode to the same bytes: if a change
 //! to any state or configuration type changes the bytes, the format version must be bumped
 //! (see ARCHITECTURE.md, "Format versioning") and a new fixture committed beside the old
 //! ones. Older fixtures stay and are refused by version, never misread.
@@ -7,8 +7,10 @@
 //! Version history: 1 wrote every fit's full `P×P` factor, its padding and its
 //! configuration, and the ladder settings; 2 writes only what each fit uses and derives the
 //! rest from the monitor's configuration (1,257 → about 1,000 bytes for the gas-cell demo
-//! state in f32). No version-1 decoder is kept: version 1 never left development, so a
-//! version-1 snapshot is re-commissioned.
+//! state in f32); 3 adds the level origin (the sensor's baseline and how far it is
+//! found), the ladder's recent switches, the rung it left last and its hold, and the
+//! configuration's `find_baseline`. No decoder of an older version is kept: a snapshot of
+//! an older version is refused by version and the channel re-commissioned.
 //!
 //! The generator (`fixture_monitor`) gave the fixture's bytes when it was written; a later
 //! change to the arithmetic of `push` changes its numbers but not the format, so the test
@@ -51,11 +53,13 @@ fn fixture_monitor() -> Monitor<f32> {
 }
 
 #[test]
-fn version_1_fixture_is_refused_by_version() {
-    let bytes = std::fs::read(fixture_of(1)).expect("committed fixture");
-    match Snapshot::parse(&bytes) {
-        Err(SnapshotError::UnknownVersion { .. }) => {}
-        other => panic!("a version-1 snapshot must be refused by version: {other:?}"),
+fn older_fixtures_are_refused_by_version() {
+    for version in 1..FORMAT_VERSION {
+        let bytes = std::fs::read(fixture_of(version)).expect("committed fixture");
+        match Snapshot::parse(&bytes) {
+            Err(SnapshotError::UnknownVersion { .. }) => {}
+            other => panic!("a version-{version} snapshot must be refused by version: {other:?}"),
+        }
     }
 }
 
@@ -63,13 +67,13 @@ fn version_1_fixture_is_refused_by_version() {
 fn current_version_fixture_still_decodes() {
     let bytes = std::fs::read(fixture_path()).expect("committed fixture");
     let snapshot = Snapshot::parse(&bytes).expect("header and CRC");
-    assert_eq!(snapshot.header().version, 2);
+    assert_eq!(snapshot.header().version, 3);
     let mut monitor: Monitor<f32> = snapshot.monitor().expect("decodes as Monitor<f32>");
     let counters = monitor.counters();
     assert_eq!(counters.samples, 700);
     assert_eq!(counters.checks + counters.rejected + counters.readings, 700);
     // Same version: the bytes must be reproduced exactly.
-    if FORMAT_VERSION == 2 {
+    if FORMAT_VERSION == 3 {
         let mut again = [0u8; MAX_SNAPSHOT_LEN];
         let len = monitor.snapshot(&mut again).unwrap();
         assert_eq!(

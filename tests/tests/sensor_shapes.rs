@@ -119,7 +119,11 @@ struct Run {
     switches: usize,
     first_switch: Option<u64>,
     rejection_events: usize,
+    /// The reasons of the rejection events.
+    reasons: std::collections::BTreeSet<&'static str>,
     mean_misfit: bool,
+    /// The origin the monitor settled on, less the true baseline.
+    origin: f64,
     /// Readings within the expanded uncertainty, and readings, by third.
     covered: [usize; 3],
     readings: [usize; 3],
@@ -165,7 +169,10 @@ fn run(
                     out.first_switch.get_or_insert(seq);
                     last_switch = Some(seq);
                 }
-                EventKind::SampleRejected { .. } => out.rejection_events += 1,
+                EventKind::SampleRejected { reason } => {
+                    out.rejection_events += 1;
+                    out.reasons.insert(reason.name());
+                }
                 EventKind::MeanMisfit { .. } => out.mean_misfit = true,
                 _ => {}
             }
@@ -187,6 +194,7 @@ fn run(
             }
         }
     }
+    out.origin = monitor.level_origin().value() as f64 - sensor.baseline;
     out.rung = Some(monitor.rung());
     out.k = interval(&monitor);
     out
@@ -235,6 +243,10 @@ fn baseline_case(name: &str, sensor: Sensor) -> (usize, usize, usize, f64, f64) 
         |r| matches!(r.k, Some((_, low, high)) if low <= 1.0 && 1.0 <= high),
     );
     let max_rejections = runs.iter().map(|r| r.rejection_events).max().unwrap_or(0);
+    let reasons: std::collections::BTreeSet<_> = runs
+        .iter()
+        .flat_map(|r| r.reasons.iter().copied())
+        .collect();
     let mean_k = runs.iter().filter_map(|r| r.k.map(|k| k.0)).sum::<f64>() / n.max(1) as f64;
     let mut coverage = [0.0; 3];
     for (third, value) in coverage.iter_mut().enumerate() {
@@ -243,9 +255,15 @@ fn baseline_case(name: &str, sensor: Sensor) -> (usize, usize, usize, f64, f64) 
         *value = covered as f64 / total.max(1) as f64;
     }
     let switches = runs.iter().map(|r| r.switches).max().unwrap_or(0);
+    let origin_low = runs.iter().map(|r| r.origin).fold(f64::INFINITY, f64::min);
+    let origin_high = runs
+        .iter()
+        .map(|r| r.origin)
+        .fold(f64::NEG_INFINITY, f64::max);
+    eprintln!("  origin - baseline in {origin_low:.4}..{origin_high:.4}");
     eprintln!(
         "{name}: {n} seeds x {checks} checks: rungs [{}], log {log}, k covers 1 in {k_covers} \
-         (mean k {mean_k:.3}), rejection events max {max_rejections}, switches max {switches}, \
+         (mean k {mean_k:.3}), rejection events max {max_rejections} {reasons:?}, switches max {switches}, \
          coverage by third {:.3} {:.3} {:.3}",
         rungs(&runs),
         coverage[0],
@@ -273,7 +291,6 @@ fn assert_baseline(name: &str, sensor: Sensor) {
 }
 
 #[test]
-#[ignore = "study of issue 17: prints the figures; asserted once the baseline rule lands"]
 fn baseline_below_zero_log_references() {
     assert_baseline(
         "baseline -5, refs log 2-500",
@@ -282,7 +299,6 @@ fn baseline_below_zero_log_references() {
 }
 
 #[test]
-#[ignore = "study of issue 17: prints the figures; asserted once the baseline rule lands"]
 fn baseline_zero_log_references() {
     assert_baseline(
         "baseline 0, refs log 2-500",
@@ -291,7 +307,6 @@ fn baseline_zero_log_references() {
 }
 
 #[test]
-#[ignore = "study of issue 17: prints the figures; asserted once the baseline rule lands"]
 fn baseline_above_zero_log_references() {
     assert_baseline(
         "baseline +20, refs log 2-500",
@@ -300,7 +315,6 @@ fn baseline_above_zero_log_references() {
 }
 
 #[test]
-#[ignore = "study of issue 17: prints the figures; asserted once the baseline rule lands"]
 fn baselines_even_references() {
     let mut failures = Vec::new();
     for baseline in [-5.0, 0.0, 20.0] {
@@ -355,7 +369,6 @@ fn after_switch_case(k: f64) -> (usize, usize) {
 }
 
 #[test]
-#[ignore = "study of issue 17: prints the figures; asserted once the spread restart lands"]
 fn spread_after_a_switch_describes_the_new_rung() {
     let cases = [1.5, 2.0].map(|k| (k, after_switch_case(k)));
     for (k, (covers, n)) in cases {
@@ -366,7 +379,6 @@ fn spread_after_a_switch_describes_the_new_rung() {
 }
 
 #[test]
-#[ignore = "study of issue 17: prints the figures; asserted once the ladder hysteresis lands"]
 fn curved_response_under_a_gain_ramp_stays_put() {
     let sensor = Sensor {
         baseline: 0.0,
@@ -396,7 +408,6 @@ fn curved_response_under_a_gain_ramp_stays_put() {
 }
 
 #[test]
-#[ignore = "study of issue 17: prints the figures; asserted once the ladder hysteresis lands"]
 fn even_references_with_a_baseline_stay_put() {
     let mut worst = 0;
     for baseline in [-5.0, 20.0] {

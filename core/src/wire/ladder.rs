@@ -7,4 +7,5 @@ use crate::wire::walk_struct;
 
 walk_struct!(impl[R: Real, const P: usize] PowerLadder<R, P> {
     rungs, log_level_sum, sample_weight, active, candidate, lead, checks, since_decision,
+    recent_switches, left, held,
 });

@@ -40,6 +40,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monito
             spread_raised: _,
             last_exponent: _,
             detectors: _,
+            origin: _,
             alarm_flags: _,
         } = self;
         let t = self.config.walk(t);
@@ -50,7 +51,8 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monito
         let t = self.counters.walk(t);
         let t = self.spread_raised.walk(t);
         let t = self.last_exponent.walk(t);
-        self.detectors.walk(t)
+        let t = self.detectors.walk(t);
+        self.origin.walk(t)
     }
 }
 
@@ -88,6 +90,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 forgetting: z,
                 initial_variance: z,
                 level_origin: z,
+                find_baseline: false,
                 level_low: z,
                 level_high: z,
                 warm_up: 0,
@@ -139,6 +142,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             spread_raised: false,
             last_exponent: None,
             detectors: Detectors::new(),
+            origin: crate::origin::LevelOrigin::new(z, false),
             alarm_flags: crate::sample::Flags::empty(),
         }
     }
