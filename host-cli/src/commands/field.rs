@@ -14,7 +14,6 @@ use anyhow::{Context, Result};
 use clap::Args;
 use serde_json::{json, Map, Value};
 
-use crate::field::census::Suspect;
 use crate::field::duration::{parse_duration, parse_positive_duration};
 use crate::field::join::Pairing;
 use crate::field::missing::{parse_marker, MissingMarkers};
@@ -260,33 +259,13 @@ impl FieldPlan {
     }
 }
 
-/// The summary entries of a field run.
-pub fn summary_entries(
-    map: &mut Map<String, Value>,
-    tally: &FieldTally,
-    plan: &FieldPlan,
-    suspects: &[Suspect],
-    range_source: &str,
-    checks_outside: (u64, u64),
-) {
-    map.insert("first_t".into(), json!(tally.first_t));
-    map.insert("last_t".into(), json!(tally.last_t));
+/// The summary entries of a field run (the census entries every replay writes come from
+/// the run itself).
+pub fn summary_entries(map: &mut Map<String, Value>, tally: &FieldTally, plan: &FieldPlan) {
     map.insert("timezone".into(), json!(plan.timezone));
     map.insert("missing_raw".into(), json!(tally.missing_raw));
     map.insert("missing".into(), json!(tally.missing.by_column));
     map.insert("blank_rows".into(), json!(tally.blank_rows));
-    map.insert(
-        "suspected_missing_markers".into(),
-        json!(suspects
-            .iter()
-            .map(|s| json!({"column": s.column, "value": s.value, "cells": s.cells, "share": s.share, "why": s.why}))
-            .collect::<Vec<_>>()),
-    );
-    map.insert("range_source".into(), json!(range_source));
-    map.insert(
-        "checks_outside_range".into(),
-        json!({"checks": checks_outside.0, "outside": checks_outside.1}),
-    );
     if let Some(join) = &tally.join {
         let mut value = serde_json::to_value(join).unwrap_or(Value::Null);
         if let (Value::Object(object), Some((path, _, offset, pairing))) =

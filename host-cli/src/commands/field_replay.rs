@@ -17,9 +17,6 @@ use crate::io::create_output;
 use crate::replay::pipeline::replay_rows;
 use crate::replay::{Precision, ReplayOptions, ReplayResult};
 
-/// Share of checks outside the working range above which the run warns (the rule
-/// of thumb; common practice, no source).
-pub const OUTSIDE_SHARE: f64 = 0.05;
 /// Quantiles of the checks' raw values that set a range from the data (robust ends: one
 /// check in a hundred may lie outside at each end; common practice, no source).
 pub const RANGE_QUANTILES: (f64, f64) = (0.01, 0.99);
@@ -33,11 +30,9 @@ enum Samples<R: FeedFloat> {
 }
 
 impl<R: FeedFloat> Samples<R> {
-    fn open(plan: &FieldPlan, options: &ReplayOptions, names: [&str; 3]) -> Result<Self> {
+    fn open(plan: &FieldPlan, options: &ReplayOptions) -> Result<Self> {
         let (sensor, reference) = plan.open(&options.feed)?;
-        let c = &options.config;
-        let range = Some((c.level_origin + c.level_low, c.level_origin + c.level_high));
-        let tally = FieldTally::new(names, range);
+        let tally = FieldTally::new();
         Ok(match (reference, &plan.reference) {
             (Some(reference), Some((_, _, offset, pairing))) => Samples::Two(Box::new(
                 JoinedSamples::new(sensor, reference, *offset, *pairing, tally),
@@ -71,9 +66,8 @@ impl<R: FeedFloat> Iterator for Samples<R> {
 fn range_from_data<R: FeedFloat>(
     plan: &FieldPlan,
     options: &ReplayOptions,
-    names: [&str; 3],
 ) -> Result<Option<(f64, f64)>> {
-    let mut samples = Samples::<R>::open(plan, options, names)?;
+    let mut samples = Samples::<R>::open(plan, options)?;
     let (mut kept, mut stride, mut seen) = (Vec::new(), 1u64, 0u64);
     for sample in samples.by_ref() {
         let Ok(sample) = sample.next else { continue };
@@ -110,9 +104,8 @@ fn range_from_data<R: FeedFloat>(
 fn run_typed<R: FeedFloat + std::fmt::Display>(
     plan: &FieldPlan,
     options: &ReplayOptions,
-    names: [&str; 3],
 ) -> Result<(ReplayResult, FieldTally)> {
-    let mut samples = Samples::<R>::open(plan, options, names)?;
+    let mut samples = Samples::<R>::open(plan, options)?;
     let file = options.feed.display().to_string();
     let rows = samples.by_ref().map(|s| ParsedRow {
         next: s.next,
@@ -133,19 +126,13 @@ pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Re
         }
         None => false,
     };
-    let names = [
-        options.columns.raw.clone(),
-        options.columns.reference.clone(),
-        options.columns.temperature.clone(),
-    ];
-    let names = [names[0].as_str(), names[1].as_str(), names[2].as_str()];
     let explicit =
         config_has_range || args.monitor.level_low.is_some() || args.monitor.level_high.is_some();
     let mut from_data = false;
     if !explicit && options.feed.as_os_str() != "-" && options.persist.resume.is_none() {
         let found = match options.precision {
-            Precision::F32 => range_from_data::<f32>(&plan, &options, names)?,
-            Precision::F64 => range_from_data::<f64>(&plan, &options, names)?,
+            Precision::F32 => range_from_data::<f32>(&plan, &options)?,
+            Precision::F64 => range_from_data::<f64>(&plan, &options)?,
         };
         if let Some((low, high)) = found {
             options.config.level_low = low;
@@ -154,21 +141,14 @@ pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Re
         }
     }
     let source = range_source(&args.monitor, config_has_range, from_data);
+    options.range_source = source;
     let summary_path = options.summary.take();
     let (mut result, tally) = match options.precision {
-        Precision::F32 => run_typed::<f32>(&plan, &options, names)?,
-        Precision::F64 => run_typed::<f64>(&plan, &options, names)?,
+        Precision::F32 => run_typed::<f32>(&plan, &options)?,
+        Precision::F64 => run_typed::<f64>(&plan, &options)?,
     };
-    let suspects = tally.suspects();
     if let Value::Object(map) = &mut result.summary {
-        summary_entries(
-            map,
-            &tally,
-            &plan,
-            &suspects,
-            source,
-            (tally.checks, tally.checks_outside),
-        );
+        summary_entries(map, &tally, &plan);
         map.insert(
             "level_low".into(),
             serde_json::json!(options.config.level_low),
@@ -186,20 +166,6 @@ pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Re
     }
     let file = options.feed.display();
     if options.warnings {
-        for suspect in &suspects {
-            eprintln!("steadycal: warning: {file}: {}", suspect.warning());
-        }
-        if tally.checks > 0 && tally.checks_outside as f64 > OUTSIDE_SHARE * tally.checks as f64 {
-            eprintln!(
-                "steadycal: warning: {file}: {} of {} checks ({:.1} %) lie outside the working range [{}, {}] above the origin {} (range from {source}); set range.low/high in the configuration or --level-low/--level-high",
-                tally.checks_outside,
-                tally.checks,
-                100.0 * tally.checks_outside as f64 / tally.checks as f64,
-                options.config.level_low,
-                options.config.level_high,
-                options.config.level_origin,
-            );
-        }
         let c = &options.config;
         for value in plan
             .sensor
@@ -221,5 +187,6 @@ pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Re
         )?;
     }
     options.summary = summary_path;
-    super::replay::finish(args, &options, result, plan.strict && !suspects.is_empty())
+    let strict_failed = plan.strict && !result.suspects.is_empty();
+    super::replay::finish(args, &options, result, strict_failed)
 }

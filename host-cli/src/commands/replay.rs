@@ -93,6 +93,14 @@ impl ReplayArgs {
         options.skip_bad_rows = self.skip_bad_rows;
         options.progress = self.chatter.progress();
         options.warnings = !self.chatter.quiet;
+        let config_has_range = match &self.monitor.config {
+            Some(path) => {
+                let file = crate::config::ConfigFile::read(path)?;
+                file.range.low.is_some() || file.range.high.is_some()
+            }
+            None => false,
+        };
+        options.range_source = super::field::range_source(&self.monitor, config_has_range, false);
         options.persist = PersistOptions {
             resume: self.resume.clone(),
             save_snapshot: self.save_snapshot.clone(),

@@ -24,6 +24,10 @@ use std::collections::BTreeMap;
 pub const SHARE: f64 = 0.01;
 /// Fewest cells of a suspected marker.
 pub const MIN_CELLS: u64 = 3;
+/// Fewest distinct values the rest of a column must have for "far outside the rest" to
+/// mean anything: a reference that takes a few values (check standards, test weights) is
+/// discrete, and its top standard is not a marker (common practice, no source).
+pub const MIN_DISTINCT_REST: usize = 10;
 /// Distinct values counted exactly at each edge.
 pub const EDGE: usize = 32;
 /// Largest systematic sample kept for the quantiles of the rest.
@@ -207,9 +211,13 @@ impl Census {
             let (q01, q99) = (quantile(&rest, 0.01), quantile(&rest, 0.99));
             let span = q99 - q01;
             let rest_min = rest.iter().copied().fold(f64::INFINITY, f64::min);
-            let why = if value < q01 - span / 2.0 {
+            let mut distinct = rest.clone();
+            distinct.sort_by(f64::total_cmp);
+            distinct.dedup();
+            let continuous = distinct.len() >= MIN_DISTINCT_REST;
+            let why = if continuous && value < q01 - span / 2.0 {
                 Some("lies far below the rest of the column")
-            } else if value > q99 + span / 2.0 {
+            } else if continuous && value > q99 + span / 2.0 {
                 Some("lies far above the rest of the column")
             } else if value < 0.0 && rest_min >= 0.0 {
                 Some("is the only negative value of the column")
@@ -231,6 +239,81 @@ impl Census {
             }
         }
         out
+    }
+}
+
+/// The censuses of a run's raw, reference and temperature columns, the time span and the
+/// checks outside the working range: what every replay counts of the samples it gives the
+/// monitor.
+#[derive(Clone, Debug)]
+pub struct RunCensus {
+    /// Raw, reference and temperature columns.
+    pub columns: [Census; 3],
+    /// Raw values of the working range (`origin + low`, `origin + high`).
+    pub range: (f64, f64),
+    /// Time of the first sample.
+    pub first_t: Option<f64>,
+    /// Time of the last sample.
+    pub last_t: Option<f64>,
+    /// Samples with a reference.
+    pub checks: u64,
+    /// Of those, the ones whose raw value lies outside the working range.
+    pub checks_outside: u64,
+}
+
+/// Share of checks outside the working range above which a run warns (common practice,
+/// no source).
+pub const OUTSIDE_SHARE: f64 = 0.05;
+
+impl RunCensus {
+    /// An empty census; `names` of the raw, reference and temperature columns.
+    pub fn new(names: [&str; 3], range: (f64, f64)) -> Self {
+        RunCensus {
+            columns: [
+                Census::new(names[0], Some(range)),
+                Census::new(names[1], None),
+                Census::new(names[2], None),
+            ],
+            range,
+            first_t: None,
+            last_t: None,
+            checks: 0,
+            checks_outside: 0,
+        }
+    }
+
+    /// Counts one sample: its time, raw value, reference and temperature (or their absence).
+    #[inline]
+    pub fn push(&mut self, t: f64, raw: f64, reference: Option<f64>, temperature: Option<f64>) {
+        if self.first_t.is_none() {
+            self.first_t = Some(t);
+        }
+        self.last_t = Some(t);
+        self.columns[0].push(raw);
+        match reference {
+            Some(value) => {
+                self.columns[1].push(value);
+                self.checks += 1;
+                if !(raw >= self.range.0 && raw <= self.range.1) {
+                    self.checks_outside += 1;
+                }
+            }
+            None => self.columns[1].push_missing(),
+        }
+        match temperature {
+            Some(value) => self.columns[2].push(value),
+            None => self.columns[2].push_missing(),
+        }
+    }
+
+    /// The suspected undeclared markers of every column.
+    pub fn suspects(&self) -> Vec<Suspect> {
+        self.columns.iter().flat_map(Census::suspects).collect()
+    }
+
+    /// True when more than [`OUTSIDE_SHARE`] of the checks lie outside the working range.
+    pub fn too_many_outside(&self) -> bool {
+        self.checks > 0 && self.checks_outside as f64 > OUTSIDE_SHARE * self.checks as f64
     }
 }
 
@@ -315,6 +398,20 @@ mod tests {
             suspects[0].why,
             "lies outside the working range and the rest of the column"
         );
+    }
+
+    #[test]
+    fn check_standards_are_not_markers() {
+        // A reference of four test weights, each a quarter of the checks: the top weight
+        // is far above the others but the column is discrete.
+        let weights = [50.0, 100.0, 200.0, 500.0];
+        let values = (0..2_000).map(|i| weights[i % 4]);
+        assert!(census(values, None).suspects().is_empty());
+        // A negative marker in such a column is still noticed.
+        let values = (0..2_000).map(|i| if i % 50 == 0 { -9999.0 } else { weights[i % 4] });
+        let suspects = census(values, None).suspects();
+        assert_eq!(suspects.len(), 1);
+        assert_eq!(suspects[0].why, "is the only negative value of the column");
     }
 
     #[test]

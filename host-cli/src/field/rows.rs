@@ -4,16 +4,13 @@
 //! A row whose raw cell is missing is no sample: it is counted (`missing_raw`) and fed to
 //! nothing. A missing reference makes a row a reading; a missing temperature is passed on as
 //! absent (the basis decides). Samples are numbered (`seq`) in the order they are given to
-//! the monitor. Every value given to the monitor is also counted in the census of its
-//! column ([`crate::field::census`]).
+//! the monitor (the replay's own census then counts their values).
 //!
 //! Invariants: never panics; memory is flat in the length of the logs.
 
-use steadycal_core::real::Real;
 use steadycal_core::sample::Sample;
 
 use crate::feed::{FeedError, FeedFloat};
-use crate::field::census::{Census, Suspect};
 use crate::field::join::{JoinTally, JoinedRow, Pairing, ReferenceRow, SensorRow, TimeJoin};
 use crate::field::missing::MissingTally;
 use crate::field::reader::{LogReader, LogRow};
@@ -42,71 +39,24 @@ pub struct FieldTally {
     pub blank_rows: u64,
     /// The join's counts, when a reference log was joined.
     pub join: Option<JoinTally>,
-    /// Time of the first and last sample given to the monitor.
-    pub first_t: Option<f64>,
-    /// See `first_t`.
-    pub last_t: Option<f64>,
-    /// Censuses of the raw, reference and temperature values given to the monitor.
-    pub census: [Census; 3],
-    /// Raw values of the working range (`origin + low`, `origin + high`), if one is set.
-    pub range: Option<(f64, f64)>,
-    /// Checks given to the monitor.
-    pub checks: u64,
-    /// Checks whose raw value lies outside the working range.
-    pub checks_outside: u64,
 }
 
 impl FieldTally {
-    /// An empty tally; `names` are the raw, reference and temperature column names, `range`
-    /// the working range of raw values.
-    pub fn new(names: [&str; 3], range: Option<(f64, f64)>) -> Self {
+    /// An empty tally.
+    pub fn new() -> Self {
         FieldTally {
             missing_raw: 0,
             missing: MissingTally::default(),
             reference_missing: MissingTally::default(),
             blank_rows: 0,
             join: None,
-            first_t: None,
-            last_t: None,
-            census: [
-                Census::new(names[0], range),
-                Census::new(names[1], None),
-                Census::new(names[2], None),
-            ],
-            range,
-            checks: 0,
-            checks_outside: 0,
         }
     }
+}
 
-    /// Counts a sample given to the monitor.
-    pub fn sample<R: Real>(&mut self, sample: &Sample<R>) {
-        self.first_t.get_or_insert(sample.t);
-        self.last_t = Some(sample.t);
-        self.census[0].push(sample.raw.to_f64());
-        match sample.reference {
-            Some(value) => {
-                self.census[1].push(value.to_f64());
-                self.checks += 1;
-                let raw = sample.raw.to_f64();
-                if self
-                    .range
-                    .is_some_and(|(low, high)| !(low..=high).contains(&raw))
-                {
-                    self.checks_outside += 1;
-                }
-            }
-            None => self.census[1].push_missing(),
-        }
-        match sample.temperature {
-            Some(value) => self.census[2].push(value.to_f64()),
-            None => self.census[2].push_missing(),
-        }
-    }
-
-    /// The suspected undeclared markers of every column.
-    pub fn suspects(&self) -> Vec<Suspect> {
-        self.census.iter().flat_map(Census::suspects).collect()
+impl Default for FieldTally {
+    fn default() -> Self {
+        FieldTally::new()
     }
 }
 
@@ -162,7 +112,6 @@ impl<R: FeedFloat> Iterator for LogSamples<R> {
             }
             let Some(raw) = self.row.raw.first().copied().flatten() else {
                 self.tally.missing_raw += 1;
-                self.tally.census[0].push_missing();
                 continue;
             };
             let sample = Sample {
@@ -173,7 +122,6 @@ impl<R: FeedFloat> Iterator for LogSamples<R> {
                 temperature: self.row.temperature,
             };
             self.seq += 1;
-            self.tally.sample(&sample);
             return Some(FieldSample {
                 next: Ok(sample),
                 line,
@@ -281,9 +229,6 @@ impl<R: FeedFloat> JoinedSamples<R> {
         self.tally.reference_missing = reference.reader.tally.clone();
         self.tally.blank_rows = sensor.reader.blank_rows + reference.reader.blank_rows;
         self.tally.join = Some(self.join.tally().clone());
-        for _ in 0..sensor.missing_raw {
-            self.tally.census[0].push_missing();
-        }
     }
 }
 
@@ -318,7 +263,6 @@ impl<R: FeedFloat> Iterator for JoinedSamples<R> {
                     temperature,
                 };
                 self.seq += 1;
-                self.tally.sample(&sample);
                 Some(FieldSample {
                     next: Ok(sample),
                     line,
@@ -351,10 +295,7 @@ mod tests {
             ..LogLayout::default()
         };
         let text = "t,raw,ref\n0,1,2\n1,-9999,3\n2,NA,\n3,4,-9999\n";
-        let mut samples = LogSamples::<f64>::new(
-            reader(text, &layout),
-            FieldTally::new(["raw", "ref", "temp"], None),
-        );
+        let mut samples = LogSamples::<f64>::new(reader(text, &layout), FieldTally::new());
         let got: Vec<(u64, f64, f64, Option<f64>, u64)> = samples
             .by_ref()
             .map(|s| {
@@ -366,10 +307,6 @@ mod tests {
         assert_eq!(samples.tally.missing_raw, 2);
         assert_eq!(samples.tally.missing.by_column["raw"]["-9999"], 1);
         assert_eq!(samples.tally.missing.by_column["ref"]["-9999"], 1);
-        assert_eq!(
-            (samples.tally.first_t, samples.tally.last_t),
-            (Some(0.0), Some(3.0))
-        );
     }
 
     #[test]
@@ -386,7 +323,7 @@ mod tests {
             reference,
             -3.0,
             Pairing::Nearest(1.5),
-            FieldTally::new(["raw", "ref", "temp"], None),
+            FieldTally::new(),
         );
         let got: Vec<Option<f64>> = samples
             .by_ref()

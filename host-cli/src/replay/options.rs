@@ -39,6 +39,9 @@ pub struct ReplayOptions {
     pub progress: bool,
     /// Print warnings (time order, skipped rows) on standard error.
     pub warnings: bool,
+    /// Where the working range came from, for the summary (`range_source`): `default`,
+    /// `config`, `options` or `data`.
+    pub range_source: &'static str,
     /// Snapshots and device logs: resume, save, input format, log output.
     pub persist: PersistOptions,
     /// Parse the CSV on a second thread (default). `fleet` turns it off: there the
@@ -92,6 +95,7 @@ impl ReplayOptions {
             skip_bad_rows: false,
             progress: false,
             warnings: true,
+            range_source: "default",
             persist: PersistOptions::default(),
             pipelined: true,
         }

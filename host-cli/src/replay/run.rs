@@ -17,6 +17,7 @@ use steadycal_core::sample::Sample;
 use crate::baseline::BaselineOrigin;
 use crate::device_log::DeviceLogWriter;
 use crate::feed::{FeedError, ParsedRow};
+use crate::field::census::{RunCensus, Suspect};
 use crate::io::create_output;
 use crate::replay::engine::Engine;
 use crate::replay::options::ReplayOptions;
@@ -37,6 +38,8 @@ pub struct ReplayResult {
     pub error: Option<FeedError>,
     /// Events raised, by severity: `[info, warn, alarm]` (see [`crate::replay::engine::event_severity`]).
     pub raised: [u64; 3],
+    /// Values that look like undeclared missing markers (see [`crate::field::census`]).
+    pub suspects: Vec<Suspect>,
 }
 
 impl ReplayResult {
@@ -95,6 +98,7 @@ pub(crate) struct Run<'a, R: Real> {
     skipped: Vec<SkippedRow>,
     skipped_count: u64,
     rows: u64,
+    census: RunCensus,
 }
 
 impl<'a, R: Real + Display> Run<'a, R> {
@@ -132,6 +136,20 @@ impl<'a, R: Real + Display> Run<'a, R> {
             .as_deref()
             .map(ChecksSink::create)
             .transpose()?;
+        let census = {
+            // The configuration in force: a resumed snapshot's own.
+            let c = engine.monitor.config();
+            let (origin, low, high) = (
+                c.level_origin.to_f64(),
+                c.level_low.to_f64(),
+                c.level_high.to_f64(),
+            );
+            let names = &options.columns;
+            RunCensus::new(
+                [&names.raw, &names.reference, &names.temperature],
+                (origin + low, origin + high),
+            )
+        };
         Ok(Run {
             file,
             options,
@@ -147,6 +165,7 @@ impl<'a, R: Real + Display> Run<'a, R> {
             skipped: Vec::new(),
             skipped_count: 0,
             rows: 0,
+            census,
         })
     }
 
@@ -218,6 +237,12 @@ impl<'a, R: Real + Display> Run<'a, R> {
             }
         }
         let t = sample.t;
+        self.census.push(
+            t,
+            sample.raw.to_f64(),
+            sample.reference.map(R::to_f64),
+            sample.temperature.map(R::to_f64),
+        );
         let before = match self.checks_out {
             Some(_) => ChecksSink::before(&engine.monitor, &sample),
             None => None,
@@ -265,6 +290,7 @@ impl<'a, R: Real + Display> Run<'a, R> {
             skipped,
             skipped_count,
             rows,
+            census,
             ..
         } = self;
         if let Some(bar) = bar {
@@ -319,9 +345,12 @@ impl<'a, R: Real + Display> Run<'a, R> {
                     _ => Value::Null,
                 },
             );
+            census_entries(map, &census, options);
             extra(map);
         }
+        let suspects = census.suspects();
         if options.warnings {
+            census_warnings(file, &census, &suspects, options);
             let order = &engine.time_order;
             if order.repeated + order.backwards > 0 {
                 eprintln!(
@@ -337,6 +366,39 @@ impl<'a, R: Real + Display> Run<'a, R> {
             summary,
             error,
             raised: engine.raised,
+            suspects,
         })
+    }
+}
+
+/// The summary entries of the census: the time span, suspected undeclared missing markers,
+/// the checks outside the working range and where that range came from.
+fn census_entries(map: &mut Map<String, Value>, census: &RunCensus, options: &ReplayOptions) {
+    map.insert("first_t".into(), json!(census.first_t));
+    map.insert("last_t".into(), json!(census.last_t));
+    map.insert("suspected_missing_markers".into(), json!(census.suspects()));
+    map.insert("range_source".into(), json!(options.range_source));
+    map.insert(
+        "checks_outside_range".into(),
+        json!({"checks": census.checks, "outside": census.checks_outside}),
+    );
+}
+
+fn census_warnings(file: &str, census: &RunCensus, suspects: &[Suspect], options: &ReplayOptions) {
+    for suspect in suspects {
+        eprintln!("steadycal: warning: {file}: {}", suspect.warning());
+    }
+    if census.too_many_outside() {
+        let c = &options.config;
+        eprintln!(
+            "steadycal: warning: {file}: {} of {} checks ({:.1} %) have a raw value outside the working range [{}, {}] above the origin {} (range from {}); set range.low/high in the configuration or --level-low/--level-high",
+            census.checks_outside,
+            census.checks,
+            100.0 * census.checks_outside as f64 / census.checks as f64,
+            c.level_low,
+            c.level_high,
+            c.level_origin,
+            options.range_source,
+        );
     }
 }
