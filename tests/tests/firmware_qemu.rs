@@ -374,6 +374,7 @@ fn compare_with_host(
         skip_bad_rows: false,
         progress: false,
         warnings: false,
+        range_source: "default",
         persist: PersistOptions {
             save_snapshot: Some(snapshot_path.clone()),
             device_log_out: Some(log_path.clone()),
