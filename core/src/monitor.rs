@@ -307,6 +307,8 @@ pub struct Counters {
     pub below_origin: u64,
     /// Readings produced.
     pub readings: u64,
+    /// Readings produced while the rung was provisional (flag `PROVISIONAL`).
+    pub provisional_readings: u64,
 }
 
 /// The monitor of one channel: `P` fit parameters at most, `BINS` spread bins, an event
@@ -592,6 +594,12 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         }
         if !self.ladder.warmed_up(&self.ladder_config) {
             outcome.flags.insert(Flags::WARMING_UP);
+        }
+        if self.ladder.provisional(&self.ladder_config) {
+            outcome.flags.insert(Flags::PROVISIONAL);
+            if outcome.reading.is_some() {
+                self.counters.provisional_readings += 1;
+            }
         }
         self.flag_alarms(&mut outcome);
         outcome

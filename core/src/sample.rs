@@ -97,6 +97,11 @@ impl Flags {
     pub const BELOW_ORIGIN: Flags = Flags(1 << 6);
     /// Events were dropped because the event queue was full.
     pub const EVENTS_DROPPED: Flags = Flags(1 << 7);
+    /// The active rung is not yet backed by the evidence: the warm-up is not over, or
+    /// another rung leads but has not yet won (see
+    /// [`crate::ladder::PowerLadder::provisional`]). A reading is made on the active rung
+    /// all the same.
+    pub const PROVISIONAL: Flags = Flags(1 << 8);
 
     /// No flag set.
     pub const fn empty() -> Flags {
@@ -112,7 +117,7 @@ impl Flags {
     }
     /// Names of the set flags, in bit order.
     pub fn names(self) -> impl Iterator<Item = &'static str> {
-        const NAMES: [&str; 8] = [
+        const NAMES: [&str; 9] = [
             "check",
             "rejected",
             "warming_up",
@@ -121,6 +126,7 @@ impl Flags {
             "warning",
             "below_origin",
             "events_dropped",
+            "provisional",
         ];
         (0..NAMES.len())
             .filter(move |bit| self.0 & (1 << bit) != 0)

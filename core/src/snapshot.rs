@@ -53,7 +53,7 @@ use crate::wire;
 /// The four bytes every snapshot starts with.
 pub const MAGIC: [u8; 4] = *b"SCsn";
 /// The snapshot format version this build writes and reads.
-pub const FORMAT_VERSION: u16 = 3;
+pub const FORMAT_VERSION: u16 = 4;
 /// Bytes before the payload.
 pub const HEADER_LEN: usize = 14;
 /// Bytes of the trailing CRC.

@@ -690,7 +690,9 @@ walk_struct!(impl[R: Real] SpreadExponent<R> { k, standard_error, bins_used } bl
     bins_used: 0,
 });
 walk_struct!(impl[R: Real, const P: usize] RungState<R, P> { fit, transformed_sse });
-walk_struct!(impl[] Counters { samples, checks, rejected, below_origin, readings });
+walk_struct!(impl[] Counters {
+    samples, checks, rejected, below_origin, readings, provisional_readings
+});
 walk_struct!(impl[] DetectorCounts {
     spikes, out_of_range, stuck_samples, unresponsive_windows, cusum_checks, cusum_signals,
     spread_jump_signals, drift_evaluations, drift_significant, gap_samples,

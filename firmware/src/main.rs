@@ -190,12 +190,13 @@ fn run() -> Result<(), &'static str> {
     let mut line = Line::new();
     let _ = write!(
         line,
-        "summary samples={} checks={} readings={} rejected={} below_origin={} rung={} events={} events_dropped={}",
+        "summary samples={} checks={} readings={} rejected={} below_origin={} provisional_readings={} rung={} events={} events_dropped={}",
         counters.samples,
         counters.checks,
         counters.readings,
         counters.rejected,
         counters.below_origin,
+        counters.provisional_readings,
         monitor.rung().name(),
         events,
         monitor.events_dropped()

@@ -205,10 +205,11 @@ fn check_run_report(run: &Run) -> BTreeMap<String, Plot> {
         }
     }
     let drawn: usize = plots["residuals"].series.values().map(|s| s.0).sum();
-    let positive = settled
-        .iter()
-        .filter(|r| r.fitted - config.level_origin > 0.0)
-        .count();
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(run.path("summary.json")).unwrap()).unwrap();
+    // Levels are measured from the origin the monitor used (the sensor's baseline).
+    let origin = summary["level_origin"].as_f64().unwrap();
+    let positive = settled.iter().filter(|r| r.fitted - origin > 0.0).count();
     if positive <= 4000 {
         assert_eq!(drawn, positive, "small runs are drawn whole");
     } else {
@@ -218,13 +219,8 @@ fn check_run_report(run: &Run) -> BTreeMap<String, Plot> {
         );
     }
     // Spread: one error bar per usable bin, three series.
-    let levels: Vec<f64> = settled
-        .iter()
-        .map(|r| r.fitted - config.level_origin)
-        .collect();
+    let levels: Vec<f64> = settled.iter().map(|r| r.fitted - origin).collect();
     let residuals: Vec<f64> = settled.iter().map(|r| r.residual).collect();
-    let summary: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(run.path("summary.json")).unwrap()).unwrap();
     let bins = spread_bins(&levels, &residuals, config.level_low, config.level_high, 16);
     let spread = &plots["spread"].series;
     assert_eq!(spread["bin SD"].0, bins.len());

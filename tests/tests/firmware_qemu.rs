@@ -141,12 +141,13 @@ fn canonical_summary(summary: &Value) -> Result<String, String> {
         .map(|count| count.as_u64().unwrap_or(0))
         .sum();
     let mut line = format!(
-        "summary samples={} checks={} readings={} rejected={} below_origin={} rung={} events={} events_dropped={}",
+        "summary samples={} checks={} readings={} rejected={} below_origin={} provisional_readings={} rung={} events={} events_dropped={}",
         integer("samples")?,
         integer("checks")?,
         integer("readings")?,
         integer("rejected")?,
         integer("below_origin")?,
+        integer("provisional_readings")?,
         summary["rung"].as_str().ok_or("summary: no `rung`")?,
         events,
         integer("events_dropped")?,

@@ -167,8 +167,12 @@ pub const EVENT_ROWS: usize = 400;
 /// The report page of a replay run.
 pub fn run_report(run: &RunData) -> Result<String> {
     let config = &run.config.config;
-    let origin = config.level_origin;
     let summary = &run.summary;
+    // The origin the monitor measured levels from (the sensor's baseline once found); a
+    // summary written before the field existed has the configured one.
+    let origin = summary["level_origin"]
+        .as_f64()
+        .unwrap_or(config.level_origin);
     let warm_up = config.warm_up as usize;
     let checks: Vec<&checks::CheckRow> = run.checks.iter().skip(warm_up).collect();
     let alarms = run.alarms();
@@ -545,6 +549,9 @@ pub fn run_report(run: &RunData) -> Result<String> {
         "readings",
         "rejected",
         "below_origin",
+        "provisional_readings",
+        "level_origin",
+        "level_origin_source",
         "rung",
         "spread_exponent",
         "spread_exponent_se",

@@ -99,6 +99,9 @@ pub fn summary_json<R: Real + Display>(
         "readings": counters.readings,
         "rejected": counters.rejected,
         "below_origin": counters.below_origin,
+        "provisional_readings": counters.provisional_readings,
+        "level_origin": number(monitor.level_origin().value()),
+        "level_origin_source": level_origin_source(monitor),
         "last_t": number(last_t),
         "rung": monitor.rung().name(),
         "spread_exponent": exponent.map(|e| number(e.k)).unwrap_or(Value::Null),
@@ -120,6 +123,24 @@ pub fn summary_json<R: Real + Display>(
         "stopped_at": error.map(|e| Value::String(e.to_string())).unwrap_or(Value::Null),
         "caution": CAUTION,
     })
+}
+
+/// Where the monitor measures levels from: `configured` (`range.origin` given), `pending`
+/// (the sensor's baseline is found by the end of the warm-up), `baseline` (the found
+/// baseline is in use) or `kept` (the baseline could not be told from the configured
+/// origin, which is kept).
+pub fn level_origin_source<R: Real>(monitor: &Monitor<R>) -> &'static str {
+    let config = monitor.config();
+    let origin = monitor.level_origin();
+    if !config.find_baseline {
+        "configured"
+    } else if !origin.settled() {
+        "pending"
+    } else if origin.value() == config.level_origin {
+        "kept"
+    } else {
+        "baseline"
+    }
 }
 
 /// The alarms raised at the end of a run: `[{kind, severity, raised_count}]`, in kind order.
