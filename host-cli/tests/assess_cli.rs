@@ -97,17 +97,28 @@ fn uncertainty_columns_give_the_chi_squared_check() {
 
 #[test]
 fn bad_uncertainty_cells_are_refused_with_line_and_column() {
-    for cell in ["", "n/a", "-0.5"] {
+    for (cell, located) in [
+        (
+            "",
+            "lab.csv: line 6, column `u_counts`: the cell is a missing marker",
+        ),
+        (
+            "NA",
+            "lab.csv: line 6, column `u_counts`: the cell is a missing marker",
+        ),
+        ("n/a", "lab.csv:6:4: column `u_counts`: expected a number"),
+        (
+            "-0.5",
+            "lab.csv: line 6, column `u_counts`: -0.5 is not a standard uncertainty",
+        ),
+    ] {
         let (code, _, stderr) = assess_json(&["--raw-uncertainty-column", "u_counts"], Some(cell));
         assert_eq!(code, 2, "{cell:?}: {stderr}");
-        assert!(
-            stderr.contains("lab.csv: line 6, column `u_counts`"),
-            "{cell:?}: {stderr}"
-        );
+        assert!(stderr.contains(located), "{cell:?}: {stderr}");
     }
     let (code, _, stderr) = assess_json(&["--raw-uncertainty-column", "u_missing"], None);
     assert_eq!(code, 2, "{stderr}");
-    assert!(stderr.contains("no column `u_missing`"), "{stderr}");
+    assert!(stderr.contains("no `u_missing` column"), "{stderr}");
 }
 
 #[test]
@@ -117,4 +128,46 @@ fn level_origin_is_reported_and_used() {
     assert_eq!(json["model"]["level_origin"], -1.0);
     let (code, _, stderr) = assess_json(&["--level-origin", "nan"], None);
     assert_eq!(code, 2, "{stderr}");
+}
+
+#[test]
+fn missing_markers_leave_checks_out_and_are_counted() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("lab.csv");
+    let mut text = String::from("t,raw,ref\n");
+    for (i, x) in [1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0]
+        .iter()
+        .enumerate()
+    {
+        let raw = if i == 3 {
+            "-200".to_string()
+        } else {
+            format!("{}", 1.0 + 2.0 * x + 0.01 * (i % 3) as f64)
+        };
+        text.push_str(&format!("{i},{raw},{x}\n"));
+    }
+    std::fs::write(&path, text).unwrap();
+    let run = |extra: &[&str]| {
+        let output = steadycal()
+            .arg("assess")
+            .arg(&path)
+            .arg("--json")
+            .args(extra)
+            .output()
+            .unwrap();
+        let json: serde_json::Value = serde_json::from_slice(&output.stdout).unwrap();
+        (
+            json["observations"].as_u64().unwrap(),
+            String::from_utf8_lossy(&output.stderr).into_owned(),
+        )
+    };
+    // Without the marker, -200 is a measurement (an outlier the fit sees).
+    let (observations, _) = run(&[]);
+    assert_eq!(observations, 12);
+    let (observations, stderr) = run(&["--missing=-200"]);
+    assert_eq!(observations, 11);
+    assert!(
+        stderr.contains("1 row(s) with a reference but a missing `raw` were left out"),
+        "{stderr}"
+    );
 }

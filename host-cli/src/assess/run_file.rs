@@ -1,17 +1,19 @@
-//! Reading a lab calibration run from a feed CSV (the `replay` columns, named by
-//! [`ColumnNames`]: `raw` is the response, `ref` the reference, `temp` optional) into
-//! [`CalibrationData`], with optional columns of known standard uncertainties.
+//! Reading a lab calibration run into [`CalibrationData`], through the field log reader
+//! ([`crate::field::reader`]: the columns named by [`ColumnNames`], missing markers, optional
+//! columns of known standard uncertainties read as further numeric columns).
 //!
-//! Rows without a reference are ignored. A row with a reference whose `raw`, `ref` (or, when
-//! every used row has one, `temp`) is not a finite number is refused with the file and line;
-//! so is a used row whose uncertainty cell is empty, not a number or negative (a missing
-//! uncertainty is never read as a measurement).
+//! A row is a check when its reference is present; other rows are ignored. A check whose
+//! `raw` is a missing marker is left out and counted ([`RunFile::checks_without_raw`]); one
+//! whose `raw` or `ref` (or, when every check has one, `temp`) is not a finite number is
+//! refused with the file and line. So is a check whose uncertainty cell is a missing marker,
+//! not a number or negative: a missing uncertainty is never read as a measurement.
 
-use std::collections::HashMap;
 use std::path::Path;
 
 use super::CalibrationData;
-use crate::feed::{ColumnNames, CsvFeed};
+use crate::feed::ColumnNames;
+use crate::field::missing::MissingMarkers;
+use crate::field::reader::{LogLayout, LogReader, LogRow};
 
 /// Names of the optional uncertainty columns.
 #[derive(Debug, Clone, Default)]
@@ -22,135 +24,108 @@ pub struct UncertaintyColumns {
     pub reference: Option<String>,
 }
 
-/// Reads the checks (rows with a reference) of a feed CSV with the default column names.
+/// A run as read.
+#[derive(Debug, Clone)]
+pub struct RunFile {
+    /// The checks.
+    pub data: CalibrationData,
+    /// Checks left out because their `raw` cell was a missing marker.
+    pub checks_without_raw: usize,
+}
+
+/// Reads the checks (rows with a reference) of a feed CSV with the default column names and
+/// missing markers.
 pub fn read_calibration_run(path: &Path) -> anyhow::Result<CalibrationData> {
-    read_calibration_run_with(
+    Ok(read_calibration_run_with(
         path,
         &ColumnNames::default(),
         &UncertaintyColumns::default(),
-    )
+        &MissingMarkers::default(),
+    )?
+    .data)
 }
 
-/// Reads the checks (rows with a reference) of a feed CSV.
+/// Reads the checks (rows with a reference) of a run.
 pub fn read_calibration_run_with(
     path: &Path,
     names: &ColumnNames,
     uncertainty: &UncertaintyColumns,
-) -> anyhow::Result<CalibrationData> {
-    let mut feed = CsvFeed::open(path, names)?;
-    let (mut raw, mut reference, mut temperature) = (Vec::new(), Vec::new(), Vec::new());
-    let mut rows = Vec::new();
+    missing: &MissingMarkers,
+) -> anyhow::Result<RunFile> {
+    let mut raw_columns = vec![names.raw.clone()];
+    raw_columns.extend(uncertainty.raw.iter().cloned());
+    raw_columns.extend(uncertainty.reference.iter().cloned());
+    let layout = LogLayout {
+        time: (names.time != ColumnNames::default().time).then(|| vec![names.time.clone()]),
+        raw: raw_columns,
+        reference: Some(names.reference.clone()),
+        reference_required: true,
+        temperature: Some(names.temperature.clone()),
+        missing: missing.clone(),
+        ..LogLayout::default()
+    };
+    let file = path.display();
+    let mut reader = LogReader::open(path, &layout)?;
+    let mut row = LogRow::<f64>::default();
+    let mut data = CalibrationData::default();
+    let (mut u_raw, mut u_ref) = (Vec::new(), Vec::new());
+    let mut temperature = Vec::new();
     let mut all_have_temperature = true;
-    while let Some(sample) = feed.next_sample::<f64>() {
-        let sample = sample?;
-        let Some(reference_value) = sample.reference else {
+    let mut checks_without_raw = 0;
+    while let Some(result) = reader.next_row(&mut row) {
+        result?;
+        let Some(reference) = row.reference else {
             continue;
         };
-        // Data row `seq` is on line seq + 2 (the header is line 1).
-        let line = sample.seq + 2;
-        for (name, value) in [("raw", sample.raw), ("ref", reference_value)] {
+        let line = row.line;
+        let Some(raw) = row.raw.first().copied().flatten() else {
+            checks_without_raw += 1;
+            continue;
+        };
+        for (name, value) in [(&names.raw, raw), (&names.reference, reference)] {
             if !value.is_finite() {
                 anyhow::bail!(
-                    "{}: line {line}: `{name}` is {value}; an assessment needs finite numbers on every row with a reference",
-                    path.display()
+                    "{file}: line {line}: `{name}` is {value}; an assessment needs finite numbers on every row with a reference"
                 );
             }
         }
-        raw.push(sample.raw);
-        reference.push(reference_value);
-        rows.push(sample.seq);
-        match sample.temperature {
+        let mut next = 1;
+        for (column, values) in [
+            (&uncertainty.raw, &mut u_raw),
+            (&uncertainty.reference, &mut u_ref),
+        ] {
+            let Some(name) = column else { continue };
+            let cell = row.raw.get(next).copied().flatten();
+            next += 1;
+            match cell {
+                Some(u) if u.is_finite() && u >= 0.0 => values.push(u),
+                Some(u) => anyhow::bail!(
+                    "{file}: line {line}, column `{name}`: {u} is not a standard uncertainty (a finite number at or above 0)"
+                ),
+                None => anyhow::bail!(
+                    "{file}: line {line}, column `{name}`: the cell is a missing marker; a standard uncertainty is needed on every row with a reference"
+                ),
+            }
+        }
+        data.raw.push(raw);
+        data.reference.push(reference);
+        match row.temperature {
             Some(t) if t.is_finite() => temperature.push(t),
             _ => all_have_temperature = false,
         }
     }
-    if raw.is_empty() {
+    if data.raw.is_empty() {
         anyhow::bail!(
-            "{}: no row has a reference value (`{}`)",
-            path.display(),
-            names.reference
+            "{file}: no row has both a reference value (`{}`) and a raw value (`{}`)",
+            names.reference,
+            names.raw
         );
     }
-    let (raw_uncertainty, reference_uncertainty) =
-        if uncertainty.raw.is_some() || uncertainty.reference.is_some() {
-            let mut columns = read_columns(path, uncertainty, &rows)?;
-            (
-                uncertainty.raw.as_ref().and_then(|n| columns.remove(n)),
-                uncertainty
-                    .reference
-                    .as_ref()
-                    .and_then(|n| columns.remove(n)),
-            )
-        } else {
-            (None, None)
-        };
-    Ok(CalibrationData {
-        raw,
-        reference,
-        temperature: all_have_temperature.then_some(temperature),
-        raw_uncertainty,
-        reference_uncertainty,
+    data.temperature = all_have_temperature.then_some(temperature);
+    data.raw_uncertainty = uncertainty.raw.as_ref().map(|_| u_raw);
+    data.reference_uncertainty = uncertainty.reference.as_ref().map(|_| u_ref);
+    Ok(RunFile {
+        data,
+        checks_without_raw,
     })
-}
-
-/// The uncertainty columns at the given data rows (0-based `seq`, increasing).
-fn read_columns(
-    path: &Path,
-    names: &UncertaintyColumns,
-    rows: &[u64],
-) -> anyhow::Result<HashMap<String, Vec<f64>>> {
-    let mut reader = csv::ReaderBuilder::new()
-        .flexible(true)
-        .from_path(path)
-        .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
-    let header = reader
-        .headers()
-        .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?
-        .clone();
-    let mut wanted = Vec::new();
-    for name in [&names.raw, &names.reference].into_iter().flatten() {
-        let index = header
-            .iter()
-            .position(|h| h.trim() == name)
-            .ok_or_else(|| {
-                anyhow::anyhow!(
-                    "{}: line 1: no column `{name}` (the uncertainty column named on the command line)",
-                    path.display()
-                )
-            })?;
-        wanted.push((name.clone(), index));
-    }
-    let mut columns: HashMap<String, Vec<f64>> = wanted
-        .iter()
-        .map(|(n, _)| (n.clone(), Vec::new()))
-        .collect();
-    let mut next = rows.iter().peekable();
-    for (seq, record) in reader.records().enumerate() {
-        let Some(&&row) = next.peek() else { break };
-        let record = record.map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
-        if seq as u64 != row {
-            continue;
-        }
-        next.next();
-        let line = seq + 2;
-        for (name, index) in &wanted {
-            let cell = record.get(*index).unwrap_or("").trim();
-            let value: f64 = cell.parse().map_err(|_| {
-                anyhow::anyhow!(
-                    "{}: line {line}, column `{name}`: `{cell}` is not a number (a standard uncertainty is needed on every row with a reference)",
-                    path.display()
-                )
-            })?;
-            if !(value.is_finite() && value >= 0.0) {
-                anyhow::bail!(
-                    "{}: line {line}, column `{name}`: {value} is not a finite number at or above 0",
-                    path.display()
-                );
-            }
-            if let Some(column) = columns.get_mut(name) {
-                column.push(value);
-            }
-        }
-    }
-    Ok(columns)
 }

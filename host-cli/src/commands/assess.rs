@@ -70,6 +70,11 @@ pub struct AssessArgs {
     /// 95 % on the headline fit's degrees of freedom].
     #[arg(long, value_name = "K")]
     pub coverage_factor: Option<f64>,
+    /// A cell text that means "no value" (repeatable; empty cells and NA always do, and the
+    /// config's columns.missing adds its own), e.g. --missing=-200. A check whose raw cell is
+    /// missing is left out and counted; a missing uncertainty is refused.
+    #[arg(long, value_name = "TEXT", value_parser = crate::field::missing::parse_marker, allow_hyphen_values = true)]
+    pub missing: Vec<String>,
     #[command(flatten)]
     pub columns: ColumnArgs,
 }
@@ -90,14 +95,28 @@ pub fn run(args: AssessArgs) -> anyhow::Result<ExitCode> {
         None => steadycal_config::ConfigFile::default(),
     };
     let columns = super::column_names(&config, &args.columns);
-    let data = assess::run_file::read_calibration_run_with(
+    let mut markers = config.columns.missing.clone().unwrap_or_default();
+    markers.extend(args.missing.iter().cloned());
+    let missing = crate::field::missing::MissingMarkers::new(&markers)
+        .map_err(|e| anyhow::anyhow!("--missing / columns.missing: {e}"))?;
+    let run_file = assess::run_file::read_calibration_run_with(
         &args.feed,
         &columns,
         &assess::run_file::UncertaintyColumns {
             raw: args.raw_uncertainty_column.clone(),
             reference: args.ref_uncertainty_column.clone(),
         },
+        &missing,
     )?;
+    if run_file.checks_without_raw > 0 {
+        eprintln!(
+            "steadycal: {}: {} row(s) with a reference but a missing `{}` were left out",
+            args.feed.display(),
+            run_file.checks_without_raw,
+            columns.raw
+        );
+    }
+    let data = run_file.data;
     if let Some(origin) = args.level_origin {
         if !origin.is_finite() {
             anyhow::bail!("--level-origin: {origin} is not a finite number");
