@@ -20,8 +20,8 @@
 //! χ² check) or of both variables ([`errors_in_both`]). The headline fit (`headline_fit`),
 //! which the limits and the inverse table use, is the weighted fit when the weights were
 //! chosen or known, or (auto) when weighting is advised (the recommended rung is a power rung
-//! and the Box–Cox interval excludes λ = 1; without Box–Cox, Koenker's test at level α); OLS
-//! otherwise.
+//! and the Box–Cox interval excludes λ = 1; without Box–Cox, Koenker's test at level α and
+//! the rung nearest to `λ = 1 − k`); OLS otherwise.
 //!
 //! [`assess`] runs one step per part of the assessment, in [`steps`].
 
@@ -353,8 +353,13 @@ pub fn assess(data: &CalibrationData, options: &AssessOptions) -> Result<Assessm
     let scatter = steps::scatter_tests(&run, data, &ols.fit, options, &mut notes)?;
     let spread = steps::spread(&run, data, &ols.fit, options, &mut notes);
     let boxcox = steps::power_transform(&run, data, &ols.fit, options, &mut notes);
-    let (recommended, weighting_preferred) =
-        steps::advice(boxcox.as_ref(), &scatter.koenker, options.alpha, &mut notes);
+    let (recommended, weighting_preferred) = steps::advice(
+        boxcox.as_ref(),
+        &scatter.koenker,
+        spread.as_ref(),
+        options.alpha,
+        &mut notes,
+    );
     let weighted = steps::weighted_fit(&run, data, options, &ols.fit, spread.as_ref(), &mut notes)?;
     let use_wls = steps::headline_is_weighted(options, data, weighting_preferred, &weighted);
     let (headline_fit, reading_spread) = match (&weighted, use_wls) {

@@ -6,6 +6,7 @@
 //! missing; none panics on data (errors are [`AssessError`]s).
 
 use nalgebra::DMatrix;
+use steadycal_core::transform::Rung;
 
 use super::boxcox::{self, BoxCoxAnalysis};
 use super::design::CalibrationModel;
@@ -207,15 +208,30 @@ pub(super) fn power_transform(
     }
 }
 
-/// The recommended rung and whether weighting is advised (never with `identity`).
+/// The recommended rung and whether weighting is advised (never with `identity`). Without
+/// Box–Cox, Koenker's test at level α decides whether the scatter tracks the level and the
+/// rung nearest to `λ = 1 − k` of the spread model is recommended.
 pub(super) fn advice(
     boxcox: Option<&BoxCoxAnalysis>,
     koenker: &BreuschPagan,
+    spread: Option<&SpreadModel>,
     alpha: f64,
     notes: &mut Vec<String>,
 ) -> (&'static str, bool) {
     let Some(analysis) = boxcox else {
-        return ("identity", koenker.p_value < alpha);
+        let rejected = koenker.p_value < alpha;
+        let rung = match spread {
+            Some(spread) if rejected => Rung::nearest(1.0 - spread.k),
+            _ => Rung::Identity,
+        };
+        if rejected {
+            notes.push(format!(
+                "without Box-Cox the rung comes from the spread exponent: lambda = 1 - k = {:.3}, nearest rung {}",
+                spread.map_or(f64::NAN, |s| 1.0 - s.k),
+                rung.name()
+            ));
+        }
+        return (rung.name(), rejected && rung != Rung::Identity);
     };
     if analysis.at_search_bound {
         notes.push("Box-Cox lambda sits on the end of the search range [-3, 3]".into());
