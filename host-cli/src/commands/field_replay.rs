@@ -166,6 +166,25 @@ pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Re
     }
     let file = options.feed.display();
     if options.warnings {
+        if let (Some(join), Some((path, ..))) = (&tally.join, &plan.reference) {
+            if join.backwards > 0 {
+                let lines: Vec<String> = join.backwards_lines.iter().map(u64::to_string).collect();
+                eprintln!(
+                    "steadycal: warning: {}: {} reference rows go back in time or repeat one (lines {}); they were left out of the join, the other rows were paired as usual",
+                    path.display(),
+                    join.backwards,
+                    lines.join(", ")
+                );
+            }
+            if join.unpaired > 0 {
+                eprintln!(
+                    "steadycal: warning: {}: {} of {} reference rows found no sensor sample to pair with (counted in the summary's `join`)",
+                    path.display(),
+                    join.unpaired,
+                    join.reference_rows
+                );
+            }
+        }
         let c = &options.config;
         for value in plan
             .sensor
