@@ -1,5 +1,5 @@
 //! steadycal-cli: the host side of steadycal, as a library the `steadycal` binary is a thin
-//! layer over: feed reading ([`feed`], numeric cells in [`decimal`]), the configuration file ([`config`]), replay and the
+//! layer over: feed reading ([`feed`]), the configuration file ([`config`]), replay and the
 //! engine shared by every command ([`replay`]), the simulator ([`simulate`]), the batch
 //! assessment of a lab calibration run ([`assess`]), terminal conventions ([`terminal`]) and
 //! the subcommands with their arguments ([`commands`]), snapshot files ([`snapshot_file`])
@@ -11,7 +11,6 @@ pub mod baseline;
 pub mod commands;
 pub mod commission;
 pub use steadycal_config as config;
-pub mod decimal;
 pub mod device_log;
 pub mod feed;
 pub mod field;

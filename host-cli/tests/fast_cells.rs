@@ -1,9 +1,9 @@
-//! The fast numeric cell parser (`steadycal_cli::decimal`) against `str::parse`: for random
+//! The fast numeric cell parser (`steadycal_cli::feed::decimal`) against `str::parse`: for random
 //! finite values printed in many ways, random digit strings, and the `nan`/`inf` spellings,
 //! the two give the same bits (or both refuse the text), for `f32` and for `f64`.
 
 use proptest::prelude::*;
-use steadycal_cli::decimal::parse_whole;
+use steadycal_cli::feed::decimal::parse_whole;
 
 /// Parses `text` both ways, in both types, and compares bit for bit.
 fn check(text: &str) -> Result<(), TestCaseError> {
