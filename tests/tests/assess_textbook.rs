@@ -200,3 +200,37 @@ fn bad_input_is_an_error_not_a_panic() {
     };
     assert!(assess(&data, &AssessOptions::default()).is_err());
 }
+
+/// Miller, J. N. & Miller, J. C., Statistics and Chemometrics for Analytical Chemistry,
+/// weighted regression worked example (absorbance of standards 0–10 μg/ml with the SD of
+/// each standard; section on weighted regression lines, edition and page not checked: the
+/// book could not be reached here, from memory). The same data and printed results are the
+/// test case of the npm package ml-regression-weighted-linear
+/// (josoriom/regression-weighted-linear, `src/__tests__/test.test.ts`): the weighted line
+/// y = 0.0738·x + 0.0091 and the concentrations 1.23 and 8.01 μg/ml of absorbances 0.100 and
+/// 0.600. Weights 1/s² (the book normalizes them to sum to n, which leaves the line
+/// unchanged); `assess` takes the SDs as known uncertainties of the responses.
+#[test]
+fn miller_and_miller_weighted_regression() {
+    let data = CalibrationData {
+        raw: vec![0.009, 0.158, 0.301, 0.472, 0.577, 0.739],
+        reference: vec![0.0, 2.0, 4.0, 6.0, 8.0, 10.0],
+        raw_uncertainty: Some(vec![0.001, 0.004, 0.010, 0.013, 0.017, 0.022]),
+        ..Default::default()
+    };
+    let options = AssessOptions {
+        inverse_readings: Some(vec![0.100, 0.600]),
+        ..AssessOptions::default()
+    };
+    let a = assess(&data, &options).unwrap();
+    let fit = &a.wls.as_ref().expect("weighted fit").report.fit;
+    println!(
+        "weighted line: a = {}, b = {}",
+        fit.params[0], fit.params[1]
+    );
+    assert_eq!(format!("{:.4}", fit.params[1]), "0.0738");
+    assert_eq!(format!("{:.4}", fit.params[0]), "0.0091");
+    let rows = &a.inverse_prediction.rows;
+    assert_eq!(format!("{:.2}", rows[0].value.unwrap()), "1.23");
+    assert_eq!(format!("{:.2}", rows[1].value.unwrap()), "8.01");
+}
