@@ -3,10 +3,14 @@
 //! sample), or carried by a resumed snapshot; and the CUSUM's decision interval in force
 //! with the in-control run length it gives.
 
-use serde_json::{json, Value};
+use std::fmt::Display;
+
+use serde::Serialize;
 use steadycal_config::{arl, Commissioned};
 use steadycal_core::monitor::Monitor;
 use steadycal_core::real::Real;
+
+use crate::number::Shortest;
 
 /// The origin of a monitor's baseline.
 #[derive(Clone, Debug, PartialEq)]
@@ -72,32 +76,67 @@ impl BaselineOrigin {
     }
 
     /// The summary's `drift.baseline` fields saying where it came from.
-    pub fn json(&self) -> Value {
+    pub fn summary(&self) -> OriginSummary {
+        let mut entries = OriginSummary::default();
         match self {
-            BaselineOrigin::Pending => json!({"source": Value::Null}),
+            BaselineOrigin::Pending => {}
             BaselineOrigin::Commissioning {
                 source,
                 residual_sd,
-            } => json!({
-                "source": "commissioning",
-                "commissioned_from": source,
-                "residual_sd": residual_sd,
-            }),
-            BaselineOrigin::Frozen { seq } => json!({"source": "frozen", "frozen_at_seq": seq}),
+            } => {
+                entries.source = Some("commissioning");
+                entries.commissioned_from = Some(source.clone());
+                entries.residual_sd = Some(*residual_sd);
+            }
+            BaselineOrigin::Frozen { seq } => {
+                entries.source = Some("frozen");
+                entries.frozen_at_seq = Some(*seq);
+            }
         }
+        entries
     }
 }
 
+/// Where a baseline came from, as the summary writes it (`source` always, null while
+/// pending; the other fields only for their origin).
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct OriginSummary {
+    /// `commissioning`, `frozen`, or null while pending.
+    pub source: Option<&'static str>,
+    /// The commissioning section's `source`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub commissioned_from: Option<Option<String>>,
+    /// The commissioning fit's residual scale.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub residual_sd: Option<Option<f64>>,
+    /// The sample after which the monitor froze its own.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub frozen_at_seq: Option<Option<u64>>,
+}
+
 /// The summary's CUSUM figures: `cusum_k`, `cusum_h` in force and the two-sided in-control
-/// average run length they give (checks; Brook & Evans, see `steadycal_config::arl`).
-/// `number` writes a value of the run's float type.
-pub fn cusum_json<R: Real>(monitor: &Monitor<R>, number: impl Fn(R) -> Value) -> Value {
-    let cusum = monitor.config().detect.cusum;
-    let (k, h) = (cusum.reference_value, cusum.decision_interval);
-    let run_length = arl::two_sided(k.to_f64(), h.to_f64(), 0.0);
-    json!({
-        "cusum_k": number(k),
-        "cusum_h": number(h),
-        "cusum_in_control_run_length": if run_length.is_finite() { json!(run_length.round()) } else { Value::Null },
-    })
+/// average run length they give (checks, rounded; Brook & Evans, see
+/// `steadycal_config::arl`; null when infinite).
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct CusumSummary {
+    /// Reference value k.
+    pub cusum_k: Shortest,
+    /// Decision interval h.
+    pub cusum_h: Shortest,
+    /// In-control average run length.
+    pub cusum_in_control_run_length: Option<f64>,
+}
+
+impl CusumSummary {
+    /// The figures of `monitor`'s configuration.
+    pub fn of<R: Real + Display>(monitor: &Monitor<R>) -> Self {
+        let cusum = monitor.config().detect.cusum;
+        let (k, h) = (cusum.reference_value, cusum.decision_interval);
+        let run_length = arl::two_sided(k.to_f64(), h.to_f64(), 0.0);
+        CusumSummary {
+            cusum_k: Shortest::of(k),
+            cusum_h: Shortest::of(h),
+            cusum_in_control_run_length: run_length.is_finite().then(|| run_length.round()),
+        }
+    }
 }

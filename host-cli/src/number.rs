@@ -38,6 +38,19 @@ pub fn shortest_f64<R: Real + Display>(value: R) -> Option<f64> {
     f64::from_str(&value.to_string()).ok()
 }
 
+/// A float in a typed document, written as [`number`] writes it: the shortest decimal in
+/// the run's float type, null for nan and infinities.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize)]
+#[serde(transparent)]
+pub struct Shortest(pub Option<f64>);
+
+impl Shortest {
+    /// `value` in its own float type.
+    pub fn of<R: Real + Display>(value: R) -> Self {
+        Shortest(shortest_f64(value))
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -51,5 +64,15 @@ mod tests {
         assert_eq!(number(f64::NEG_INFINITY), Value::Null);
         assert_eq!(number(f32::from_bits(1)).to_string(), "1e-45");
         assert_eq!(number(f32::MAX).to_string(), "3.4028235e+38");
+    }
+
+    #[test]
+    fn typed_numbers_write_as_values_do() {
+        for value in [0.1f32, -0.0, f32::NAN, f32::MAX, 1e-45, 123.456] {
+            assert_eq!(
+                serde_json::to_string(&Shortest::of(value)).unwrap(),
+                serde_json::to_string(&number(value)).unwrap()
+            );
+        }
     }
 }

@@ -8,55 +8,85 @@ use std::io::Write;
 use std::path::Path;
 
 use anyhow::Result;
-use serde_json::{json, Map, Value};
+use serde::Serialize;
+use serde_json::Value;
 use steadycal_core::event::AlarmKind;
 use steadycal_core::monitor::Monitor;
 use steadycal_core::real::Real;
 use steadycal_core::transform::Rung;
 
-use crate::baseline::cusum_json;
+use crate::baseline::{BaselineOrigin, CusumSummary, OriginSummary};
 use crate::feed::FeedError;
 use crate::io::create_output;
-use crate::number::number;
+use crate::number::Shortest;
 use crate::precision::Precision;
 use crate::replay::engine::Engine;
+use crate::replay::time_order::TimeOrder;
 
 /// The caution every report and summary carries.
 pub const CAUTION: &str = "steadycal supports, and does not replace, calibration under the applicable standards, local codes and licensed practice; an alarm cleared by the tool is not a certified calibration.";
 
 impl<R: Real + Display> Engine<R> {
-    /// The summary document: [`summary_json`] plus `raised` (events by severity) and
-    /// `time_order`.
+    /// The summary document of the run so far, as a JSON value (keys sorted) that each
+    /// input and command adds its own entries to.
     pub fn summary(&self, file: &str, precision: Precision, error: Option<&FeedError>) -> Value {
-        let mut summary = summary_json(
-            &self.monitor,
-            file,
+        serde_json::to_value(self.typed_summary(file, precision, error)).unwrap_or(Value::Null)
+    }
+
+    /// The summary document of the run so far.
+    pub fn typed_summary<'a>(
+        &'a self,
+        file: &'a str,
+        precision: Precision,
+        error: Option<&FeedError>,
+    ) -> Summary<'a> {
+        let monitor = &self.monitor;
+        let counters = monitor.counters();
+        let exponent = monitor.spread_exponent();
+        let likelihoods = monitor.ladder().log_likelihoods();
+        Summary {
+            feed: file,
             precision,
-            &self.counts,
-            self.last_t,
-            error,
-        );
-        if let Value::Object(map) = &mut summary {
-            map.insert(
-                "raised".into(),
-                json!({"info": self.raised[0], "warn": self.raised[1], "alarm": self.raised[2]}),
-            );
-            map.insert("time_order".into(), json!(self.time_order));
-            if let Some(Value::Object(detectors)) = map.get_mut("detectors") {
-                if let Value::Object(cusum) = cusum_json(&self.monitor, number) {
-                    detectors.extend(cusum);
-                }
-            }
-            if let Some(Value::Object(baseline)) = map
-                .get_mut("drift")
-                .and_then(|drift| drift.get_mut("baseline"))
-            {
-                if let Value::Object(origin) = self.baseline.json() {
-                    baseline.extend(origin);
-                }
-            }
+            samples: counters.samples,
+            checks: counters.checks,
+            readings: counters.readings,
+            rejected: counters.rejected,
+            below_origin: counters.below_origin,
+            provisional_readings: counters.provisional_readings,
+            level_origin: Shortest::of(monitor.level_origin().value()),
+            level_origin_source: level_origin_source(monitor),
+            last_t: Shortest::of(self.last_t),
+            rung: monitor.rung().name(),
+            spread_exponent: exponent.map(|e| Shortest::of(e.k)),
+            spread_exponent_se: exponent.map(|e| Shortest::of(e.standard_error)),
+            koenker_statistic: monitor
+                .spread()
+                .koenker()
+                .map(|k| Shortest::of(k.statistic)),
+            params: Parameters::of(&monitor.parameters()),
+            residual_sd: Shortest::of(monitor.ladder().active_fit().residual_variance().sqrt()),
+            log_likelihood: likelihoods
+                .map(|l| {
+                    Rung::ALL
+                        .iter()
+                        .map(|rung| (rung.name(), Shortest::of(l[rung.index()])))
+                        .collect()
+                })
+                .unwrap_or_default(),
+            events: &self.counts,
+            events_dropped: monitor.events_dropped(),
+            alarms: alarms(monitor),
+            drift: drift(monitor, &self.baseline),
+            detectors: Detectors::of(monitor),
+            stopped_at: error.map(|e| e.to_string()),
+            caution: CAUTION,
+            raised: Raised {
+                info: self.raised[0],
+                warn: self.raised[1],
+                alarm: self.raised[2],
+            },
+            time_order: &self.time_order,
         }
-        summary
     }
 }
 
@@ -68,61 +98,6 @@ pub fn write_summary(path: &Path, summary: &Value) -> Result<()> {
     out.write_all(b"\n")?;
     out.flush()?;
     Ok(())
-}
-
-/// The summary document of a monitor after a run.
-pub fn summary_json<R: Real + Display>(
-    monitor: &Monitor<R>,
-    file: &str,
-    precision: Precision,
-    counts: &BTreeMap<&'static str, u64>,
-    last_t: f64,
-    error: Option<&FeedError>,
-) -> Value {
-    let counters = monitor.counters();
-    let params = monitor.parameters();
-    let exponent = monitor.spread_exponent();
-    let koenker = monitor.spread().koenker();
-    let fit = monitor.ladder().active_fit();
-    let likelihoods = monitor.ladder().log_likelihoods();
-    let mut rungs = Map::new();
-    if let Some(likelihoods) = likelihoods {
-        for rung in Rung::ALL {
-            rungs.insert(rung.name().into(), number(likelihoods[rung.index()]));
-        }
-    }
-    json!({
-        "feed": file,
-        "precision": precision,
-        "samples": counters.samples,
-        "checks": counters.checks,
-        "readings": counters.readings,
-        "rejected": counters.rejected,
-        "below_origin": counters.below_origin,
-        "provisional_readings": counters.provisional_readings,
-        "level_origin": number(monitor.level_origin().value()),
-        "level_origin_source": level_origin_source(monitor),
-        "last_t": number(last_t),
-        "rung": monitor.rung().name(),
-        "spread_exponent": exponent.map(|e| number(e.k)).unwrap_or(Value::Null),
-        "spread_exponent_se": exponent.map(|e| number(e.standard_error)).unwrap_or(Value::Null),
-        "koenker_statistic": koenker.map(|k| number(k.statistic)).unwrap_or(Value::Null),
-        "params": {
-            "offset": number(params[0]),
-            "gain": number(params[1]),
-            "quadratic": number(params[2]),
-            "temperature": number(params[3]),
-        },
-        "residual_sd": number(fit.residual_variance().sqrt()),
-        "log_likelihood": Value::Object(rungs),
-        "events": counts,
-        "events_dropped": monitor.events_dropped(),
-        "alarms": alarms_json(monitor),
-        "drift": drift_json(monitor),
-        "detectors": detectors_json(monitor),
-        "stopped_at": error.map(|e| Value::String(e.to_string())).unwrap_or(Value::Null),
-        "caution": CAUTION,
-    })
 }
 
 /// Where the monitor measures levels from: `configured` (`range.origin` given), `pending`
@@ -143,75 +118,253 @@ pub fn level_origin_source<R: Real>(monitor: &Monitor<R>) -> &'static str {
     }
 }
 
-/// The alarms raised at the end of a run: `[{kind, severity, raised_count}]`, in kind order.
-pub fn alarms_json<R: Real>(monitor: &Monitor<R>) -> Value {
+/// The summary document of a run (written with its keys in alphabetical order).
+#[derive(Debug, Serialize)]
+pub struct Summary<'a> {
+    /// The feed as given.
+    pub feed: &'a str,
+    /// Float type of the core.
+    pub precision: Precision,
+    /// Samples pushed.
+    pub samples: u64,
+    /// Samples with a reference.
+    pub checks: u64,
+    /// Readings given.
+    pub readings: u64,
+    /// Samples rejected.
+    pub rejected: u64,
+    /// Samples below the level origin.
+    pub below_origin: u64,
+    /// Readings flagged provisional.
+    pub provisional_readings: u64,
+    /// The level origin in use.
+    pub level_origin: Shortest,
+    /// Where the level origin came from ([`level_origin_source`]).
+    pub level_origin_source: &'static str,
+    /// Time of the last sample.
+    pub last_t: Shortest,
+    /// The active rung.
+    pub rung: &'static str,
+    /// Spread exponent k, once evaluated.
+    pub spread_exponent: Option<Shortest>,
+    /// Its standard error.
+    pub spread_exponent_se: Option<Shortest>,
+    /// Koenker's statistic, once evaluated.
+    pub koenker_statistic: Option<Shortest>,
+    /// The calibration parameters.
+    pub params: Parameters,
+    /// Residual scale of the active fit.
+    pub residual_sd: Shortest,
+    /// Log-likelihood of each rung (empty before the likelihoods start).
+    pub log_likelihood: BTreeMap<&'static str, Shortest>,
+    /// Events by kind.
+    pub events: &'a BTreeMap<&'static str, u64>,
+    /// Events lost to a full queue.
+    pub events_dropped: u32,
+    /// Alarms raised at the end.
+    pub alarms: Vec<AlarmSummary>,
+    /// The baseline and the drift against it (null before a baseline exists).
+    pub drift: Option<Drift>,
+    /// Per-detector counts and the CUSUM in force.
+    pub detectors: Detectors,
+    /// The error that stopped the run.
+    pub stopped_at: Option<String>,
+    /// [`CAUTION`].
+    pub caution: &'static str,
+    /// Events by severity.
+    pub raised: Raised,
+    /// Time order of the rows.
+    pub time_order: &'a TimeOrder,
+}
+
+/// Calibration parameters (offset, gain, quadratic and temperature terms).
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct Parameters {
+    /// Offset.
+    pub offset: Shortest,
+    /// Gain.
+    pub gain: Shortest,
+    /// Quadratic term.
+    pub quadratic: Shortest,
+    /// Temperature term.
+    pub temperature: Shortest,
+}
+
+impl Parameters {
+    /// The first four of `p`.
+    pub fn of<R: Real + Display>(p: &[R]) -> Self {
+        Parameters {
+            offset: Shortest::of(p[0]),
+            gain: Shortest::of(p[1]),
+            quadratic: Shortest::of(p[2]),
+            temperature: Shortest::of(p[3]),
+        }
+    }
+}
+
+/// Events by severity.
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct Raised {
+    /// Info events.
+    pub info: u64,
+    /// Warnings.
+    pub warn: u64,
+    /// Alarms.
+    pub alarm: u64,
+}
+
+/// One alarm raised at the end of a run.
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct AlarmSummary {
+    /// Its kind.
+    pub kind: &'static str,
+    /// Its severity.
+    pub severity: &'static str,
+    /// How often it was raised (null for `spread_tracks_level`, which keeps no count).
+    pub times_raised: Option<u32>,
+}
+
+/// The alarms raised at the end of a run, in kind order.
+pub fn alarms<R: Real>(monitor: &Monitor<R>) -> Vec<AlarmSummary> {
     let raised = monitor.raised_alarms();
-    let list: Vec<Value> = AlarmKind::ALL
+    AlarmKind::ALL
         .iter()
         .filter_map(|&kind| {
-            raised[kind.index()].map(|severity| {
-                json!({
-                    "kind": kind.name(),
-                    "severity": severity.name(),
-                    // Only the detector alarms keep a raise count.
-                    "times_raised": if kind == AlarmKind::SpreadTracksLevel {
-                        Value::Null
-                    } else {
-                        json!(monitor.alarm_raises(kind))
-                    },
-                })
+            raised[kind.index()].map(|severity| AlarmSummary {
+                kind: kind.name(),
+                severity: severity.name(),
+                // Only the detector alarms keep a raise count.
+                times_raised: (kind != AlarmKind::SpreadTracksLevel)
+                    .then(|| monitor.alarm_raises(kind)),
             })
         })
-        .collect();
-    Value::Array(list)
+        .collect()
 }
 
-/// The baseline and the drift against it (reported whether or not it alarms; `evaluated`
-/// false before the first evaluation), or null before a baseline exists.
-pub fn drift_json<R: Real + Display>(monitor: &Monitor<R>) -> Value {
-    let Some(baseline) = monitor.baseline() else {
-        return Value::Null;
-    };
-    let p = baseline.parameters;
-    let baseline = json!({
-        "offset": number(p[0]),
-        "gain": number(p[1]),
-        "quadratic": number(p[2]),
-        "temperature": number(p[3]),
+/// The alarms raised at the end of a run as a JSON value (for `snapshot inspect`).
+pub fn alarms_json<R: Real>(monitor: &Monitor<R>) -> Value {
+    serde_json::to_value(alarms(monitor)).unwrap_or(Value::Null)
+}
+
+/// The drift baseline: its parameters and where it came from.
+#[derive(Clone, Debug, Serialize)]
+pub struct DriftBaseline {
+    /// The baseline's parameters.
+    #[serde(flatten)]
+    pub params: Parameters,
+    /// Where it came from.
+    #[serde(flatten)]
+    pub origin: OriginSummary,
+}
+
+/// The baseline and the drift against it (`evaluated` false before the first evaluation).
+#[derive(Clone, Debug, Serialize)]
+pub struct Drift {
+    /// The baseline.
+    pub baseline: DriftBaseline,
+    /// True once the drift test ran.
+    pub evaluated: bool,
+    /// The last evaluation, when there is one.
+    #[serde(flatten, skip_serializing_if = "Option::is_none")]
+    pub status: Option<DriftStatus>,
+}
+
+/// The last drift evaluation.
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct DriftStatus {
+    /// Gain change.
+    pub gain_change: Option<Shortest>,
+    /// Its uncertainty.
+    pub gain_change_uncertainty: Option<Shortest>,
+    /// Offset change.
+    pub offset_change: Shortest,
+    /// Its uncertainty.
+    pub offset_change_uncertainty: Shortest,
+    /// Wald statistic.
+    pub wald: Shortest,
+    /// Its threshold.
+    pub wald_threshold: Shortest,
+    /// Degrees of freedom.
+    pub dof: u8,
+    /// Significant drift.
+    pub significant: bool,
+    /// Gain change beyond tolerance.
+    pub gain_beyond_tolerance: bool,
+    /// Offset change beyond tolerance.
+    pub offset_beyond_tolerance: bool,
+}
+
+/// The baseline and the drift against it (reported whether or not it alarms), or `None`
+/// before a baseline exists.
+pub fn drift<R: Real + Display>(monitor: &Monitor<R>, origin: &BaselineOrigin) -> Option<Drift> {
+    let baseline = monitor.baseline()?;
+    let status = monitor.drift_status().map(|status| DriftStatus {
+        gain_change: status.gain_change.map(Shortest::of),
+        gain_change_uncertainty: status.gain_uncertainty.map(Shortest::of),
+        offset_change: Shortest::of(status.offset_change),
+        offset_change_uncertainty: Shortest::of(status.offset_uncertainty),
+        wald: Shortest::of(status.wald),
+        wald_threshold: Shortest::of(status.threshold),
+        dof: status.dof,
+        significant: status.significant,
+        gain_beyond_tolerance: status.gain_beyond_tolerance,
+        offset_beyond_tolerance: status.offset_beyond_tolerance,
     });
-    let Some(status) = monitor.drift_status() else {
-        return json!({ "baseline": baseline, "evaluated": false });
-    };
-    let optional = |value: Option<R>| value.map(number).unwrap_or(Value::Null);
-    json!({
-        "baseline": baseline,
-        "evaluated": true,
-        "gain_change": optional(status.gain_change),
-        "gain_change_uncertainty": optional(status.gain_uncertainty),
-        "offset_change": number(status.offset_change),
-        "offset_change_uncertainty": number(status.offset_uncertainty),
-        "wald": number(status.wald),
-        "wald_threshold": number(status.threshold),
-        "dof": status.dof,
-        "significant": status.significant,
-        "gain_beyond_tolerance": status.gain_beyond_tolerance,
-        "offset_beyond_tolerance": status.offset_beyond_tolerance,
+    Some(Drift {
+        baseline: DriftBaseline {
+            params: Parameters::of(&baseline.parameters),
+            origin: origin.summary(),
+        },
+        evaluated: status.is_some(),
+        status,
     })
 }
 
-/// Per-detector counts (signals and screened samples, not raised alarms).
-pub fn detectors_json<R: Real>(monitor: &Monitor<R>) -> Value {
-    let counts = monitor.detector_counts();
-    json!({
-        "spikes": counts.spikes,
-        "out_of_range": counts.out_of_range,
-        "stuck_samples": counts.stuck_samples,
-        "unresponsive_windows": counts.unresponsive_windows,
-        "cusum_checks": counts.cusum_checks,
-        "cusum_signals": counts.cusum_signals,
-        "spread_jump_signals": counts.spread_jump_signals,
-        "drift_evaluations": counts.drift_evaluations,
-        "drift_significant": counts.drift_significant,
-        "gap_samples": counts.gap_samples,
-    })
+/// Per-detector counts (signals and screened samples, not raised alarms) and the CUSUM in
+/// force.
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct Detectors {
+    /// Spikes rejected.
+    pub spikes: u64,
+    /// Samples out of the physical range.
+    pub out_of_range: u64,
+    /// Samples in stuck runs.
+    pub stuck_samples: u64,
+    /// Windows without response.
+    pub unresponsive_windows: u64,
+    /// Checks the CUSUM saw.
+    pub cusum_checks: u64,
+    /// CUSUM signals.
+    pub cusum_signals: u64,
+    /// Spread-jump signals.
+    pub spread_jump_signals: u64,
+    /// Drift evaluations.
+    pub drift_evaluations: u64,
+    /// Significant drift evaluations.
+    pub drift_significant: u64,
+    /// Samples in reference gaps.
+    pub gap_samples: u64,
+    /// The CUSUM in force.
+    #[serde(flatten)]
+    pub cusum: CusumSummary,
+}
+
+impl Detectors {
+    /// The counts of `monitor`.
+    pub fn of<R: Real + Display>(monitor: &Monitor<R>) -> Self {
+        let counts = monitor.detector_counts();
+        Detectors {
+            spikes: counts.spikes,
+            out_of_range: counts.out_of_range,
+            stuck_samples: counts.stuck_samples,
+            unresponsive_windows: counts.unresponsive_windows,
+            cusum_checks: counts.cusum_checks,
+            cusum_signals: counts.cusum_signals,
+            spread_jump_signals: counts.spread_jump_signals,
+            drift_evaluations: counts.drift_evaluations,
+            drift_significant: counts.drift_significant,
+            gap_samples: counts.gap_samples,
+            cusum: CusumSummary::of(monitor),
+        }
+    }
 }
