@@ -93,12 +93,15 @@ pub struct Census {
     cells: u64,
     low: BTreeMap<Key, u64>,
     high: BTreeMap<Key, u64>,
-    /// The largest key in `low` once it is full (a cheap test for most values).
-    low_bound: Option<Key>,
-    high_bound: Option<Key>,
+    /// The largest value in `low` once it is full, +∞ before (a cheap test for most
+    /// values: one comparison).
+    low_bound: f64,
+    /// The smallest value in `high` once it is full, −∞ before.
+    high_bound: f64,
     sample: Vec<f64>,
     stride: u64,
-    seen: u64,
+    /// Values until the next one is sampled (a countdown instead of a remainder).
+    until_sample: u64,
 }
 
 impl Census {
@@ -110,11 +113,11 @@ impl Census {
             cells: 0,
             low: BTreeMap::new(),
             high: BTreeMap::new(),
-            low_bound: None,
-            high_bound: None,
+            low_bound: f64::INFINITY,
+            high_bound: f64::NEG_INFINITY,
             sample: Vec::with_capacity(SAMPLE),
             stride: 1,
-            seen: 0,
+            until_sample: 0,
         }
     }
 
@@ -129,34 +132,48 @@ impl Census {
     #[inline]
     pub fn push(&mut self, value: f64) {
         self.cells += 1;
+        self.push_value(value);
+    }
+
+    /// Counts a value without counting its cell (the caller counts the cells of the column
+    /// and passes them to [`Census::suspects_among`]). The common case (a value inside both
+    /// edges, not sampled) costs a few comparisons and a decrement.
+    #[inline]
+    pub fn push_value(&mut self, value: f64) {
         if !value.is_finite() {
             return;
         }
-        let key = Key::of(value);
-        if self.low_bound.is_none_or(|bound| key <= bound) {
-            Self::count_edge(&mut self.low, &mut self.low_bound, key, false);
+        if value <= self.low_bound {
+            Self::count_edge(&mut self.low, &mut self.low_bound, Key::of(value), false);
         }
-        if self.high_bound.is_none_or(|bound| key >= bound) {
-            Self::count_edge(&mut self.high, &mut self.high_bound, key, true);
+        if value >= self.high_bound {
+            Self::count_edge(&mut self.high, &mut self.high_bound, Key::of(value), true);
         }
-        if self.seen.is_multiple_of(self.stride) {
-            if self.sample.len() == SAMPLE {
-                let mut keep = 0;
-                for index in (0..SAMPLE).step_by(2) {
-                    self.sample[keep] = self.sample[index];
-                    keep += 1;
-                }
-                self.sample.truncate(keep);
-                self.stride *= 2;
-            }
-            if self.seen.is_multiple_of(self.stride) {
-                self.sample.push(value);
-            }
+        if self.until_sample == 0 {
+            self.take_sample(value);
         }
-        self.seen += 1;
+        self.until_sample -= 1;
     }
 
-    fn count_edge(edge: &mut BTreeMap<Key, u64>, bound: &mut Option<Key>, key: Key, top: bool) {
+    #[cold]
+    #[inline(never)]
+    fn take_sample(&mut self, value: f64) {
+        if self.sample.len() == SAMPLE {
+            let mut keep = 0;
+            for index in (0..SAMPLE).step_by(2) {
+                self.sample[keep] = self.sample[index];
+                keep += 1;
+            }
+            self.sample.truncate(keep);
+            self.stride *= 2;
+        }
+        self.sample.push(value);
+        self.until_sample = self.stride;
+    }
+
+    #[cold]
+    #[inline(never)]
+    fn count_edge(edge: &mut BTreeMap<Key, u64>, bound: &mut f64, key: Key, top: bool) {
         if let Some(count) = edge.get_mut(&key) {
             *count += 1;
             return;
@@ -164,18 +181,23 @@ impl Census {
         edge.insert(key, 1);
         if edge.len() > EDGE {
             let evict = if top {
-                *edge.keys().next().expect("non-empty")
-            } else {
-                *edge.keys().next_back().expect("non-empty")
-            };
-            edge.remove(&evict);
-        }
-        if edge.len() == EDGE {
-            *bound = if top {
                 edge.keys().next().copied()
             } else {
                 edge.keys().next_back().copied()
             };
+            if let Some(evict) = evict {
+                edge.remove(&evict);
+            }
+        }
+        if edge.len() == EDGE {
+            let inner = if top {
+                edge.keys().next()
+            } else {
+                edge.keys().next_back()
+            };
+            if let Some(inner) = inner {
+                *bound = inner.value();
+            }
         }
     }
 
@@ -186,11 +208,16 @@ impl Census {
 
     /// The suspected markers, lowest value first.
     pub fn suspects(&self) -> Vec<Suspect> {
+        self.suspects_among(self.cells)
+    }
+
+    /// The suspected markers when the column has `total` cells.
+    pub fn suspects_among(&self, total: u64) -> Vec<Suspect> {
         let mut out = Vec::new();
-        if self.cells == 0 {
+        if total == 0 {
             return out;
         }
-        let needed = ((self.cells as f64 * SHARE).ceil() as u64).max(MIN_CELLS);
+        let needed = ((total as f64 * SHARE).ceil() as u64).max(MIN_CELLS);
         let mut candidates: BTreeMap<Key, u64> = BTreeMap::new();
         for (key, count) in self.low.iter().chain(self.high.iter()) {
             if *count >= needed {
@@ -233,7 +260,7 @@ impl Census {
                     column: self.column.clone(),
                     value,
                     cells,
-                    share: cells as f64 / self.cells as f64,
+                    share: cells as f64 / total as f64,
                     why,
                 });
             }
@@ -255,6 +282,8 @@ pub struct RunCensus {
     pub first_t: Option<f64>,
     /// Time of the last sample.
     pub last_t: Option<f64>,
+    /// Samples counted.
+    pub rows: u64,
     /// Samples with a reference.
     pub checks: u64,
     /// Of those, the ones whose raw value lies outside the working range.
@@ -277,6 +306,7 @@ impl RunCensus {
             range,
             first_t: None,
             last_t: None,
+            rows: 0,
             checks: 0,
             checks_outside: 0,
         }
@@ -285,30 +315,31 @@ impl RunCensus {
     /// Counts one sample: its time, raw value, reference and temperature (or their absence).
     #[inline]
     pub fn push(&mut self, t: f64, raw: f64, reference: Option<f64>, temperature: Option<f64>) {
-        if self.first_t.is_none() {
+        if self.rows == 0 {
             self.first_t = Some(t);
         }
+        self.rows += 1;
         self.last_t = Some(t);
-        self.columns[0].push(raw);
-        match reference {
-            Some(value) => {
-                self.columns[1].push(value);
-                self.checks += 1;
-                if !(raw >= self.range.0 && raw <= self.range.1) {
-                    self.checks_outside += 1;
-                }
+        self.columns[0].push_value(raw);
+        if let Some(value) = reference {
+            self.columns[1].push_value(value);
+            self.checks += 1;
+            if !(raw >= self.range.0 && raw <= self.range.1) {
+                self.checks_outside += 1;
             }
-            None => self.columns[1].push_missing(),
         }
-        match temperature {
-            Some(value) => self.columns[2].push(value),
-            None => self.columns[2].push_missing(),
+        if let Some(value) = temperature {
+            self.columns[2].push_value(value);
         }
     }
 
-    /// The suspected undeclared markers of every column.
+    /// The suspected undeclared markers of every column (each column has one cell per
+    /// sample).
     pub fn suspects(&self) -> Vec<Suspect> {
-        self.columns.iter().flat_map(Census::suspects).collect()
+        self.columns
+            .iter()
+            .flat_map(|c| c.suspects_among(self.rows))
+            .collect()
     }
 
     /// True when more than [`OUTSIDE_SHARE`] of the checks lie outside the working range.

@@ -66,18 +66,29 @@ where
     // Emptied batches go back to the parsing thread, so no batch is allocated after the
     // first few.
     let (recycle, recycled) = std::sync::mpsc::sync_channel::<Batch<R>>(BATCHES_IN_FLIGHT + 2);
+    let mut run = Run::<R>::start(&file, options, false)?;
+    // The parsing thread counts the census of the samples it parses: it has time to spare,
+    // the engine thread bounds the throughput.
+    let mut census = run.census_elsewhere();
     std::thread::scope(|scope| {
-        scope.spawn(move || loop {
+        let parser = scope.spawn(move || loop {
             let mut batch = recycled
                 .try_recv()
                 .unwrap_or_else(|_| Batch::with_capacity(BATCH_ROWS));
             batch.clear();
             let more = feed.fill_batch(&mut batch, BATCH_ROWS, options.skip_bad_rows);
+            for sample in &batch.samples {
+                census.push(
+                    sample.t,
+                    sample.raw.to_f64(),
+                    sample.reference.map(R::to_f64),
+                    sample.temperature.map(R::to_f64),
+                );
+            }
             if sender.send(batch).is_err() || !more {
-                return;
+                return census;
             }
         });
-        let mut run = Run::<R>::start(&file, options, false)?;
         'batches: for mut batch in receiver {
             run.progress(batch.bytes);
             if batch.errors.is_empty() {
@@ -101,6 +112,10 @@ where
                 }
             }
             let _ = recycle.try_send(batch);
+        }
+        match parser.join() {
+            Ok(census) => run.census_counted(census),
+            Err(panic) => std::panic::resume_unwind(panic),
         }
         run.finish(|map| {
             map.insert("input_format".into(), json!(InputFormat::Csv));

@@ -99,6 +99,9 @@ pub(crate) struct Run<'a, R: Real> {
     skipped_count: u64,
     rows: u64,
     census: RunCensus,
+    /// The census is counted here (false when the parsing thread counts it, see
+    /// [`Run::census_elsewhere`]).
+    census_here: bool,
 }
 
 impl<'a, R: Real + Display> Run<'a, R> {
@@ -166,7 +169,21 @@ impl<'a, R: Real + Display> Run<'a, R> {
             skipped_count: 0,
             rows: 0,
             census,
+            census_here: true,
         })
+    }
+
+    /// An empty census for another thread to count (the parsing thread of a pipelined
+    /// replay, which has time to spare while the engine bounds the throughput); the run
+    /// stops counting its own and takes that one back with [`Run::census_counted`].
+    pub(crate) fn census_elsewhere(&mut self) -> RunCensus {
+        self.census_here = false;
+        self.census.clone()
+    }
+
+    /// The census counted elsewhere.
+    pub(crate) fn census_counted(&mut self, census: RunCensus) {
+        self.census = census;
     }
 
     /// Moves the progress bar to `bytes` read.
@@ -237,12 +254,14 @@ impl<'a, R: Real + Display> Run<'a, R> {
             }
         }
         let t = sample.t;
-        self.census.push(
-            t,
-            sample.raw.to_f64(),
-            sample.reference.map(R::to_f64),
-            sample.temperature.map(R::to_f64),
-        );
+        if self.census_here {
+            self.census.push(
+                t,
+                sample.raw.to_f64(),
+                sample.reference.map(R::to_f64),
+                sample.temperature.map(R::to_f64),
+            );
+        }
         let before = match self.checks_out {
             Some(_) => ChecksSink::before(&engine.monitor, &sample),
             None => None,
