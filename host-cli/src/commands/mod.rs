@@ -25,7 +25,6 @@ use crate::precision::Precision;
 pub mod assess;
 mod choices;
 pub mod field;
-pub mod field_replay;
 pub mod fleet;
 pub mod replay;
 pub mod report;

@@ -8,8 +8,8 @@ use std::process::ExitCode;
 use anyhow::Result;
 use serde_json::Value;
 
-use super::field::{range_source, save_config, summary_entries, FieldPlan};
-use super::replay::ReplayArgs;
+use super::ReplayArgs;
+use crate::commands::field::{range_source, save_config, summary_entries, FieldPlan};
 use crate::feed::FeedFloat;
 use crate::feed::ParsedRow;
 use crate::field::rows::{FieldSample, FieldTally, JoinedSamples, LogSamples};
@@ -207,5 +207,5 @@ pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Re
     }
     options.summary = summary_path;
     let strict_failed = plan.strict && !result.suspects.is_empty();
-    super::replay::finish(args, &options, result, strict_failed)
+    super::finish(args, &options, result, strict_failed)
 }

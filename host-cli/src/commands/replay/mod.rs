@@ -11,6 +11,8 @@ use super::{
 };
 use crate::replay::{self, InputFormat, PersistOptions, ReplayOptions};
 
+mod field_run;
+
 /// Arguments of `replay`.
 #[derive(Args, Debug)]
 #[command(after_help = super::after_help(concat!(
@@ -148,7 +150,7 @@ pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
         if args.report.is_some() {
             let _ = super::report::SideFiles::prepare(&mut options)?;
         }
-        return super::field_replay::run(&args, options, plan);
+        return field_run::run(&args, options, plan);
     }
     let side = match &args.report {
         Some(_) => Some(super::report::SideFiles::prepare(&mut options)?),
