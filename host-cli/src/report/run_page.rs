@@ -394,6 +394,55 @@ pub fn run_report(run: &RunData) -> Result<String> {
     ));
 
     // Tables.
+    let summary_rows = summary_section(summary);
+    let events_body = events_section(run, &alarms);
+    let config_body = config_section(run);
+
+    if summary
+        .get("events_dropped")
+        .and_then(Value::as_u64)
+        .unwrap_or(0)
+        > 0
+    {
+        cautions.push("Some events were dropped because the monitor's event queue was full: the timeline is incomplete.".into());
+    }
+    if let Some(stopped) = summary.get("stopped_at").and_then(Value::as_str) {
+        cautions.push(format!("The run stopped at a bad input row: {stopped}"));
+    }
+    let summary_checks = summary.get("checks").and_then(Value::as_u64).unwrap_or(0);
+    if summary_checks != run.checks.len() as u64 {
+        cautions.push(format!(
+            "The per-check table has {} rows but the summary counts {summary_checks} checks: the files may come from different runs.",
+            run.checks.len()
+        ));
+    }
+
+    let mut sections = Vec::new();
+    let mut plots_body = String::new();
+    for (figure, ramp) in &figures {
+        plots_body.push_str(&html::figure(figure, *ramp));
+    }
+    sections.push(("Plots".to_string(), plots_body));
+    sections.push((
+        "Summary".to_string(),
+        html::key_values("summary", &summary_rows),
+    ));
+    sections.push(("Events and alarms".to_string(), events_body));
+    sections.push(("Configuration used".to_string(), config_body));
+    Ok(html::page(
+        &format!("steadycal run report: {}", run.title),
+        &format!(
+            "{} samples, {} checks; final rung {rung_name}",
+            display(summary.get("samples").unwrap_or(&Value::Null)),
+            display(summary.get("checks").unwrap_or(&Value::Null))
+        ),
+        &cautions,
+        &sections,
+    ))
+}
+
+/// The rows of the page's summary table.
+fn summary_section(summary: &Value) -> Vec<(String, String)> {
     let mut summary_rows: Vec<(String, String)> = Vec::new();
     for key in [
         "feed",
@@ -466,6 +515,11 @@ pub fn run_report(run: &RunData) -> Result<String> {
             if text.is_empty() { "none".into() } else { text },
         ));
     }
+    summary_rows
+}
+
+/// The alarm intervals and the listed events, with the note on what is left out.
+fn events_section(run: &RunData, alarms: &[model::AlarmInterval]) -> String {
     let alarm_rows: Vec<Vec<String>> = alarms
         .iter()
         .map(|a| {
@@ -523,7 +577,13 @@ pub fn run_report(run: &RunData) -> Result<String> {
         ));
     }
     events_body.push_str(&format!("<p>{}</p>\n", escape::escape(&event_note)));
+    events_body
+}
 
+/// The configuration used: the keys a reader checks first, the file as given, the inputs.
+fn config_section(run: &RunData) -> String {
+    let config = &run.config.config;
+    let drift = &config.detect.drift;
     let config_rows = vec![
         ("source".to_string(), run.config.source.clone()),
         ("range.origin".into(), short(config.level_origin)),
@@ -567,46 +627,5 @@ pub fn run_report(run: &RunData) -> Result<String> {
         ));
     }
     config_body.push_str(&html::key_values("inputs", &run.inputs));
-
-    if summary
-        .get("events_dropped")
-        .and_then(Value::as_u64)
-        .unwrap_or(0)
-        > 0
-    {
-        cautions.push("Some events were dropped because the monitor's event queue was full: the timeline is incomplete.".into());
-    }
-    if let Some(stopped) = summary.get("stopped_at").and_then(Value::as_str) {
-        cautions.push(format!("The run stopped at a bad input row: {stopped}"));
-    }
-    let summary_checks = summary.get("checks").and_then(Value::as_u64).unwrap_or(0);
-    if summary_checks != run.checks.len() as u64 {
-        cautions.push(format!(
-            "The per-check table has {} rows but the summary counts {summary_checks} checks: the files may come from different runs.",
-            run.checks.len()
-        ));
-    }
-
-    let mut sections = Vec::new();
-    let mut plots_body = String::new();
-    for (figure, ramp) in &figures {
-        plots_body.push_str(&html::figure(figure, *ramp));
-    }
-    sections.push(("Plots".to_string(), plots_body));
-    sections.push((
-        "Summary".to_string(),
-        html::key_values("summary", &summary_rows),
-    ));
-    sections.push(("Events and alarms".to_string(), events_body));
-    sections.push(("Configuration used".to_string(), config_body));
-    Ok(html::page(
-        &format!("steadycal run report: {}", run.title),
-        &format!(
-            "{} samples, {} checks; final rung {rung_name}",
-            display(summary.get("samples").unwrap_or(&Value::Null)),
-            display(summary.get("checks").unwrap_or(&Value::Null))
-        ),
-        &cautions,
-        &sections,
-    ))
+    config_body
 }
