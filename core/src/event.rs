@@ -1,5 +1,8 @@
 //! Events raised by the monitor and the bounded queue that holds them.
 //!
+//! The kinds and their fields are described once (the `describe_events!` list below);
+//! [`fields`] says what is derived from it.
+//!
 //! # Invariants
 //! - The queue never allocates and never drops an event silently: when it is full, the
 //!   newest event is discarded and [`EventQueue::dropped`] counts it.
@@ -10,6 +13,11 @@ use serde::{Deserialize, Serialize};
 
 use crate::real::Real;
 use crate::transform::Rung;
+
+pub mod fields;
+
+pub(crate) use fields::describe_events;
+pub use fields::{FieldInfo, FieldSink, FieldSource, FieldValue, Named, Shape};
 
 /// How serious a raised condition is.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
@@ -156,143 +164,147 @@ impl Direction {
     }
 }
 
-/// What happened.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
-pub enum EventKind<R> {
-    /// The scatter grows (or shrinks) with the level: SD ∝ level^k, k with its 95 % interval.
-    SpreadTracksLevel {
-        /// Estimated exponent.
-        k: R,
-        /// Lower end of the interval.
-        k_low: R,
-        /// Upper end of the interval.
-        k_high: R,
-    },
-    /// The active calibration moved to another rung.
-    TransformChanged {
-        /// Previous rung.
-        from: Rung,
-        /// New rung.
-        to: Rung,
-        /// Profile log-likelihood gain of `to` over `from` at the switch.
-        gain: R,
-    },
-    /// After a switch, the residual means by level are not zero: the calibration mean is
-    /// wrong, not only the scatter model.
-    MeanMisfit {
-        /// The active rung.
-        rung: Rung,
-        /// Lack-of-fit statistic (χ² with `dof` degrees of freedom).
-        statistic: R,
-        /// Degrees of freedom of `statistic`.
-        dof: u8,
-        /// A quadratic term would probably help.
-        suggest_quadratic: bool,
-        /// A temperature term would probably help.
-        suggest_temperature: bool,
-    },
-    /// The screen refused a sample.
-    SampleRejected {
-        /// Why.
-        reason: RejectReason,
-    },
-    /// CUSUM of standardized residuals crossed its decision interval.
-    BiasShift {
-        /// Which way the sensor moved.
-        direction: Direction,
-        /// Estimated size of the shift, in standardized units.
-        size: R,
-        /// Severity.
-        severity: Severity,
-    },
-    /// The gain moved beyond tolerance (and significantly) from the baseline.
-    GainDrift {
-        /// Relative change of the gain (fraction, 0.01 = 1 %).
-        change: R,
-        /// Standard uncertainty of `change`.
-        uncertainty: R,
-        /// Severity.
-        severity: Severity,
-    },
-    /// The offset moved beyond tolerance (and significantly) from the baseline.
-    OffsetDrift {
-        /// Change of the offset, in raw units.
-        change: R,
-        /// Standard uncertainty of `change`.
-        uncertainty: R,
-        /// Severity.
-        severity: Severity,
-    },
-    /// The scatter grew at all levels.
-    SpreadJump {
-        /// Ratio of the new to the old scatter (SD).
-        ratio: R,
-        /// Severity.
-        severity: Severity,
-    },
-    /// The signal is stuck.
-    SignalStuck {
-        /// Length of the run of identical values.
-        run: u32,
-        /// Severity.
-        severity: Severity,
-    },
-    /// The raw value is outside the configured physical range.
-    SignalOutOfRange {
-        /// The value.
-        raw: R,
-        /// Severity.
-        severity: Severity,
-    },
-    /// No reference check for too long: the calibration is unverified.
-    ReferenceGap {
-        /// Seconds since the last check.
-        seconds: f64,
-        /// Severity.
-        severity: Severity,
-    },
-    /// A raised condition is no longer present.
-    Cleared {
-        /// What cleared.
-        alarm: AlarmKind,
-    },
+/// [`Named`] for the types of an event's name fields: the names are the types' own
+/// `name()`, the order their declaration's (the wire's variant order).
+macro_rules! named {
+    ($($ty:ident: [$($variant:ident),* $(,)?];)*) => {$(
+        impl Named for $ty {
+            const ALL: &'static [Self] = &[$($ty::$variant),*];
+            #[inline]
+            fn name(self) -> &'static str {
+                $ty::name(self)
+            }
+        }
+    )*};
 }
 
-impl<R: Real> EventKind<R> {
-    /// The event's name as written in event logs.
-    pub const fn name(&self) -> &'static str {
-        match self {
-            EventKind::SpreadTracksLevel { .. } => "spread_tracks_level",
-            EventKind::TransformChanged { .. } => "transform_changed",
-            EventKind::MeanMisfit { .. } => "mean_misfit",
-            EventKind::SampleRejected { .. } => "sample_rejected",
-            EventKind::BiasShift { .. } => "bias_shift",
-            EventKind::GainDrift { .. } => "gain_drift",
-            EventKind::OffsetDrift { .. } => "offset_drift",
-            EventKind::SpreadJump { .. } => "spread_jump",
-            EventKind::SignalStuck { .. } => "signal_stuck",
-            EventKind::SignalOutOfRange { .. } => "signal_out_of_range",
-            EventKind::ReferenceGap { .. } => "reference_gap",
-            EventKind::Cleared { .. } => "cleared",
-        }
-    }
-
-    /// All event names, for counting tables.
-    pub const NAMES: [&'static str; 12] = [
-        "spread_tracks_level",
-        "transform_changed",
-        "mean_misfit",
-        "sample_rejected",
-        "bias_shift",
-        "gain_drift",
-        "offset_drift",
-        "spread_jump",
-        "signal_stuck",
-        "signal_out_of_range",
-        "reference_gap",
-        "cleared",
+named! {
+    Rung: [Identity, Sqrt, Log, InvSqrt, Inverse];
+    Severity: [Info, Warn, Alarm];
+    Direction: [Up, Down];
+    RejectReason: [
+        NonFiniteRaw, NonFiniteReference, NonFiniteTemperature, BelowOrigin, OutOfRange,
+        Spike, Stuck,
+    ];
+    AlarmKind: [
+        BiasShift, GainDrift, OffsetDrift, SpreadJump, SignalStuck, SignalOutOfRange,
+        ReferenceGap, SpreadTracksLevel, MeanMisfit,
     ];
 }
+
+/// The event kinds, declared once: for each kind its wire index (its position), its name
+/// and its fields (name, type, documentation) in order. Invokes `$callback!` with the
+/// list; the core's `describe_events!` generates [`EventKind`], [`KindId`], the field walk
+/// and the wire codec from it, and a crate that needs code of its own per field (the
+/// board's event lines, which must stay small) passes a macro of its own. Field types are
+/// single identifiers: `R` (the monitor's float type), `f64`, `u8`, `u32`, `bool` or a
+/// [`Named`] type. Adding a field is one line here (and its test).
+#[macro_export]
+macro_rules! event_kinds {
+    ($callback:ident) => {
+        $callback! {
+            /// The scatter grows (or shrinks) with the level: SD ∝ level^k, k with its 95 % interval.
+            SpreadTracksLevel = 0 "spread_tracks_level" {
+                /// Estimated exponent.
+                k: R,
+                /// Lower end of the interval.
+                k_low: R,
+                /// Upper end of the interval.
+                k_high: R,
+            }
+            /// The active calibration moved to another rung.
+            TransformChanged = 1 "transform_changed" {
+                /// Previous rung.
+                from: Rung,
+                /// New rung.
+                to: Rung,
+                /// Profile log-likelihood gain of `to` over `from` at the switch.
+                gain: R,
+            }
+            /// After a switch, the residual means by level are not zero: the calibration mean is
+            /// wrong, not only the scatter model.
+            MeanMisfit = 2 "mean_misfit" {
+                /// The active rung.
+                rung: Rung,
+                /// Lack-of-fit statistic (χ² with `dof` degrees of freedom).
+                statistic: R,
+                /// Degrees of freedom of `statistic`.
+                dof: u8,
+                /// A quadratic term would probably help.
+                suggest_quadratic: bool,
+                /// A temperature term would probably help.
+                suggest_temperature: bool,
+            }
+            /// The screen refused a sample.
+            SampleRejected = 3 "sample_rejected" {
+                /// Why.
+                reason: RejectReason,
+            }
+            /// CUSUM of standardized residuals crossed its decision interval.
+            BiasShift = 4 "bias_shift" {
+                /// Which way the sensor moved.
+                direction: Direction,
+                /// Estimated size of the shift, in standardized units.
+                size: R,
+                /// Severity.
+                severity: Severity,
+            }
+            /// The gain moved beyond tolerance (and significantly) from the baseline.
+            GainDrift = 5 "gain_drift" {
+                /// Relative change of the gain (fraction, 0.01 = 1 %).
+                change: R,
+                /// Standard uncertainty of `change`.
+                uncertainty: R,
+                /// Severity.
+                severity: Severity,
+            }
+            /// The offset moved beyond tolerance (and significantly) from the baseline.
+            OffsetDrift = 6 "offset_drift" {
+                /// Change of the offset, in raw units.
+                change: R,
+                /// Standard uncertainty of `change`.
+                uncertainty: R,
+                /// Severity.
+                severity: Severity,
+            }
+            /// The scatter grew at all levels.
+            SpreadJump = 7 "spread_jump" {
+                /// Ratio of the new to the old scatter (SD).
+                ratio: R,
+                /// Severity.
+                severity: Severity,
+            }
+            /// The signal is stuck.
+            SignalStuck = 8 "signal_stuck" {
+                /// Length of the run of identical values.
+                run: u32,
+                /// Severity.
+                severity: Severity,
+            }
+            /// The raw value is outside the configured physical range.
+            SignalOutOfRange = 9 "signal_out_of_range" {
+                /// The value.
+                raw: R,
+                /// Severity.
+                severity: Severity,
+            }
+            /// No reference check for too long: the calibration is unverified.
+            ReferenceGap = 10 "reference_gap" {
+                /// Seconds since the last check.
+                seconds: f64,
+                /// Severity.
+                severity: Severity,
+            }
+            /// A raised condition is no longer present.
+            Cleared = 11 "cleared" {
+                /// What cleared.
+                alarm: AlarmKind,
+            }
+        }
+    };
+}
+
+event_kinds!(describe_events);
 
 /// One event: what happened, and at which sample.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]

@@ -137,79 +137,8 @@ fn convert_record<S: Real, R: Real>(record: Record<S>) -> Record<R> {
         }),
         Record::Event(e) => Record::Event(Event {
             seq: e.seq,
-            kind: convert_event(e.kind),
+            kind: e.kind.map_real(convert::<S, R>),
         }),
-    }
-}
-
-fn convert_event<S: Real, R: Real>(
-    kind: steadycal_core::event::EventKind<S>,
-) -> steadycal_core::event::EventKind<R> {
-    use steadycal_core::event::EventKind as K;
-    let c = convert::<S, R>;
-    match kind {
-        K::SpreadTracksLevel { k, k_low, k_high } => K::SpreadTracksLevel {
-            k: c(k),
-            k_low: c(k_low),
-            k_high: c(k_high),
-        },
-        K::TransformChanged { from, to, gain } => K::TransformChanged {
-            from,
-            to,
-            gain: c(gain),
-        },
-        K::MeanMisfit {
-            rung,
-            statistic,
-            dof,
-            suggest_quadratic,
-            suggest_temperature,
-        } => K::MeanMisfit {
-            rung,
-            statistic: c(statistic),
-            dof,
-            suggest_quadratic,
-            suggest_temperature,
-        },
-        K::SampleRejected { reason } => K::SampleRejected { reason },
-        K::BiasShift {
-            direction,
-            size,
-            severity,
-        } => K::BiasShift {
-            direction,
-            size: c(size),
-            severity,
-        },
-        K::GainDrift {
-            change,
-            uncertainty,
-            severity,
-        } => K::GainDrift {
-            change: c(change),
-            uncertainty: c(uncertainty),
-            severity,
-        },
-        K::OffsetDrift {
-            change,
-            uncertainty,
-            severity,
-        } => K::OffsetDrift {
-            change: c(change),
-            uncertainty: c(uncertainty),
-            severity,
-        },
-        K::SpreadJump { ratio, severity } => K::SpreadJump {
-            ratio: c(ratio),
-            severity,
-        },
-        K::SignalStuck { run, severity } => K::SignalStuck { run, severity },
-        K::SignalOutOfRange { raw, severity } => K::SignalOutOfRange {
-            raw: c(raw),
-            severity,
-        },
-        K::ReferenceGap { seconds, severity } => K::ReferenceGap { seconds, severity },
-        K::Cleared { alarm } => K::Cleared { alarm },
     }
 }
 

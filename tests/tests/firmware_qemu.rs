@@ -35,9 +35,10 @@ use std::process::Command;
 
 use serde_json::Value;
 use steadycal_cli::feed::ColumnNames;
-use steadycal_cli::replay::{replay, PersistOptions, Precision, ReplayOptions};
+use steadycal_cli::replay::{replay, write_event, PersistOptions, Precision, ReplayOptions};
+use steadycal_core::event::{Event, EventKind, FieldSource, KindId, Named, Shape};
 use steadycal_core::monitor::MonitorConfig;
-use steadycal_core::record::{decode_frame, Frames, Record};
+use steadycal_core::record::{decode_frame, encode_frame, Frames, Record, MAX_FRAME_LEN};
 use steadycal_core::snapshot::{Layout, Snapshot, CRC32};
 
 /// Samples between two periodic saves on the board (`firmware/src/storage.rs`,
@@ -57,31 +58,14 @@ enum FieldType {
 
 use FieldType::{Core, Plain, Wide};
 
-/// Fields of each event kind, in the order of `EventKind`'s declaration (the order
-/// `firmware/src/lines.rs` writes them).
-fn fields(kind: &str) -> Option<&'static [(&'static str, FieldType)]> {
-    Some(match kind {
-        "spread_tracks_level" => &[("k", Core), ("k_low", Core), ("k_high", Core)],
-        "transform_changed" => &[("from", Plain), ("to", Plain), ("gain", Core)],
-        "mean_misfit" => &[
-            ("rung", Plain),
-            ("statistic", Core),
-            ("dof", Plain),
-            ("suggest_quadratic", Plain),
-            ("suggest_temperature", Plain),
-        ],
-        "sample_rejected" => &[("reason", Plain)],
-        "bias_shift" => &[("direction", Plain), ("size", Core), ("severity", Plain)],
-        "gain_drift" | "offset_drift" => {
-            &[("change", Core), ("uncertainty", Core), ("severity", Plain)]
+impl From<Shape> for FieldType {
+    fn from(shape: Shape) -> Self {
+        match shape {
+            Shape::Real => Core,
+            Shape::Wide => Wide,
+            Shape::Integer | Shape::Flag | Shape::Name => Plain,
         }
-        "spread_jump" => &[("ratio", Core), ("severity", Plain)],
-        "signal_stuck" => &[("run", Plain), ("severity", Plain)],
-        "signal_out_of_range" => &[("raw", Core), ("severity", Plain)],
-        "reference_gap" => &[("seconds", Wide), ("severity", Plain)],
-        "cleared" => &[("alarm", Plain)],
-        _ => return None,
-    })
+    }
 }
 
 /// One JSON value in the canonical format. Numbers are parsed from their decimal text
@@ -120,8 +104,10 @@ fn canonical_event(json_line: &str) -> Result<String, String> {
     let seq = get("seq")?.as_u64().ok_or("`seq` is not an integer")?;
     let kind = get("kind")?.as_str().ok_or("`kind` is not a string")?;
     let mut line = format!("event {seq} {kind} t={}", canonical_value(get("t")?, Wide)?);
-    for (key, field) in fields(kind).ok_or_else(|| format!("unknown event kind `{kind}`"))? {
-        line.push_str(&format!(" {key}={}", canonical_value(get(key)?, *field)?));
+    let id = KindId::from_name(kind).ok_or_else(|| format!("unknown event kind `{kind}`"))?;
+    for field in id.fields() {
+        let value = canonical_value(get(field.key)?, field.shape.into())?;
+        line.push_str(&format!(" {}={value}", field.key));
     }
     Ok(line)
 }
@@ -177,6 +163,114 @@ fn converter_writes_bits_of_the_shortest_decimals() {
         "event 3 transform_changed t=3ff0000000000000 from=identity to=log gain=bf000000"
     );
     assert!(canonical_event(r#"{"seq":1,"t":1,"kind":"no_such_event"}"#).is_err());
+}
+
+/// The board's event-line writer, compiled here too so every kind's line can be compared
+/// with the host's without a board run.
+#[path = "../../firmware/src/lines.rs"]
+#[allow(dead_code)]
+mod lines;
+
+/// Field values for an event of any kind, asked in the order of the core's description:
+/// floats from a list of awkward f32 values (tiny, subnormal, largest, negative zero, not
+/// finite), integers at their type's ends, flags alternating, every name of a set in turn.
+/// (IEEE 754 binary32 limits, from memory.)
+struct Probe(usize);
+
+impl Probe {
+    fn next(&mut self) -> usize {
+        self.0 += 1;
+        self.0
+    }
+}
+
+impl FieldSource<f32> for Probe {
+    type Error = std::convert::Infallible;
+    fn real(&mut self, _: &'static str) -> Result<f32, Self::Error> {
+        const REALS: [f32; 8] = [
+            0.1,
+            -2.5e-7,
+            f32::MAX,
+            1e-45,
+            -0.0,
+            f32::NAN,
+            1.0e10,
+            -f32::INFINITY,
+        ];
+        Ok(REALS[self.next() % REALS.len()])
+    }
+    fn wide(&mut self, _: &'static str) -> Result<f64, Self::Error> {
+        const WIDES: [f64; 4] = [86_400.5, 1e-300, f64::MAX, f64::INFINITY];
+        Ok(WIDES[self.next() % WIDES.len()])
+    }
+    fn integer(&mut self, _: &'static str, max: u32) -> Result<u32, Self::Error> {
+        Ok([0, 1, max][self.next() % 3])
+    }
+    fn flag(&mut self, _: &'static str) -> Result<bool, Self::Error> {
+        Ok(self.next().is_multiple_of(2))
+    }
+    fn name<T: Named>(&mut self, _: &'static str) -> Result<T, Self::Error> {
+        Ok(T::ALL[self.next() % T::ALL.len()])
+    }
+}
+
+/// The board's line of `event`.
+fn board_event_line(event: &Event<f32>, t: f64) -> String {
+    let mut line = String::new();
+    lines::event_line(&mut line, event, t).unwrap();
+    line
+}
+
+/// The host's JSON line of `event`.
+fn host_event_json<R: steadycal_core::real::Real + std::fmt::Display>(
+    event: &Event<R>,
+    t: f64,
+) -> String {
+    let mut json = Vec::new();
+    write_event(&mut json, event, t).unwrap();
+    String::from_utf8(json).unwrap()
+}
+
+#[test]
+fn every_event_kind_agrees_in_every_format() {
+    // Generated from the core's one description of the events: a field added to a kind is
+    // probed here in the wire codec, the host's JSON lines (f32 and, through the device
+    // log's conversion, f64), the board's event lines and this comparison's converter.
+    for id in KindId::ALL {
+        for start in 0..8 {
+            let kind = match EventKind::<f32>::from_fields(id, &mut Probe(start)) {
+                Ok(kind) => kind,
+                Err(never) => match never {},
+            };
+            let event = Event { seq: 7, kind };
+            let t = 1.5e9 + start as f64;
+            let board = board_event_line(&event, t);
+            // The wire: a device-log frame and back.
+            let mut frame = [0u8; MAX_FRAME_LEN];
+            let len = encode_frame(&Record::Event(event), &mut frame).unwrap();
+            let Ok(Record::Event(back)) = decode_frame::<f32>(&mut frame[..len]) else {
+                panic!("{}: the frame does not decode", id.name());
+            };
+            assert_eq!(board_event_line(&back, t), board, "wire");
+            // The host's JSON line, in f32, holds `seq`, `t`, `kind` and the kind's
+            // fields in the description's order, and converts to the board's line.
+            let json = host_event_json(&event, t);
+            let object: serde_json::Map<String, Value> = serde_json::from_str(&json).unwrap();
+            let keys: Vec<&str> = object.keys().map(String::as_str).collect();
+            let mut expected = vec!["seq", "t", "kind"];
+            expected.extend(id.fields().iter().map(|field| field.key));
+            expected.sort_unstable();
+            assert_eq!(keys, expected, "{json}");
+            assert_eq!(canonical_event(&json).unwrap(), board, "{json}");
+            // A device log of f32 read in an f64 run: the same values.
+            let wide = Event {
+                seq: back.seq,
+                kind: back.kind.map_real(f64::from),
+            };
+            let json = host_event_json(&wide, t);
+            assert_eq!(canonical_event(&json).unwrap(), board, "{json}");
+        }
+    }
 }
 
 #[test]

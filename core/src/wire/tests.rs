@@ -9,12 +9,11 @@ use serde::de::DeserializeOwned;
 use serde::Serialize;
 
 use super::{decode_into, encode, take_from_bytes, to_slice, Walk, Wire};
-use crate::event::{AlarmKind, Direction, Event, EventKind, RejectReason, Severity};
+use crate::event::{Event, EventKind, FieldSource, KindId, Named};
 use crate::monitor::{Monitor, MonitorConfig};
 use crate::real::Real;
 use crate::record::{LogStart, Record};
 use crate::sample::Sample;
-use crate::transform::Rung;
 
 /// postcard's bytes for `value`.
 fn reference<T: Serialize>(value: &T) -> Vec<u8> {
@@ -188,68 +187,62 @@ fn check_monitor<R: Real, const P: usize>(
     same_whatever_the_target::<R, P>(other, &bytes[..cut])
 }
 
+/// Field values for [`event_kind`], from the description: floats alternate between `a`
+/// and `b`, integers are `small` (a `u8` field) or `run`, flags and names follow `small`'s
+/// bits.
+struct Values {
+    a: f64,
+    b: f64,
+    small: u8,
+    run: u32,
+    floats: usize,
+    flags: u32,
+}
+
+impl<R: Real> FieldSource<R> for Values {
+    type Error = core::convert::Infallible;
+    fn real(&mut self, _: &'static str) -> Result<R, Self::Error> {
+        self.floats += 1;
+        Ok(R::from_f64(if self.floats % 2 == 1 {
+            self.a
+        } else {
+            self.b
+        }))
+    }
+    fn wide(&mut self, _: &'static str) -> Result<f64, Self::Error> {
+        Ok(R::from_f64(self.b).to_f64())
+    }
+    fn integer(&mut self, _: &'static str, max: u32) -> Result<u32, Self::Error> {
+        Ok(if max == u32::from(u8::MAX) {
+            u32::from(self.small)
+        } else {
+            self.run
+        })
+    }
+    fn flag(&mut self, _: &'static str) -> Result<bool, Self::Error> {
+        self.flags += 1;
+        Ok(u32::from(self.small) >> (self.flags % 8) & 1 == 1)
+    }
+    fn name<T: Named>(&mut self, _: &'static str) -> Result<T, Self::Error> {
+        Ok(T::ALL[usize::from(self.small) % T::ALL.len()])
+    }
+}
+
+/// An event of every kind (`variant` modulo the number of kinds), built from the one
+/// description, so a field added to a kind is generated here too.
 fn event_kind<R: Real>(variant: u8, a: f64, b: f64, small: u8, run: u32) -> EventKind<R> {
-    let rung = Rung::ALL[usize::from(small) % Rung::ALL.len()];
-    let severity = [Severity::Info, Severity::Warn, Severity::Alarm][usize::from(small) % 3];
-    let (a, b) = (R::from_f64(a), R::from_f64(b));
-    match variant % 12 {
-        0 => EventKind::SpreadTracksLevel {
-            k: a,
-            k_low: b,
-            k_high: a,
-        },
-        1 => EventKind::TransformChanged {
-            from: rung,
-            to: Rung::Log,
-            gain: a,
-        },
-        2 => EventKind::MeanMisfit {
-            rung,
-            statistic: a,
-            dof: small,
-            suggest_quadratic: small & 1 == 1,
-            suggest_temperature: small & 2 == 2,
-        },
-        3 => EventKind::SampleRejected {
-            reason: [
-                RejectReason::NonFiniteRaw,
-                RejectReason::NonFiniteReference,
-                RejectReason::NonFiniteTemperature,
-                RejectReason::BelowOrigin,
-                RejectReason::OutOfRange,
-                RejectReason::Spike,
-                RejectReason::Stuck,
-            ][usize::from(small) % 7],
-        },
-        4 => EventKind::BiasShift {
-            direction: if small & 1 == 1 {
-                Direction::Up
-            } else {
-                Direction::Down
-            },
-            size: a,
-            severity,
-        },
-        5 => EventKind::GainDrift {
-            change: a,
-            uncertainty: b,
-            severity,
-        },
-        6 => EventKind::OffsetDrift {
-            change: a,
-            uncertainty: b,
-            severity,
-        },
-        7 => EventKind::SpreadJump { ratio: a, severity },
-        8 => EventKind::SignalStuck { run, severity },
-        9 => EventKind::SignalOutOfRange { raw: a, severity },
-        10 => EventKind::ReferenceGap {
-            seconds: b.to_f64(),
-            severity,
-        },
-        _ => EventKind::Cleared {
-            alarm: AlarmKind::ALL[usize::from(small) % AlarmKind::COUNT],
-        },
+    let id = KindId::ALL[usize::from(variant) % KindId::COUNT];
+    let mut values = Values {
+        a,
+        b,
+        small,
+        run,
+        floats: 0,
+        flags: 0,
+    };
+    match EventKind::from_fields(id, &mut values) {
+        Ok(kind) => kind,
+        Err(never) => match never {},
     }
 }
 
