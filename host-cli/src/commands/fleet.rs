@@ -13,6 +13,7 @@ use anyhow::Context;
 use clap::Args;
 use rayon::prelude::*;
 use serde::Serialize;
+use steadycal_core::event::KindId;
 
 use super::{exit_alarms, exit_bad_input, reaches, resolve, ColumnArgs, FailOn, MonitorArgs};
 use crate::io::create_output;
@@ -143,7 +144,9 @@ fn channel(args: &FleetArgs, feed: &Path) -> FleetRow {
         exponent_se: f(&s["spread_exponent_se"]),
         gain: f(&s["params"]["gain"]),
         offset: f(&s["params"]["offset"]),
-        transform_changes: s["events"]["transform_changed"].as_u64().unwrap_or(0),
+        transform_changes: s["events"][KindId::TransformChanged.name()]
+            .as_u64()
+            .unwrap_or(0),
         warnings: result.raised[1],
         alarms: result.raised[2],
         raised: result.raised,

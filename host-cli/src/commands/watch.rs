@@ -29,7 +29,7 @@ use crate::feed::{CsvFeed, FeedError};
 use crate::io::create_output;
 use crate::precision::Precision;
 use crate::replay::engine::Engine;
-use crate::replay::sink::events::event_json;
+use crate::replay::sink::events::{event_json, write_event};
 use crate::replay::time_order::TimeStep;
 use crate::terminal::{colour_enabled, paint, stderr_is_terminal, stdout_is_terminal, Colour};
 
@@ -178,9 +178,8 @@ where
         let t = sample.t;
         let mut printed = false;
         engine.push(&sample, |event| {
-            let json = event_json(event, t);
             if let Some(out) = events_file.as_mut() {
-                serde_json::to_writer(&mut *out, &json)?;
+                write_event(&mut **out, event, t)?;
                 out.write_all(b"\n")?;
             }
             if !printed {
@@ -188,9 +187,9 @@ where
                 printed = true;
             }
             if human_events {
-                writeln!(stdout, "{}", describe(&json, colour))?;
+                writeln!(stdout, "{}", describe(&event_json(event, t), colour))?;
             } else {
-                serde_json::to_writer(&mut stdout, &json)?;
+                write_event(&mut stdout, event, t)?;
                 stdout.write_all(b"\n")?;
             }
             Ok(())

@@ -16,7 +16,7 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{bail, Context, Result};
 use serde_json::Value;
-use steadycal_core::event::AlarmKind;
+use steadycal_core::event::{AlarmKind, KindId};
 use steadycal_core::monitor::MonitorConfig;
 
 use super::checks::{self, CheckRow};
@@ -56,9 +56,9 @@ impl EventRow {
         let t = object.get("t").and_then(Value::as_f64).unwrap_or(f64::NAN);
         let severity = match object.get("severity").and_then(Value::as_str) {
             Some(s) => Some(s.to_string()),
-            None => match kind.as_str() {
-                "cleared" => None,
-                "mean_misfit" => Some("warn".into()),
+            None => match KindId::from_name(&kind) {
+                Some(KindId::Cleared) => None,
+                Some(KindId::MeanMisfit) => Some("warn".into()),
                 _ => Some("info".into()),
             },
         };
@@ -124,7 +124,7 @@ pub fn alarm_intervals(events: &[EventRow], last_t: f64) -> Vec<AlarmInterval> {
                     end_seq: None,
                 });
             }
-        } else if event.kind == "cleared" {
+        } else if event.kind == KindId::Cleared.name() {
             if let Some(alarm) = &event.alarm {
                 if let Some(position) = open.iter().position(|a| &a.kind == alarm) {
                     let mut interval = open.remove(position);
