@@ -101,20 +101,43 @@ fn range_from_data<R: FeedFloat>(
     Ok(Some((low, high)))
 }
 
+/// Rows handed from the reading thread to the engine at a time.
+const BATCH: usize = 4096;
+
+/// The run: the logs are read (and joined) on a second thread, in batches, while the
+/// engine runs on this one, as the canonical CSV path does.
 fn run_typed<R: FeedFloat + std::fmt::Display>(
     plan: &FieldPlan,
     options: &ReplayOptions,
 ) -> Result<(ReplayResult, FieldTally)> {
-    let mut samples = Samples::<R>::open(plan, options)?;
+    let samples = Samples::<R>::open(plan, options)?;
     let file = options.feed.display().to_string();
-    let rows = samples.by_ref().map(|s| ParsedRow {
-        next: s.next,
-        line: s.line,
-        bytes: s.bytes,
-    });
-    let result = replay_rows::<R>(rows, &file, options)?;
-    // Drain what the engine left (a bad row stops it): the counts cover what was read.
-    Ok((result, samples.tally().clone()))
+    let (sender, receiver) = std::sync::mpsc::sync_channel::<Vec<FieldSample<R>>>(8);
+    std::thread::scope(|scope| {
+        let reader = scope.spawn(move || {
+            let mut samples = samples;
+            loop {
+                let batch: Vec<FieldSample<R>> = samples.by_ref().take(BATCH).collect();
+                let done = batch.len() < BATCH;
+                // The engine stops reading at a bad row or an output error: the counts
+                // then cover what was read.
+                if sender.send(batch).is_err() || done {
+                    return samples.tally().clone();
+                }
+            }
+        });
+        let rows = receiver.into_iter().flatten().map(|s| ParsedRow {
+            next: s.next,
+            line: s.line,
+            bytes: s.bytes,
+        });
+        let result = replay_rows::<R>(rows, &file, options);
+        let tally = match reader.join() {
+            Ok(tally) => tally,
+            Err(panic) => std::panic::resume_unwind(panic),
+        };
+        Ok((result?, tally))
+    })
 }
 
 /// Runs `replay` on field logs; the summary is written here, with the field entries.
