@@ -220,6 +220,15 @@ macro_rules! event_kinds {
                 to: Rung,
                 /// Profile log-likelihood gain of `to` over `from` at the switch.
                 gain: R,
+                /// Checks over which `to` kept the lead before the switch.
+                held: u32,
+                /// Spread exponent k of the rung left, at its last evaluation (NaN when
+                /// none was made since the last switch).
+                k: R,
+                /// Lower end of the interval of `k`.
+                k_low: R,
+                /// Upper end of the interval of `k`.
+                k_high: R,
             }
             /// After a switch, the residual means by level are not zero: the calibration mean is
             /// wrong, not only the scatter model.
@@ -235,10 +244,14 @@ macro_rules! event_kinds {
                 /// A temperature term would probably help.
                 suggest_temperature: bool,
             }
-            /// The screen refused a sample.
+            /// The screen refused a run of samples (or a check was below the origin while a
+            /// power rung is active) for the same reason; raised once, when the run ends
+            /// (and every 1,024 samples while it lasts), by its last sample.
             SampleRejected = 3 "sample_rejected" {
                 /// Why.
                 reason: RejectReason,
+                /// Samples in the run.
+                count: u32,
             }
             /// CUSUM of standardized residuals crossed its decision interval.
             BiasShift = 4 "bias_shift" {
@@ -300,6 +313,22 @@ macro_rules! event_kinds {
                 /// What cleared.
                 alarm: AlarmKind,
             }
+            /// The spread profile's exponent points to another rung than the one in use
+            /// (its interval lies wholly outside a quarter of the rung's exponent): the
+            /// ladder keeps `rung`, which has the best profile likelihood of the ladder.
+            /// Raised once per rung in use, and only while no challenger leads.
+            RungInDoubt = 12 "rung_in_doubt" {
+                /// The rung in use.
+                rung: Rung,
+                /// The exponent that rung assumes, `1 − λ`.
+                rung_k: R,
+                /// The spread profile's exponent.
+                k: R,
+                /// Lower end of its interval.
+                k_low: R,
+                /// Upper end of its interval.
+                k_high: R,
+            }
         }
     };
 }
@@ -320,7 +349,7 @@ pub struct Event<R> {
 /// ```
 /// use steadycal_core::event::{Event, EventKind, EventQueue, RejectReason};
 /// let mut queue: EventQueue<f32, 2> = EventQueue::new();
-/// let event = Event { seq: 1, kind: EventKind::SampleRejected { reason: RejectReason::Spike } };
+/// let event = Event { seq: 1, kind: EventKind::SampleRejected { reason: RejectReason::Spike, count: 1 } };
 /// assert!(queue.push(event));
 /// assert!(queue.push(event));
 /// assert!(!queue.push(event)); // full: dropped and counted

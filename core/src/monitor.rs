@@ -22,6 +22,7 @@ use crate::adequacy::MeanCheck;
 use crate::basis::{Basis, BasisError};
 use crate::detect::alarm::Transition;
 use crate::detect::drift::{Baseline, BaselineError, DriftStatus, Layout};
+use crate::detect::rejections::EndedRun;
 use crate::detect::screen::Screen;
 use crate::detect::{DetectConfig, DetectConfigError, DetectorCounts, Detectors};
 use crate::event::{AlarmKind, Event, EventKind, EventQueue, RejectReason, Severity};
@@ -341,6 +342,8 @@ pub struct Monitor<R, const P: usize = 3, const BINS: usize = 16, const Q: usize
     counters: Counters,
     spread_raised: bool,
     last_exponent: Option<SpreadExponent<R>>,
+    /// `rung_in_doubt` was raised for the rung in use.
+    rung_doubted: bool,
     detectors: Detectors<R>,
     /// Where levels are measured from (the sensor's baseline once found).
     origin: LevelOrigin<R>,
@@ -366,6 +369,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             counters: Counters::default(),
             spread_raised: false,
             last_exponent: None,
+            rung_doubted: false,
             detectors: Detectors::new(),
             origin: LevelOrigin::new(config.level_origin, config.find_baseline),
             alarm_flags: Flags::empty(),
@@ -560,11 +564,39 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     fn reject(&mut self, sample: &Sample<R>, reason: RejectReason, outcome: &mut Outcome<R>) {
         self.counters.rejected += 1;
         outcome.flags.insert(Flags::REJECTED);
-        self.raise(sample.seq, EventKind::SampleRejected { reason }, outcome);
+        self.note_rejection(sample.seq, reason, outcome);
+    }
+
+    /// A rejection joins the run under way (see [`crate::detect::rejections`]); a run it
+    /// ends is raised.
+    fn note_rejection(&mut self, seq: u64, reason: RejectReason, outcome: &mut Outcome<R>) {
+        let ended = self.detectors.rejections.note(seq, reason);
+        self.raise_rejection_run(ended, outcome);
+    }
+
+    fn raise_rejection_run(&mut self, ended: Option<EndedRun>, outcome: &mut Outcome<R>) {
+        if let Some(run) = ended {
+            let kind = EventKind::SampleRejected {
+                reason: run.reason,
+                count: run.count,
+            };
+            self.raise(run.last_seq, kind, outcome);
+        }
     }
 
     /// Processes one sample. Never panics, whatever the values.
     pub fn push(&mut self, sample: &Sample<R>) -> Outcome<R> {
+        let mut outcome = self.push_sample(sample);
+        // A sample not rejected ends the run of rejections under way.
+        let ended = self.detectors.rejections.end_of_sample(sample.seq);
+        if ended.is_some() {
+            self.raise_rejection_run(ended, &mut outcome);
+        }
+        outcome
+    }
+
+    #[inline(always)]
+    fn push_sample(&mut self, sample: &Sample<R>) -> Outcome<R> {
         let mut outcome = Outcome {
             reading: None,
             flags: Flags::empty(),
@@ -732,13 +764,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             self.counters.below_origin += 1;
             outcome.flags.insert(Flags::BELOW_ORIGIN);
             if step.switch.is_none() && self.ladder.active().needs_positive() {
-                self.raise(
-                    sample.seq,
-                    EventKind::SampleRejected {
-                        reason: RejectReason::BelowOrigin,
-                    },
-                    outcome,
-                );
+                self.note_rejection(sample.seq, RejectReason::BelowOrigin, outcome);
             }
         }
         let level = step.prediction - self.ladder_config.level_origin;
@@ -755,15 +781,29 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             }
         }
         if let Some(switch) = step.switch {
+            // The evidence: the lead, the checks it was held, and the spread profile's
+            // exponent on the rung left (NaN when it has none yet).
+            let (k, k_low, k_high) = match self.last_exponent {
+                Some(exponent) => {
+                    let half_width = self.config.interval_z * exponent.standard_error;
+                    (exponent.k, exponent.k - half_width, exponent.k + half_width)
+                }
+                None => (R::NAN, R::NAN, R::NAN),
+            };
             self.raise(
                 sample.seq,
                 EventKind::TransformChanged {
                     from: switch.from,
                     to: switch.to,
                     gain: switch.gain,
+                    held: switch.held,
+                    k,
+                    k_low,
+                    k_high,
                 },
                 outcome,
             );
+            self.rung_doubted = false;
             self.mean_check.arm();
             // The profile describes the rung in use: it restarts on the new rung's
             // residuals (the old rung's, with its mean off at the ends of the range, would
@@ -981,6 +1021,29 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         };
         let half_width = self.config.interval_z * exponent.standard_error;
         let (k_low, k_high) = (exponent.k - half_width, exponent.k + half_width);
+        // Only a settled ladder is in doubt: while a challenger leads, the ladder is
+        // already weighing another rung (and the reading says so, `PROVISIONAL`).
+        if !self.rung_doubted && !self.ladder.provisional(&self.ladder_config) {
+            // The exponent points to another rung when its interval lies wholly outside a
+            // quarter (half the spacing of the rungs) of the rung's own exponent.
+            let rung = self.ladder.active();
+            let rung_k = R::ONE - rung.lambda::<R>();
+            let quarter = R::from_f64(0.25);
+            if k_high < rung_k - quarter || k_low > rung_k + quarter {
+                self.rung_doubted = true;
+                self.raise(
+                    seq,
+                    EventKind::RungInDoubt {
+                        rung,
+                        rung_k,
+                        k: exponent.k,
+                        k_low,
+                        k_high,
+                    },
+                    outcome,
+                );
+            }
+        }
         let tracks = koenker.statistic > self.config.spread_threshold
             && (k_low > R::ZERO || k_high < R::ZERO);
         if tracks && !self.spread_raised {
@@ -1092,7 +1155,16 @@ mod tests {
         }
         assert_eq!(monitor.counters().checks, 0);
         assert_eq!(monitor.counters().rejected, 9);
-        assert_eq!(monitor.events_dropped(), 1); // queue of 8, 9 rejections
+        // Runs by reason: raw, reference, raw ×2, reference, raw ×2, reference, and an open
+        // run of one raw: 6 events, each with its count.
+        let mut counts = std::vec::Vec::new();
+        while let Some(event) = monitor.pop_event() {
+            if let EventKind::SampleRejected { count, .. } = event.kind {
+                counts.push(count);
+            }
+        }
+        assert_eq!(counts, [1, 1, 2, 1, 2, 1]);
+        assert_eq!(monitor.events_dropped(), 0);
     }
 
     fn line_monitor() -> Monitor<f64> {
@@ -1142,10 +1214,18 @@ mod tests {
         assert!(outcome.flags.contains(Flags::REJECTED));
         assert_eq!(monitor.ladder().active_fit().parameters(), before);
         assert_eq!(monitor.detector_counts().spikes, 1);
+        // The run of one rejection is raised when the next sample is accepted, by the
+        // rejected sample.
+        assert_eq!(monitor.pop_event(), None);
+        monitor.push(&Sample::check(401, 401.0, 20.5, 10.0));
         assert_eq!(
-            monitor.pop_event().map(|e| e.kind),
-            Some(EventKind::SampleRejected {
-                reason: RejectReason::Spike
+            monitor.pop_event(),
+            Some(Event {
+                seq: 400,
+                kind: EventKind::SampleRejected {
+                    reason: RejectReason::Spike,
+                    count: 1
+                }
             })
         );
     }

@@ -39,7 +39,7 @@ use crate::wire;
 /// The magic of a [`Record::Start`] record.
 pub const LOG_MAGIC: [u8; 4] = *b"SClg";
 /// The device log format version this build writes and reads.
-pub const LOG_VERSION: u16 = 1;
+pub const LOG_VERSION: u16 = 2;
 /// The CRC of a frame: CRC-16/IBM-SDLC (also known as CRC-16/X-25).
 pub const CRC16: Crc<u16, CrcMethod> = Crc::<u16, CrcMethod>::new(&CRC_16_IBM_SDLC);
 /// Largest postcard encoding of a record (f64: a sample is at most 46 bytes, an event
@@ -255,6 +255,7 @@ mod tests {
                 seq: 0,
                 kind: EventKind::SampleRejected {
                     reason: RejectReason::Spike,
+                    count: 1,
                 },
             }),
             Record::Sample(Sample::reading(1, 1.0, 3.0f32)),

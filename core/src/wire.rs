@@ -697,7 +697,9 @@ walk_struct!(impl[] DetectorCounts {
     spikes, out_of_range, stuck_samples, unresponsive_windows, cusum_checks, cusum_signals,
     spread_jump_signals, drift_evaluations, drift_significant, gap_samples,
 });
-walk_struct!(impl[R: Real] Detectors<R> { screen, cusum, spread_jump, drift, alarms, counts });
+walk_struct!(impl[R: Real] Detectors<R> {
+    screen, cusum, spread_jump, drift, alarms, counts, rejections
+});
 walk_struct!(impl[R: Real] Baseline<R> { parameters, covariance } blank: Baseline {
     parameters: [R::ZERO; 4],
     covariance: [[R::ZERO; 4]; 4],

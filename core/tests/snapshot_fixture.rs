@@ -1,5 +1,5 @@
-//! The committed snapshot fixture of the current format, `tests/data/snapshot-v4.bin`
-//! (format version 4), must keep decoding, and must re-encode to the same bytes: if a change
+//! The committed snapshot fixture of the current format, `tests/data/snapshot-v5.bin`
+//! (format version 5), must keep decoding, and must re-encode to the same bytes: if a change
 //! to any state or configuration type changes the bytes, the format version must be bumped
 //! (see ARCHITECTURE.md, "Format versioning") and a new fixture committed beside the old
 //! ones. Older fixtures stay and are refused by version, never misread.
@@ -9,7 +9,9 @@
 //! rest from the monitor's configuration (1,257 → about 1,000 bytes for the gas-cell demo
 //! state in f32); 3 adds the level origin (the sensor's baseline and how far it is
 //! found), the ladder's recent switches, the rung it left last and its hold, and the
-//! configuration's `find_baseline`; 4 adds the count of provisional readings. No decoder of an older version is kept: a snapshot of
+//! configuration's `find_baseline`; 4 adds the count of provisional readings; 5 adds the run of rejections under way, the
+//! rung-doubt mark and the fields of `transform_changed` (`held`, `k`, `k_low`, `k_high`) and
+//! `sample_rejected` (`count`), and the kind `rung_in_doubt`. No decoder of an older version is kept: a snapshot of
 //! an older version is refused by version and the channel re-commissioned.
 //!
 //! The generator (`fixture_monitor`) gave the fixture's bytes when it was written; a later
@@ -67,13 +69,13 @@ fn older_fixtures_are_refused_by_version() {
 fn current_version_fixture_still_decodes() {
     let bytes = std::fs::read(fixture_path()).expect("committed fixture");
     let snapshot = Snapshot::parse(&bytes).expect("header and CRC");
-    assert_eq!(snapshot.header().version, 4);
+    assert_eq!(snapshot.header().version, 5);
     let mut monitor: Monitor<f32> = snapshot.monitor().expect("decodes as Monitor<f32>");
     let counters = monitor.counters();
     assert_eq!(counters.samples, 700);
     assert_eq!(counters.checks + counters.rejected + counters.readings, 700);
     // Same version: the bytes must be reproduced exactly.
-    if FORMAT_VERSION == 4 {
+    if FORMAT_VERSION == 5 {
         let mut again = [0u8; MAX_SNAPSHOT_LEN];
         let len = monitor.snapshot(&mut again).unwrap();
         assert_eq!(

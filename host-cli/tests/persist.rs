@@ -151,14 +151,14 @@ fn snapshot_inspect_and_verify() {
         .arg(&snapshot)
         .assert()
         .success()
-        .stdout(predicate::str::contains("good (format version 4, f32"));
+        .stdout(predicate::str::contains("good (format version 5, f32"));
     steadycal()
         .args(["snapshot", "inspect"])
         .arg(&snapshot)
         .assert()
         .success()
         .stdout(
-            predicate::str::contains("format version 4")
+            predicate::str::contains("format version 5")
                 .and(predicate::str::contains("21600 samples, 10800 checks"))
                 .and(predicate::str::contains("rung log")),
         );

@@ -34,8 +34,8 @@ fn events_arrive_before_end_of_input() {
             }
         }
     });
-    // Written slowly, line by line: a header, good rows, then a NaN row that raises
-    // `sample_rejected` at once.
+    // Written slowly, line by line: a header, good rows, then a NaN row and a good row,
+    // which ends the run of one rejection and raises `sample_rejected` at once.
     writeln!(stdin, "t,raw,ref").unwrap();
     for i in 0..5 {
         writeln!(stdin, "{i},{},{}", 1.0 + i as f64, 1.0 + i as f64).unwrap();
@@ -43,6 +43,7 @@ fn events_arrive_before_end_of_input() {
         std::thread::sleep(Duration::from_millis(20));
     }
     writeln!(stdin, "5,nan,3").unwrap();
+    writeln!(stdin, "6,7,7").unwrap();
     stdin.flush().unwrap();
     let line = received
         .recv_timeout(DEADLINE)
@@ -51,10 +52,12 @@ fn events_arrive_before_end_of_input() {
     assert_eq!(event["kind"], "sample_rejected");
     assert_eq!(event["reason"], "non_finite_raw");
     assert_eq!(event["seq"], 5);
+    assert_eq!(event["count"], 1);
     // The stream is still open: the process is still running.
     assert!(child.try_wait().unwrap().is_none());
-    // A second event, then end of input.
-    writeln!(stdin, "6,inf,").unwrap();
+    // A second run of rejections, ended by a good row, then end of input.
+    writeln!(stdin, "7,inf,").unwrap();
+    writeln!(stdin, "8,9,9").unwrap();
     stdin.flush().unwrap();
     let line = received.recv_timeout(DEADLINE).expect("second event");
     assert!(line.contains("non_finite_raw"), "{line}");
@@ -63,7 +66,7 @@ fn events_arrive_before_end_of_input() {
     assert_eq!(status.code(), Some(0));
     let summary: serde_json::Value =
         serde_json::from_slice(&std::fs::read(&summary).unwrap()).unwrap();
-    assert_eq!(summary["samples"], 7);
+    assert_eq!(summary["samples"], 9);
     assert_eq!(summary["rejected"], 2);
     assert_eq!(summary["interrupted"], false);
 }

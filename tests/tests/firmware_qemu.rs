@@ -157,11 +157,10 @@ fn converter_writes_bits_of_the_shortest_decimals() {
         canonical_event(line).unwrap(),
         "event 7 spread_tracks_level t=4004000000000000 k=3dcccccd k_low=null k_high=3f800000"
     );
-    let line =
-        r#"{"seq":3,"t":1,"kind":"transform_changed","from":"identity","to":"log","gain":-0.5}"#;
+    let line = r#"{"seq":3,"t":1,"kind":"transform_changed","from":"identity","to":"log","gain":-0.5,"held":200,"k":null,"k_low":null,"k_high":null}"#;
     assert_eq!(
         canonical_event(line).unwrap(),
-        "event 3 transform_changed t=3ff0000000000000 from=identity to=log gain=bf000000"
+        "event 3 transform_changed t=3ff0000000000000 from=identity to=log gain=bf000000 held=200 k=null k_low=null k_high=null"
     );
     assert!(canonical_event(r#"{"seq":1,"t":1,"kind":"no_such_event"}"#).is_err());
 }

@@ -169,7 +169,7 @@ fn run(
                     out.first_switch.get_or_insert(seq);
                     last_switch = Some(seq);
                 }
-                EventKind::SampleRejected { reason } => {
+                EventKind::SampleRejected { reason, .. } => {
                     out.rejection_events += 1;
                     out.reasons.insert(reason.name());
                 }

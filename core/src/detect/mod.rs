@@ -21,6 +21,7 @@
 pub mod alarm;
 pub mod cusum;
 pub mod drift;
+pub mod rejections;
 pub mod screen;
 pub mod spread_jump;
 
@@ -32,6 +33,7 @@ use crate::real::{non_negative_setting, positive_setting, Real};
 use alarm::{AlarmBoard, AlarmRules};
 use cusum::{CusumConfig, TabularCusum};
 use drift::{DriftConfig, DriftDetector};
+use rejections::RejectionRun;
 use screen::{Screen, ScreenConfig};
 use spread_jump::{SpreadJumpConfig, SpreadJumpCusum};
 
@@ -279,6 +281,8 @@ pub struct Detectors<R> {
     pub alarms: AlarmBoard,
     /// Counts.
     pub counts: DetectorCounts,
+    /// The run of rejections under way (rejections are reported as episodes).
+    pub rejections: RejectionRun,
 }
 
 impl<R: Real> Default for Detectors<R> {
@@ -297,6 +301,7 @@ impl<R: Real> Detectors<R> {
             drift: DriftDetector::new(),
             alarms: AlarmBoard::new(),
             counts: DetectorCounts::default(),
+            rejections: RejectionRun::new(),
         }
     }
 }

@@ -39,6 +39,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monito
             counters: _,
             spread_raised: _,
             last_exponent: _,
+            rung_doubted: _,
             detectors: _,
             origin: _,
             alarm_flags: _,
@@ -51,6 +52,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monito
         let t = self.counters.walk(t);
         let t = self.spread_raised.walk(t);
         let t = self.last_exponent.walk(t);
+        let t = self.rung_doubted.walk(t);
         let t = self.detectors.walk(t);
         self.origin.walk(t)
     }
@@ -141,6 +143,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             counters: Counters::default(),
             spread_raised: false,
             last_exponent: None,
+            rung_doubted: false,
             detectors: Detectors::new(),
             origin: crate::origin::LevelOrigin::new(z, false),
             alarm_flags: crate::sample::Flags::empty(),

@@ -17,13 +17,14 @@ use crate::replay::time_order::TimeOrder;
 
 /// How serious an event is, for `--fail-on`: the severity the detectors attach, and for
 /// the calibration events: `transform_changed`, `spread_tracks_level` and
-/// `sample_rejected` are `info`, `mean_misfit` is `warn`. `cleared` has none.
+/// `sample_rejected` are `info`, `mean_misfit` and `rung_in_doubt` are `warn`. `cleared` has
+/// none.
 pub fn event_severity<R>(kind: &EventKind<R>) -> Option<Severity> {
     match kind {
         EventKind::SpreadTracksLevel { .. }
         | EventKind::TransformChanged { .. }
         | EventKind::SampleRejected { .. } => Some(Severity::Info),
-        EventKind::MeanMisfit { .. } => Some(Severity::Warn),
+        EventKind::MeanMisfit { .. } | EventKind::RungInDoubt { .. } => Some(Severity::Warn),
         EventKind::BiasShift { severity, .. }
         | EventKind::GainDrift { severity, .. }
         | EventKind::OffsetDrift { severity, .. }

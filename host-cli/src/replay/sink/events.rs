@@ -170,11 +170,15 @@ mod tests {
             from: Rung::Identity,
             to: Rung::Log,
             gain: 2.5f32,
+            held: 200,
+            k: 1.0,
+            k_low: 0.75,
+            k_high: 1.25,
         };
         write_event(&mut line, &Event { seq: 3, kind }, 1.0).unwrap();
         assert_eq!(
             String::from_utf8(line).unwrap(),
-            r#"{"seq":3,"t":1.0,"kind":"transform_changed","from":"identity","to":"log","gain":2.5}"#
+            r#"{"seq":3,"t":1.0,"kind":"transform_changed","from":"identity","to":"log","gain":2.5,"held":200,"k":1.0,"k_low":0.75,"k_high":1.25}"#
         );
     }
 
