@@ -87,7 +87,8 @@ fn main() {
         Ok(samples) => samples,
         Err(message) => panic!("{}: {message}", feed.display()),
     };
-    let log = device_log(&board, &samples).unwrap_or_else(|message| panic!("device log: {message}"));
+    let log =
+        device_log(&board, &samples).unwrap_or_else(|message| panic!("device log: {message}"));
     fs::write(out.join("feed.log"), log).expect("write feed.log");
 }
 
@@ -103,7 +104,8 @@ fn board_config(path: &Path) -> Result<Board, String> {
         Some(b) => Some(
             Baseline::new(
                 b.parameters.map(|v| v as f32),
-                b.covariance.map(|rows| rows.map(|row| row.map(|v| v as f32))),
+                b.covariance
+                    .map(|rows| rows.map(|row| row.map(|v| v as f32))),
             )
             .map_err(|e| format!("{name}: `baseline`: refused by the monitor ({e:?})"))?,
         ),
