@@ -1,21 +1,31 @@
 //! The DIN 32645 / ISO 11843-2 calibration-curve limits against the standard's worked example
-//! as published with the R package chemCal (J. Ranke; `din32645` data set, documentation and
-//! tests of version 0.2.x: `tests/testthat/test_din32645.R`, `tests/din32645.Rout.save`,
-//! `man/din32645.Rd`).
+//! as published with two R packages:
+//!
+//! - chemCal (J. Ranke), `din32645` data set (10 standards, x = concentration, y = signal):
+//!   the printed examples of its reference page (chemCal 0.2.3, `man/din32645.Rd` as rendered
+//!   on the package site, `docs/reference/din32645.html`) and the saved R 3.1.0 output of its
+//!   test `tests/din32645.Rout.save` (chemCal 0.1 branch);
+//! - envalysis 0.7.0 (Z. Steinmetz), `din32645` data set (the same 10 standards plus 10
+//!   blanks, DIN 32645:2008-11 cited as source): the printed `calibration()` summary in
+//!   `tests/testthat/_snaps/calibration.md`.
 //!
 //! Printed values (α = 0.01): critical value 0.07 (DIN 32645) and 0.0698 (Dintest); detection
-//! limit 0.14 (DIN 32645, α = β = 0.01); quantification limit 0.212 (chemCal; the Dintest
-//! value from Procontrol 3.1 is 0.2121); for the reading y = 3500, x = 0.1054792 with
-//! standard error 0.02215619 (chemCal) and confidence half-width 0.07434 (Procontrol 3.1).
+//! limit 0.14 (DIN 32645, α = β = 0.01); quantification limit 0.212 (chemCal and envalysis;
+//! the Dintest value from Procontrol 3.1 is 0.2121); for the reading y = 3500,
+//! x = 0.1054792 with standard error 0.02215619 and 99 % confidence half-width 0.07434261,
+//! limits 0.03113656 and 0.17982178 (chemCal output; Procontrol 3.1: 0.07434); the line fitted
+//! to the standards, intercept 2481 and slope 9662 (envalysis).
 //!
-//! Partial check, stated plainly: the data set itself is shipped as binary R data and could
-//! not be read here. The line's summary is therefore taken from chemCal's printed outputs:
-//! the slope b and intercept a from its two printed LOD points (x, y) = (0.0698127, 3155.393)
-//! and (0.08655484, 3317.154); the residual SD s from the printed critical value 0.0698127;
-//! the design, ten equidistant standards x = 0.05 … 0.50 (the data set has 10 rows), is
-//! confirmed by reproducing the printed standard error at y = 3500 to eight digits. The
-//! critical value is then a round trip; the detection limit, the quantification limit and
-//! the confidence half-width are independent checks of the formulas.
+//! Partial check, stated plainly: both packages ship the data set as binary R data, and no
+//! text copy of the 10 signals could be found, so the data are not read here. The line's
+//! summary is taken from chemCal's printed outputs: the slope b and intercept a from its two
+//! printed LOD points (x, y) = (0.0698127, 3155.393) and (0.08655484, 3317.154) (chemCal
+//! `tests/testthat/test_din32645.R`), confirmed by envalysis' printed coefficients; the
+//! residual SD s from the printed critical value 0.0698127; the design, ten equidistant
+//! standards x = 0.05 … 0.50 (the data set has 10 rows), is confirmed by reproducing the
+//! printed standard error at y = 3500 to eight digits. The critical value is then a round
+//! trip; the detection limit, the quantification limit and the confidence half-width are
+//! independent checks of the formulas.
 
 use steadycal_cli::assess::distributions;
 use steadycal_cli::assess::inverse::{inverse_row, InverseModel};
@@ -53,6 +63,9 @@ fn din32645_worked_example() {
     assert_eq!(format!("{:.2}", din.detection_limit), "0.14"); // DIN 32645, alpha = beta = 0.01
     assert_eq!(format!("{:.3}", din.quantification_limit), "0.212"); // chemCal loq(m, alpha = 0.01)
     assert!((din.quantification_limit - 0.2121).abs() < 0.0002); // Procontrol 3.1: 0.2121
+                                                                 // envalysis 0.7.0 prints the line fitted to the standards as 2481 + 9662·x.
+    assert_eq!(format!("{a:.0}"), "2481");
+    assert_eq!(format!("{b:.0}"), "9662");
 
     // The inverse prediction of y = 3500 (one reading): x, its standard error, and the 99 %
     // confidence half-width t(0.995; 8)·u.
@@ -89,4 +102,9 @@ fn din32645_worked_example() {
     assert!((value - 0.1054792).abs() < 1e-7);
     assert!((u - 0.02215619).abs() < 5e-9); // chemCal 0.02215619
     assert_eq!(format!("{half_width:.5}"), "0.07434"); // Procontrol 3.1
+                                                       // chemCal (tests/din32645.Rout.save): half-width 0.07434261, limits 0.03113656 and
+                                                       // 0.17982178; a and b come from rounded printed values, so to 2e-8.
+    assert!((half_width - 0.07434261).abs() < 2e-8, "{half_width}");
+    assert!((value - half_width - 0.03113656).abs() < 2e-7);
+    assert!((value + half_width - 0.17982178).abs() < 2e-7);
 }

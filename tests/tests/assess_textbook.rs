@@ -203,13 +203,15 @@ fn bad_input_is_an_error_not_a_panic() {
 
 /// Miller, J. N. & Miller, J. C., Statistics and Chemometrics for Analytical Chemistry,
 /// weighted regression worked example (absorbance of standards 0–10 μg/ml with the SD of
-/// each standard; section on weighted regression lines, edition and page not checked: the
-/// book could not be reached here, from memory). The same data and printed results are the
+/// each standard; section on weighted regression lines, from memory: edition and page
+/// unchecked, the book could not be reached and no stored copy of its pages was found; the
+/// only public reprint found, the npm test below, names neither). The same data and printed results are the
 /// test case of the npm package ml-regression-weighted-linear
 /// (josoriom/regression-weighted-linear, `src/__tests__/test.test.ts`): the weighted line
 /// y = 0.0738·x + 0.0091 and the concentrations 1.23 and 8.01 μg/ml of absorbances 0.100 and
 /// 0.600. Weights 1/s² (the book normalizes them to sum to n, which leaves the line
-/// unchanged); `assess` takes the SDs as known uncertainties of the responses.
+/// unchanged); `assess` takes the SDs as known uncertainties of the responses. A weighted
+/// example with edition and page cited is in weighted_calibration_textbook.rs.
 #[test]
 fn miller_and_miller_weighted_regression() {
     let data = CalibrationData {
