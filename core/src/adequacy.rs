@@ -146,6 +146,11 @@ impl<R: Real, const BINS: usize> MeanCheck<R, BINS> {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real, const BINS: usize] MeanCheck<R, BINS> {
+    sums, counts, since_reset, armed
+});
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -176,7 +181,3 @@ mod tests {
         assert!(!check.armed());
     }
 }
-
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "wire/adequacy.rs"]
-mod wire_codec;

@@ -204,6 +204,11 @@ impl<R: Real> Basis<R> {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real] Basis<R> {
+    quadratic, temperature, reference_scale, temperature_reference, temperature_scale
+});
+
 #[cfg(test)]
 mod tests {
     use super::*;

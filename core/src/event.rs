@@ -408,7 +408,53 @@ impl<R: Real, const Q: usize> EventQueue<R, Q> {
         self.dropped
     }
 }
-
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "wire/event.rs"]
-mod wire_codec;
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+impl<R: Real, const Q: usize> crate::wire::Walk for EventQueue<R, Q> {
+    fn walk<'t, 'a>(
+        &mut self,
+        t: &'t mut crate::wire::Transfer<'a>,
+    ) -> &'t mut crate::wire::Transfer<'a> {
+        if t.encoding() {
+            let w = t.writer();
+            w.varint32(self.events.len() as u32);
+            for event in &self.events {
+                crate::wire::Wire::put(event, w);
+            }
+        } else {
+            let r = t.reader();
+            let len = r.len();
+            if len > Q {
+                r.fail();
+            }
+            self.events.clear();
+            for _ in 0..len.min(Q) {
+                // Cannot be full: at most Q pushes.
+                let _ = self.events.push_back(crate::wire::Wire::get(r));
+            }
+        }
+        crate::wire::Walk::walk(&mut self.dropped, t)
+    }
+}
+crate::wire::wire_unit_enum!(Severity { Info, Warn, Alarm });
+crate::wire::wire_unit_enum!(Direction { Up, Down });
+crate::wire::wire_unit_enum!(RejectReason {
+    NonFiniteRaw,
+    NonFiniteReference,
+    NonFiniteTemperature,
+    BelowOrigin,
+    OutOfRange,
+    Spike,
+    Stuck,
+});
+crate::wire::wire_unit_enum!(AlarmKind {
+    BiasShift,
+    GainDrift,
+    OffsetDrift,
+    SpreadJump,
+    SignalStuck,
+    SignalOutOfRange,
+    ReferenceGap,
+    SpreadTracksLevel,
+    MeanMisfit,
+});
+crate::wire::wire_struct!(impl[R: Real] Event<R> { seq, kind });

@@ -691,9 +691,12 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
     }
 }
 
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "wire/ladder.rs"]
-mod wire_codec;
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real, const P: usize] PowerLadder<R, P> {
+    rungs, log_level_sum, sample_weight, active, candidate, lead, checks, since_decision,
+    recent_switches, left, held,
+});
+crate::wire::walk_struct!(impl[R: Real, const P: usize] RungState<R, P> { fit, transformed_sse });
 
 #[cfg(test)]
 mod tests {

@@ -28,6 +28,8 @@ extern crate std;
 pub mod adequacy;
 pub mod basis;
 pub mod checksum;
+#[cfg(test)]
+mod codec_tests;
 #[cfg(feature = "defmt")]
 mod defmt_format;
 pub mod detect;

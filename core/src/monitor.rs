@@ -376,30 +376,6 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         })
     }
 
-    /// Completes a monitor decoded from a snapshot and checks it: rebuilds what the
-    /// snapshot leaves out because the configuration implies it (the ladder settings, every
-    /// fit's forgetting and initial variance), then checks that the configuration validates
-    /// and the state agrees with it (fit sizes, spread settings), so that `push` keeps its
-    /// invariants on it.
-    pub(crate) fn complete_restored(&mut self) -> Result<(), crate::snapshot::SnapshotError> {
-        use crate::snapshot::SnapshotError;
-        self.config
-            .validate(P)
-            .map_err(SnapshotError::InvalidConfig)?;
-        self.ladder_config = self.config.ladder();
-        self.ladder_config.level_origin = self.origin.value();
-        self.ladder.set_fit_config(self.ladder_config.fit);
-        let dim = self.config.basis.len();
-        let fits_agree = Rung::ALL
-            .iter()
-            .all(|&rung| self.ladder.fit(rung).dim() == dim);
-        if *self.spread.config() != self.config.spread() || !fits_agree {
-            return Err(SnapshotError::InconsistentState);
-        }
-        self.alarm_flags = self.raised_alarm_flags();
-        Ok(())
-    }
-
     /// The configuration.
     pub fn config(&self) -> &MonitorConfig<R> {
         &self.config
@@ -1114,6 +1090,22 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real] MonitorConfig<R> {
+    basis, forgetting, initial_variance, level_origin, find_baseline, level_low, level_high,
+    warm_up,
+    switch_margin, switch_hold, initial_rung, spread_threshold, spread_every,
+    mean_check_after, mean_check_min_per_bin, mean_check_z, interval_z, coverage_factor,
+    detect,
+});
+crate::wire::walk_struct!(impl[] Counters {
+    samples, checks, rejected, below_origin, readings, provisional_readings
+});
+
+/// The monitor's own walk and the blank monitor a snapshot is decoded into.
+mod codec;
+pub(crate) use codec::Unusable;
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1262,7 +1254,3 @@ mod tests {
         assert!(monitor.drift_status().unwrap().gain_signal());
     }
 }
-
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "wire/monitor.rs"]
-mod wire_codec;

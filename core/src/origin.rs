@@ -142,6 +142,9 @@ impl<R: Real> LevelOrigin<R> {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real] LevelOrigin<R> { value, stage });
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -196,7 +199,3 @@ mod tests {
         assert_eq!(origin.value(), 0.0);
     }
 }
-
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "wire/origin.rs"]
-mod wire_codec;

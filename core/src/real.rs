@@ -85,6 +85,10 @@ pub trait Real:
     fn from_u32(value: u32) -> Self;
     /// The IEEE 754 bit pattern, widened to `u64` for `f32`.
     fn to_bits_u64(self) -> u64;
+    /// The value of an IEEE 754 bit pattern (for `f32` the low 32 bits of `bits`; the
+    /// rest are ignored). Every bit comes back, a NaN's payload too: the inverse of
+    /// [`Real::to_bits_u64`].
+    fn from_bits_u64(bits: u64) -> Self;
 
     /// Natural logarithm (libm, or micromath with `fast-math`).
     fn ln(self) -> Self;
@@ -173,6 +177,10 @@ impl Real for f64 {
         self.to_bits()
     }
     #[inline]
+    fn from_bits_u64(bits: u64) -> Self {
+        f64::from_bits(bits)
+    }
+    #[inline]
     fn ln(self) -> Self {
         libm::log(self)
     }
@@ -241,6 +249,10 @@ impl Real for f32 {
     #[inline]
     fn to_bits_u64(self) -> u64 {
         self.to_bits() as u64
+    }
+    #[inline]
+    fn from_bits_u64(bits: u64) -> Self {
+        f32::from_bits(bits as u32)
     }
     #[inline]
     fn ln(self) -> Self {

@@ -211,6 +211,39 @@ impl Iterator for Frames<'_> {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::wire_struct!(impl[] LogStart { magic, version, real_bits });
+
+impl<R: Real> wire::Wire for Record<R> {
+    fn put(&self, w: &mut wire::Writer<'_>) {
+        // As for `EventKind`: the variant index once, then the variant's fields.
+        let index = match self {
+            Record::Start(_) => 0,
+            Record::Sample(_) => 1,
+            Record::Event(_) => 2,
+        };
+        w.byte(index);
+        match self {
+            Record::Start(start) => start.put(w),
+            Record::Sample(sample) => sample.put(w),
+            Record::Event(event) => event.put(w),
+        }
+    }
+
+    fn get(r: &mut wire::Reader<'_>) -> Self {
+        use wire::Wire;
+        match r.variant() {
+            0 => Record::Start(Wire::get(r)),
+            1 => Record::Sample(Wire::get(r)),
+            2 => Record::Event(Wire::get(r)),
+            _ => {
+                r.fail();
+                Record::Start(LogStart::new::<R>())
+            }
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

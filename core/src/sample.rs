@@ -134,7 +134,7 @@ impl Flags {
     }
 }
 
-/// What one [`crate::monitor::Monitor::push`] returns.
+/// What one `Monitor::push` returns.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Outcome<R> {
     /// The calibrated reading, for a sample without reference that could be inverted.
@@ -144,3 +144,5 @@ pub struct Outcome<R> {
     /// How many events this push appended to the monitor's queue (including dropped ones).
     pub new_events: u8,
 }
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::wire_struct!(impl[R: Real] Sample<R> { seq, t, raw, reference, temperature });

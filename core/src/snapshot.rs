@@ -46,7 +46,7 @@
 use crc::{Crc, CRC_32_ISO_HDLC};
 
 use crate::checksum::CrcMethod;
-use crate::monitor::{ConfigError, Monitor};
+use crate::monitor::{ConfigError, Monitor, Unusable};
 use crate::real::Real;
 use crate::wire;
 
@@ -367,7 +367,12 @@ impl<'a> Snapshot<'a> {
         if unused != 0 {
             return Err(SnapshotError::PayloadLeftover { unused });
         }
-        monitor.complete_restored()?;
+        monitor
+            .complete_restored()
+            .map_err(|unusable| match unusable {
+                Unusable::Config(error) => SnapshotError::InvalidConfig(error),
+                Unusable::Inconsistent => SnapshotError::InconsistentState,
+            })?;
         Ok(monitor)
     }
 }

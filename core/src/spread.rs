@@ -556,6 +556,43 @@ impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real] BinAccumulator<R> { weight, mean, comoment, mean_log_level });
+crate::wire::walk_struct!(impl[R: Real] KoenkerSums<R> {
+    weight, weight_squares, mean_level, mean_square, level_comoment, square_comoment,
+    cross_comoment,
+});
+crate::wire::walk_struct!(impl[R: Real, const BINS: usize] SpreadProfile<R, BINS> {
+    config, log_level_low, bins_per_log_unit, accepting, koenker, scale, sample_weight, bins,
+});
+
+impl<R: Real, const BINS: usize> SpreadProfile<R, BINS> {
+    /// A profile of zeros to decode into (every field is then overwritten).
+    pub(crate) fn blank() -> Self {
+        let z = R::ZERO;
+        SpreadProfile {
+            config: SpreadConfig {
+                level_low: z,
+                level_high: z,
+                forgetting: z,
+            },
+            log_level_low: z,
+            bins_per_log_unit: z,
+            accepting: false,
+            koenker: KoenkerSums::EMPTY,
+            scale: z,
+            sample_weight: z,
+            bins: [BinAccumulator::EMPTY; BINS],
+        }
+    }
+}
+crate::wire::walk_struct!(impl[R: Real] SpreadConfig<R> { level_low, level_high, forgetting });
+crate::wire::walk_struct!(impl[R: Real] SpreadExponent<R> { k, standard_error, bins_used } blank: SpreadExponent {
+    k: R::ZERO,
+    standard_error: R::ZERO,
+    bins_used: 0,
+});
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1004,7 +1041,3 @@ mod tests {
         }
     }
 }
-
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "wire/spread.rs"]
-mod wire_codec;

@@ -285,6 +285,15 @@ impl Rung {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::wire_unit_enum!(Rung {
+    Identity,
+    Sqrt,
+    Log,
+    InvSqrt,
+    Inverse
+});
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -38,28 +38,18 @@
 //! - For every value, [`Wire::put`] and [`encode`] write the bytes `postcard::to_slice`
 //!   writes, and [`Wire::get`] and [`decode_into`] accept exactly the inputs
 //!   `postcard::take_from_bytes` accepts, with the same value (the property tests in
-//!   `core/src/wire/tests.rs` check both directions; `decode_into` also gives the same
+//!   `core/src/codec_tests.rs` check both directions; `decode_into` also gives the same
 //!   result whatever the target held before).
-//! - Types with private fields get their impl in a child module of their own module
-//!   (files `core/src/wire/*.rs`), so no field changes visibility.
+//!
+//! # Layering
+//! This module is the bottom layer of the snapshot and the device log: the machinery
+//! ([`Writer`], [`Reader`], [`Walk`], [`Transfer`]) and the impls for numbers, flags,
+//! options and arrays. It imports only [`crate::real`]. Each type's walk or impl lives
+//! beside the type, written with the macros here ([`walk_struct`], [`wire_struct`],
+//! [`wire_unit_enum`]), so no field changes visibility and nothing here knows the types
+//! above it. The equivalence tests against postcard are in `core/src/codec_tests.rs`.
 
-use core::any::Any;
-
-use crate::basis::Basis;
-use crate::detect::alarm::{AlarmRule, AlarmRules};
-use crate::detect::cusum::CusumConfig;
-use crate::detect::drift::{Baseline, DriftConfig, DriftStatus};
-use crate::detect::screen::ScreenConfig;
-use crate::detect::spread_jump::SpreadJumpConfig;
-use crate::detect::{DetectConfig, DetectorCounts, Detectors};
-use crate::event::{AlarmKind, Direction, Event, RejectReason, Severity};
-use crate::ladder::RungState;
-use crate::monitor::{Counters, MonitorConfig};
 use crate::real::Real;
-use crate::record::{LogStart, Record};
-use crate::sample::Sample;
-use crate::spread::{SpreadConfig, SpreadExponent};
-use crate::transform::Rung;
 
 /// The output buffer is full.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -454,24 +444,13 @@ impl<R: Real> Wire for R {
 
     #[inline]
     fn get(r: &mut Reader<'_>) -> Self {
-        // `Real` is implemented for `f32` and `f64` only; the downcast is resolved at
-        // compile time and keeps every bit (a NaN payload too), which a conversion
-        // through `f64` would not promise.
+        // The raw bits, every one kept (a NaN payload too).
         let bits = if R::BITS == 32 {
             u64::from(r.word())
         } else {
             r.bits((R::BITS / 8) as usize)
         };
-        let mut value = R::ZERO;
-        let slot: &mut dyn Any = &mut value;
-        if let Some(x) = slot.downcast_mut::<f32>() {
-            *x = f32::from_bits(bits as u32);
-        } else if let Some(x) = slot.downcast_mut::<f64>() {
-            *x = f64::from_bits(bits);
-        } else {
-            r.fail();
-        }
-        value
+        R::from_bits_u64(bits)
     }
 }
 
@@ -554,16 +533,17 @@ impl<T: Wire + Copy + Default, const N: usize> Wire for [T; N] {
 /// field listed.
 macro_rules! wire_struct {
     (impl[$($gen:tt)*] $ty:ty { $($field:ident),* $(,)? }) => {
-        impl<$($gen)*> Wire for $ty {
-            fn put(&self, w: &mut Writer<'_>) {
-                $( Wire::put(&self.$field, w); )*
+        impl<$($gen)*> $crate::wire::Wire for $ty {
+            fn put(&self, w: &mut $crate::wire::Writer<'_>) {
+                $( $crate::wire::Wire::put(&self.$field, w); )*
             }
-            fn get(r: &mut Reader<'_>) -> Self {
-                Self { $( $field: Wire::get(r), )* }
+            fn get(r: &mut $crate::wire::Reader<'_>) -> Self {
+                Self { $( $field: $crate::wire::Wire::get(r), )* }
             }
         }
     };
 }
+pub(crate) use wire_struct;
 
 /// [`Walk`] for a struct of the snapshot: its fields in declaration order, every field
 /// listed (checked by the compiler). With `blank:`, also
@@ -599,27 +579,30 @@ pub(crate) use walk_struct;
 /// ([`Transfer::value`]) and [`Blank`] (the first variant).
 macro_rules! wire_unit_enum {
     ($ty:ident { $first:ident $(, $variant:ident)* $(,)? }) => {
-        impl Wire for $ty {
-            fn put(&self, w: &mut Writer<'_>) {
+        impl $crate::wire::Wire for $ty {
+            fn put(&self, w: &mut $crate::wire::Writer<'_>) {
                 w.varint32(*self as u32);
             }
             // Out of line: the index-to-variant lookup once per enum, not at every field.
             #[inline(never)]
-            fn get(r: &mut Reader<'_>) -> Self {
+            fn get(r: &mut $crate::wire::Reader<'_>) -> Self {
                 const ALL: &[$ty] = &[$ty::$first $(, $ty::$variant)*];
                 // In range: `variant_below` gives 0 for an index past the end.
                 ALL.get(r.variant_below(ALL.len())).copied().unwrap_or(ALL[0])
             }
         }
 
-        impl Walk for $ty {
+        impl $crate::wire::Walk for $ty {
             #[inline]
-            fn walk<'t, 'a>(&mut self, t: &'t mut Transfer<'a>) -> &'t mut Transfer<'a> {
+            fn walk<'t, 'a>(
+                &mut self,
+                t: &'t mut $crate::wire::Transfer<'a>,
+            ) -> &'t mut $crate::wire::Transfer<'a> {
                 t.value(self)
             }
         }
 
-        impl Blank for $ty {
+        impl $crate::wire::Blank for $ty {
             #[inline]
             fn blank() -> Self {
                 $ty::$first
@@ -627,130 +610,4 @@ macro_rules! wire_unit_enum {
         }
     };
 }
-
-wire_unit_enum!(Rung {
-    Identity,
-    Sqrt,
-    Log,
-    InvSqrt,
-    Inverse
-});
-wire_unit_enum!(Severity { Info, Warn, Alarm });
-wire_unit_enum!(Direction { Up, Down });
-wire_unit_enum!(RejectReason {
-    NonFiniteRaw,
-    NonFiniteReference,
-    NonFiniteTemperature,
-    BelowOrigin,
-    OutOfRange,
-    Spike,
-    Stuck,
-});
-wire_unit_enum!(AlarmKind {
-    BiasShift,
-    GainDrift,
-    OffsetDrift,
-    SpreadJump,
-    SignalStuck,
-    SignalOutOfRange,
-    ReferenceGap,
-    SpreadTracksLevel,
-    MeanMisfit,
-});
-
-walk_struct!(impl[R: Real] Basis<R> {
-    quadratic, temperature, reference_scale, temperature_reference, temperature_scale
-});
-walk_struct!(impl[R: Real] MonitorConfig<R> {
-    basis, forgetting, initial_variance, level_origin, find_baseline, level_low, level_high,
-    warm_up,
-    switch_margin, switch_hold, initial_rung, spread_threshold, spread_every,
-    mean_check_after, mean_check_min_per_bin, mean_check_z, interval_z, coverage_factor,
-    detect,
-});
-walk_struct!(impl[R: Real] DetectConfig<R> { screen, cusum, spread_jump, drift, alarms });
-walk_struct!(impl[R: Real] ScreenConfig<R> {
-    raw_low, raw_high, stuck_run, stuck_window, stuck_response, spike_bound,
-    spike_run_limit, reference_gap_seconds,
-});
-walk_struct!(impl[R: Real] CusumConfig<R> { reference_value, decision_interval });
-walk_struct!(impl[R: Real] SpreadJumpConfig<R> { reference_value, decision_interval });
-walk_struct!(impl[R: Real] DriftConfig<R> {
-    gain_tolerance_percent, offset_tolerance, wald_quantiles, freeze_after, every
-});
-walk_struct!(impl[] AlarmRule { severity, raise_after, clear_after });
-walk_struct!(impl[] AlarmRules {
-    bias_shift, gain_drift, offset_drift, spread_jump, signal_stuck, signal_out_of_range,
-    reference_gap,
-});
-walk_struct!(impl[R: Real] SpreadConfig<R> { level_low, level_high, forgetting });
-walk_struct!(impl[R: Real] SpreadExponent<R> { k, standard_error, bins_used } blank: SpreadExponent {
-    k: R::ZERO,
-    standard_error: R::ZERO,
-    bins_used: 0,
-});
-walk_struct!(impl[R: Real, const P: usize] RungState<R, P> { fit, transformed_sse });
-walk_struct!(impl[] Counters {
-    samples, checks, rejected, below_origin, readings, provisional_readings
-});
-walk_struct!(impl[] DetectorCounts {
-    spikes, out_of_range, stuck_samples, unresponsive_windows, cusum_checks, cusum_signals,
-    spread_jump_signals, drift_evaluations, drift_significant, gap_samples,
-});
-walk_struct!(impl[R: Real] Detectors<R> {
-    screen, cusum, spread_jump, drift, alarms, counts, rejections
-});
-walk_struct!(impl[R: Real] Baseline<R> { parameters, covariance } blank: Baseline {
-    parameters: [R::ZERO; 4],
-    covariance: [[R::ZERO; 4]; 4],
-});
-walk_struct!(impl[R: Real] DriftStatus<R> {
-    gain_change, gain_uncertainty, offset_change, offset_uncertainty, wald, threshold, dof,
-    significant, gain_beyond_tolerance, offset_beyond_tolerance,
-} blank: DriftStatus {
-    gain_change: None,
-    gain_uncertainty: None,
-    offset_change: R::ZERO,
-    offset_uncertainty: R::ZERO,
-    wald: R::ZERO,
-    threshold: R::ZERO,
-    dof: 0,
-    significant: false,
-    gain_beyond_tolerance: false,
-    offset_beyond_tolerance: false,
-});
-wire_struct!(impl[R: Real] Event<R> { seq, kind });
-wire_struct!(impl[R: Real] Sample<R> { seq, t, raw, reference, temperature });
-wire_struct!(impl[] LogStart { magic, version, real_bits });
-
-impl<R: Real> Wire for Record<R> {
-    fn put(&self, w: &mut Writer<'_>) {
-        // As for `EventKind`: the variant index once, then the variant's fields.
-        let index = match self {
-            Record::Start(_) => 0,
-            Record::Sample(_) => 1,
-            Record::Event(_) => 2,
-        };
-        w.byte(index);
-        match self {
-            Record::Start(start) => start.put(w),
-            Record::Sample(sample) => sample.put(w),
-            Record::Event(event) => event.put(w),
-        }
-    }
-
-    fn get(r: &mut Reader<'_>) -> Self {
-        match r.variant() {
-            0 => Record::Start(Wire::get(r)),
-            1 => Record::Sample(Wire::get(r)),
-            2 => Record::Event(Wire::get(r)),
-            _ => {
-                r.fail();
-                Record::Start(LogStart::new::<R>())
-            }
-        }
-    }
-}
-
-#[cfg(test)]
-mod tests;
+pub(crate) use wire_unit_enum;

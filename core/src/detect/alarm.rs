@@ -251,6 +251,15 @@ impl AlarmBoard {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[] AlarmState { present, quiet, raised });
+crate::wire::walk_struct!(impl[] AlarmBoard { states, raises });
+crate::wire::walk_struct!(impl[] AlarmRule { severity, raise_after, clear_after });
+crate::wire::walk_struct!(impl[] AlarmRules {
+    bias_shift, gain_drift, offset_drift, spread_jump, signal_stuck, signal_out_of_range,
+    reference_gap,
+});
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -312,7 +321,3 @@ mod tests {
         assert_eq!(bad.first_invalid(), Some(AlarmKind::GainDrift));
     }
 }
-
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "../wire/alarm.rs"]
-mod wire_codec;

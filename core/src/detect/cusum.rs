@@ -134,6 +134,10 @@ impl<R: Real> TabularCusum<R> {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real] TabularCusum<R> { upper, lower, upper_run, lower_run });
+crate::wire::walk_struct!(impl[R: Real] CusumConfig<R> { reference_value, decision_interval });
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -170,7 +174,3 @@ mod tests {
         assert!(!no_interval.is_valid());
     }
 }
-
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "../wire/cusum.rs"]
-mod wire_codec;

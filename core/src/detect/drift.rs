@@ -339,6 +339,31 @@ impl<R: Real> DriftDetector<R> {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real] DriftDetector<R> { baseline, status });
+crate::wire::walk_struct!(impl[R: Real] DriftConfig<R> {
+    gain_tolerance_percent, offset_tolerance, wald_quantiles, freeze_after, every
+});
+crate::wire::walk_struct!(impl[R: Real] Baseline<R> { parameters, covariance } blank: Baseline {
+    parameters: [R::ZERO; 4],
+    covariance: [[R::ZERO; 4]; 4],
+});
+crate::wire::walk_struct!(impl[R: Real] DriftStatus<R> {
+    gain_change, gain_uncertainty, offset_change, offset_uncertainty, wald, threshold, dof,
+    significant, gain_beyond_tolerance, offset_beyond_tolerance,
+} blank: DriftStatus {
+    gain_change: None,
+    gain_uncertainty: None,
+    offset_change: R::ZERO,
+    offset_uncertainty: R::ZERO,
+    wald: R::ZERO,
+    threshold: R::ZERO,
+    dof: 0,
+    significant: false,
+    gain_beyond_tolerance: false,
+    offset_beyond_tolerance: false,
+});
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -503,7 +528,3 @@ mod tests {
             .is_none());
     }
 }
-
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "../wire/drift.rs"]
-mod wire_codec;

@@ -306,6 +306,16 @@ impl<R: Real> Detectors<R> {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real] DetectConfig<R> { screen, cusum, spread_jump, drift, alarms });
+crate::wire::walk_struct!(impl[] DetectorCounts {
+    spikes, out_of_range, stuck_samples, unresponsive_windows, cusum_checks, cusum_signals,
+    spread_jump_signals, drift_evaluations, drift_significant, gap_samples,
+});
+crate::wire::walk_struct!(impl[R: Real] Detectors<R> {
+    screen, cusum, spread_jump, drift, alarms, counts, rejections
+});
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -204,6 +204,17 @@ impl<R: Real> Screen<R> {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real] Screen<R> {
+    last_raw_bits, identical_run, window_checks, window_raw_low, window_raw_high,
+    window_prediction_low, window_prediction_high, spikes_in_a_row, unresponsive,
+    last_check_t,
+});
+crate::wire::walk_struct!(impl[R: Real] ScreenConfig<R> {
+    raw_low, raw_high, stuck_run, stuck_window, stuck_response, spike_bound,
+    spike_run_limit, reference_gap_seconds,
+});
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -308,7 +319,3 @@ mod tests {
         assert_eq!(screen.observe_time(&off, f64::MAX, false), None);
     }
 }
-
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "../wire/screen.rs"]
-mod wire_codec;

@@ -118,6 +118,10 @@ impl<R: Real> SpreadJumpCusum<R> {
     }
 }
 
+// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
+crate::wire::walk_struct!(impl[R: Real] SpreadJumpCusum<R> { sum, run });
+crate::wire::walk_struct!(impl[R: Real] SpreadJumpConfig<R> { reference_value, decision_interval });
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -154,7 +158,3 @@ mod tests {
         assert_eq!(cusum.update(&config, f64::NAN), None);
     }
 }
-
-/// The snapshot codec of this module's state (private fields; see `crate::wire`).
-#[path = "../wire/spread_jump.rs"]
-mod wire_codec;

@@ -8,12 +8,12 @@ use proptest::prelude::*;
 use serde::de::DeserializeOwned;
 use serde::Serialize;
 
-use super::{decode_into, encode, take_from_bytes, to_slice, Walk, Wire};
 use crate::event::{Event, EventKind, FieldSource, KindId, Named};
 use crate::monitor::{Monitor, MonitorConfig};
 use crate::real::Real;
 use crate::record::{LogStart, Record};
 use crate::sample::Sample;
+use crate::wire::{decode_into, encode, take_from_bytes, to_slice, Walk, Wire};
 
 /// postcard's bytes for `value`.
 fn reference<T: Serialize>(value: &T) -> Vec<u8> {
@@ -72,7 +72,9 @@ fn walked<T: Walk>(value: &mut T) -> Vec<u8> {
 
 /// A monitor decoded by the walk into a blank monitor (as a snapshot is), and the number
 /// of bytes left after it.
-fn decoded<R: Real, const P: usize>(bytes: &[u8]) -> Result<(Monitor<R, P>, usize), super::Bad> {
+fn decoded<R: Real, const P: usize>(
+    bytes: &[u8],
+) -> Result<(Monitor<R, P>, usize), crate::wire::Bad> {
     let mut monitor = Monitor::<R, P>::blank();
     let unused = decode_into(&mut monitor, bytes)?;
     Ok((monitor, unused))

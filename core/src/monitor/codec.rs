@@ -1,9 +1,9 @@
-//! [`Walk`](crate::wire::Walk) for the monitor: a child of `monitor` for its private
+//! [`Walk`](crate::wire::Walk) for the monitor, a child of `monitor` for its private
 //! fields; the bytes are postcard's (see [`crate::wire`]). The derived `ladder_config` and
 //! `alarm_flags` are not written; a snapshot is decoded into [`Monitor::blank`], whose
 //! values there `complete_restored` replaces.
 
-use super::{Counters, Monitor, MonitorConfig};
+use super::{ConfigError, Counters, Monitor, MonitorConfig};
 use crate::adequacy::MeanCheck;
 use crate::basis::Basis;
 use crate::detect::alarm::AlarmRules;
@@ -19,6 +19,15 @@ use crate::real::Real;
 use crate::spread::SpreadProfile;
 use crate::transform::Rung;
 use crate::wire::{Transfer, Walk};
+
+/// Why a decoded monitor cannot be used (the snapshot turns it into its own error).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum Unusable {
+    /// The configuration does not validate.
+    Config(ConfigError),
+    /// The state disagrees with the configuration (fit sizes, spread settings).
+    Inconsistent,
+}
 
 impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monitor<R, P, BINS, Q> {
     /// The monitor's fields in wire order; `ladder_config` and `alarm_flags` are not
@@ -59,6 +68,27 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Walk for Monito
 }
 
 impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, BINS, Q> {
+    /// Completes a monitor decoded from a snapshot and checks it: rebuilds what the
+    /// snapshot leaves out because the configuration implies it (the ladder settings, every
+    /// fit's forgetting and initial variance), then checks that the configuration validates
+    /// and the state agrees with it (fit sizes, spread settings), so that `push` keeps its
+    /// invariants on it.
+    pub(crate) fn complete_restored(&mut self) -> Result<(), Unusable> {
+        self.config.validate(P).map_err(Unusable::Config)?;
+        self.ladder_config = self.config.ladder();
+        self.ladder_config.level_origin = self.origin.value();
+        self.ladder.set_fit_config(self.ladder_config.fit);
+        let dim = self.config.basis.len();
+        let fits_agree = Rung::ALL
+            .iter()
+            .all(|&rung| self.ladder.fit(rung).dim() == dim);
+        if *self.spread.config() != self.config.spread() || !fits_agree {
+            return Err(Unusable::Inconsistent);
+        }
+        self.alarm_flags = self.raised_alarm_flags();
+        Ok(())
+    }
+
     /// A monitor to decode a snapshot into: every field is overwritten by the walk
     /// ([`Walk`]) or rebuilt by `complete_restored`, so the values here never show. Zeros
     /// (not a usable configuration) are the cheapest to build.
