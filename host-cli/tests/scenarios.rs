@@ -221,6 +221,7 @@ fn help_documents_exit_codes_and_examples() {
         vec!["replay", "--help"],
         vec!["watch", "--help"],
         vec!["fleet", "--help"],
+        vec!["assess", "--help"],
     ] {
         steadycal()
             .args(&command)

@@ -21,6 +21,13 @@ pub enum BasisArg {
 
 /// Arguments of `assess`.
 #[derive(Args, Debug)]
+#[command(after_help = super::after_help(concat!(
+    "Examples:\n",
+    "  steadycal assess simulated-feeds/lab/co_gas_cell.csv\n",
+    "  steadycal assess simulated-feeds/lab/co_gas_cell.csv --json --out co.json --report co.html\n",
+    "  steadycal assess run.csv --raw-column signal --ref-column conc --weights ref^-2\n",
+    "  steadycal assess run.csv --raw-uncertainty-column u_signal --commission cell.monitor.toml",
+)))]
 pub struct AssessArgs {
     /// Lab run: CSV with a header naming `raw` (response) and `ref` (reference); rows without
     /// `ref` are ignored.
