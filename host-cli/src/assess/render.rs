@@ -91,10 +91,34 @@ fn a_alpha(a: &Assessment) -> f64 {
     a.boxcox.as_ref().map_or(0.05, |b| 1.0 - b.confidence)
 }
 
-/// Renders the assessment as plain text.
+/// Renders the assessment as plain text: one section per analysis, in the order below.
 pub fn render_text(assessment: &Assessment) -> String {
     let mut out = String::new();
     let a = assessment;
+    header(&mut out, a);
+    fit_section(&mut out, a, "Ordinary least squares", &a.ols);
+    weighted_section(&mut out, a);
+    let _ = writeln!(
+        out,
+        "\nHeadline fit (limits and inverse table): {}",
+        a.headline_fit.to_uppercase()
+    );
+    scatter_section(&mut out, a);
+    power_transform_section(&mut out, a);
+    limits_section(&mut out, a);
+    inverse_section(&mut out, a);
+    if !a.notes.is_empty() {
+        let _ = writeln!(out, "\nNotes");
+        for note in &a.notes {
+            let _ = writeln!(out, "  - {note}");
+        }
+    }
+    let _ = writeln!(out, "\nCaution: {}", a.caution);
+    out
+}
+
+/// The title and the run's shape.
+fn header(out: &mut String, a: &Assessment) {
     let _ = writeln!(out, "Calibration assessment");
     let _ = writeln!(
         out,
@@ -109,88 +133,92 @@ pub fn render_text(assessment: &Assessment) -> String {
         a.model.basis.name(),
         a.model.parameter_names.join(", ")
     );
-    let fit_lines = |out: &mut String, title: &str, fit: &super::FitReport| {
-        let _ = writeln!(out, "\n{title}");
-        for ((name, value), se) in a
-            .model
-            .parameter_names
-            .iter()
-            .zip(&fit.fit.params)
-            .zip(&fit.fit.param_se)
-        {
-            let _ = writeln!(
-                out,
-                "  {name:<12} {:>14}  (SE {})",
-                significant(*value),
-                significant(*se)
-            );
-        }
+}
+
+/// One fit: its parameters with standard errors, residual SD, R² and lack-of-fit test.
+fn fit_section(out: &mut String, a: &Assessment, title: &str, fit: &super::FitReport) {
+    let _ = writeln!(out, "\n{title}");
+    for ((name, value), se) in a
+        .model
+        .parameter_names
+        .iter()
+        .zip(&fit.fit.params)
+        .zip(&fit.fit.param_se)
+    {
         let _ = writeln!(
             out,
-            "  residual SD  {}  (df {}), R² {}",
-            significant(fit.fit.residual_sd),
-            fit.fit.df_resid,
-            number(fit.fit.r_squared)
+            "  {name:<12} {:>14}  (SE {})",
+            significant(*value),
+            significant(*se)
         );
-        match &fit.lack_of_fit {
-            Some(test) => {
-                let _ = writeln!(
-                    out,
-                    "  lack of fit  F = {} on ({}, {}) df, p = {} -> {}",
-                    significant(test.statistic),
-                    test.lack_of_fit_df,
-                    test.pure_error_df,
-                    significant(test.p_value),
-                    if test.adequate {
-                        "mean adequate"
-                    } else {
-                        "mean misfits"
-                    }
-                );
-            }
-            None => {
-                let _ = writeln!(out, "  lack of fit  not testable (no replicates)");
-            }
-        }
-    };
-    fit_lines(&mut out, "Ordinary least squares", &a.ols);
-    if let Some(wls) = &a.wls {
-        fit_lines(
-            &mut out,
-            &format!(
-                "Weighted least squares (weights {}: {}{})",
-                wls.weights,
-                wls.weights_formula,
-                if wls.exponent.is_finite() {
-                    format!("; SD exponent k = {}", significant(wls.exponent))
-                } else {
-                    String::new()
-                }
-            ),
-            &wls.report,
-        );
-        if let (Some(chi), Some(df), Some(p)) =
-            (wls.chi_squared, wls.chi_squared_df, wls.chi_squared_p)
-        {
-            let _ = writeln!(
-                out,
-                "  chi-squared  {} on {df} df, p = {} -> {}",
-                significant(chi),
-                significant(p),
-                if p >= a_alpha(a) {
-                    "consistent with the stated uncertainties"
-                } else {
-                    "the data scatter more than the stated uncertainties allow"
-                }
-            );
-        }
     }
     let _ = writeln!(
         out,
-        "\nHeadline fit (limits and inverse table): {}",
-        a.headline_fit.to_uppercase()
+        "  residual SD  {}  (df {}), R² {}",
+        significant(fit.fit.residual_sd),
+        fit.fit.df_resid,
+        number(fit.fit.r_squared)
     );
+    match &fit.lack_of_fit {
+        Some(test) => {
+            let _ = writeln!(
+                out,
+                "  lack of fit  F = {} on ({}, {}) df, p = {} -> {}",
+                significant(test.statistic),
+                test.lack_of_fit_df,
+                test.pure_error_df,
+                significant(test.p_value),
+                if test.adequate {
+                    "mean adequate"
+                } else {
+                    "mean misfits"
+                }
+            );
+        }
+        None => {
+            let _ = writeln!(out, "  lack of fit  not testable (no replicates)");
+        }
+    }
+}
 
+/// The weighted fit with its rule and, for known uncertainties, the χ² check.
+fn weighted_section(out: &mut String, a: &Assessment) {
+    let Some(wls) = &a.wls else {
+        return;
+    };
+    fit_section(
+        out,
+        a,
+        &format!(
+            "Weighted least squares (weights {}: {}{})",
+            wls.weights,
+            wls.weights_formula,
+            if wls.exponent.is_finite() {
+                format!("; SD exponent k = {}", significant(wls.exponent))
+            } else {
+                String::new()
+            }
+        ),
+        &wls.report,
+    );
+    if let (Some(chi), Some(df), Some(p)) = (wls.chi_squared, wls.chi_squared_df, wls.chi_squared_p)
+    {
+        let _ = writeln!(
+            out,
+            "  chi-squared  {} on {df} df, p = {} -> {}",
+            significant(chi),
+            significant(p),
+            if p >= a_alpha(a) {
+                "consistent with the stated uncertainties"
+            } else {
+                "the data scatter more than the stated uncertainties allow"
+            }
+        );
+    }
+}
+
+/// The spread model and the tests of scatter against level.
+fn scatter_section(out: &mut String, a: &Assessment) {
     let _ = writeln!(out, "\nScatter against level");
     if let Some(spread) = &a.spread {
         let _ = writeln!(
@@ -242,7 +270,10 @@ pub fn render_text(assessment: &Assessment) -> String {
             if test.homogeneous { "homogeneous" } else { "not homogeneous" }
         );
     }
+}
 
+/// Box–Cox of both sides, the ladder's rungs and the advice.
+fn power_transform_section(out: &mut String, a: &Assessment) {
     let _ = writeln!(
         out,
         "\nPower transform (Box-Cox, both sides through the mean)"
@@ -282,7 +313,10 @@ pub fn render_text(assessment: &Assessment) -> String {
         a.recommended,
         if a.weighting_preferred { "yes" } else { "no" }
     );
+}
 
+/// The named limits: the 3.3σ/b and 10σ/b rule under both σ, and DIN 32645.
+fn limits_section(out: &mut String, a: &Assessment) {
     let _ = writeln!(out, "\nLimits: {}", a.limits.rule);
     let _ = writeln!(out, "  headline sigma: {}", a.limits.sigma_basis);
     let _ = writeln!(
@@ -326,7 +360,10 @@ pub fn render_text(assessment: &Assessment) -> String {
             significant(din.quantification_limit)
         );
     }
+}
 
+/// The inverse-prediction table.
+fn inverse_section(out: &mut String, a: &Assessment) {
     let table = &a.inverse_prediction;
     let _ = writeln!(
         out,
@@ -357,12 +394,4 @@ pub fn render_text(assessment: &Assessment) -> String {
             }
         );
     }
-    if !a.notes.is_empty() {
-        let _ = writeln!(out, "\nNotes");
-        for note in &a.notes {
-            let _ = writeln!(out, "  - {note}");
-        }
-    }
-    let _ = writeln!(out, "\nCaution: {}", a.caution);
-    out
 }
