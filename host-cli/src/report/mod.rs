@@ -6,8 +6,8 @@
 //! - [`thin`]: thinning of long runs (extremes and points near events kept),
 //! - [`plot`]: one module per plot (plotters, SVG backend, built-in text metrics),
 //! - [`html`]: page assembly, [`escape`]: escaping of every outside string,
-//! - [`run_page`] ([`run_report`]) and [`assess_page`] ([`assess_report`]): what goes on
-//!   the page for each kind of input.
+//! - [`run_page`] ([`run_report`], with its figures and timeline in child modules) and
+//!   [`assess_page`] ([`assess_report`]): what goes on the page for each kind of input.
 //!
 //! # Contract
 //! - The page depends only on its inputs: two reports of the same run are byte-identical.
