@@ -15,6 +15,7 @@ pub mod device_log;
 pub mod feed;
 pub mod field;
 pub mod io;
+pub mod mqtt;
 pub mod number;
 pub mod precision;
 pub mod replay;

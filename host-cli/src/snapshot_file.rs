@@ -144,6 +144,16 @@ pub fn restore_as<R: Real>(path: &Path) -> Result<Monitor<R>> {
 /// Writes a monitor's snapshot to a file (`-` = standard output). The monitor is taken by
 /// `&mut` for `Monitor::snapshot`, which changes nothing.
 pub fn write<R: Real>(path: &Path, monitor: &mut Monitor<R>) -> Result<usize> {
+    let bytes = encode(path, monitor)?;
+    let mut out = create_output(path)?;
+    out.write_all(&bytes)
+        .and_then(|_| out.flush())
+        .with_context(|| format!("{}: cannot write", path.display()))?;
+    Ok(bytes.len())
+}
+
+/// A monitor's snapshot bytes (`path` names the file in messages).
+pub fn encode<R: Real>(path: &Path, monitor: &mut Monitor<R>) -> Result<Vec<u8>> {
     let mut buffer = vec![0u8; steadycal_core::snapshot::max_snapshot_len::<R, 3, 16, 8>()];
     let len = monitor.snapshot(&mut buffer).map_err(|e| {
         anyhow::anyhow!(
@@ -152,11 +162,8 @@ pub fn write<R: Real>(path: &Path, monitor: &mut Monitor<R>) -> Result<usize> {
             e.reason()
         )
     })?;
-    let mut out = create_output(path)?;
-    out.write_all(&buffer[..len])
-        .and_then(|_| out.flush())
-        .with_context(|| format!("{}: cannot write", path.display()))?;
-    Ok(len)
+    buffer.truncate(len);
+    Ok(buffer)
 }
 
 /// The top-level keys in which two configurations differ (bit for bit), for messages.

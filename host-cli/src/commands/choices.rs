@@ -4,6 +4,7 @@
 use clap::builder::PossibleValue;
 use clap::ValueEnum;
 
+use crate::mqtt::options::PayloadKind;
 use crate::precision::Precision;
 use crate::replay::InputFormat;
 
@@ -35,6 +36,22 @@ impl ValueEnum for InputFormat {
             InputFormat::Csv => PossibleValue::new("csv").help("CSV with a header"),
             InputFormat::DeviceLog => PossibleValue::new("device-log")
                 .help("A device log (COBS-framed postcard records, see `steadycal_core::record`)"),
+        })
+    }
+}
+
+impl ValueEnum for PayloadKind {
+    fn value_variants<'a>() -> &'a [Self] {
+        &[PayloadKind::Json, PayloadKind::Csv]
+    }
+
+    fn to_possible_value(&self) -> Option<PossibleValue> {
+        Some(match self {
+            PayloadKind::Json => PossibleValue::new("json")
+                .help("One JSON object per message: t, raw, optional ref, temp, channel"),
+            PayloadKind::Csv => {
+                PossibleValue::new("csv").help("One CSV line per message under --columns")
+            }
         })
     }
 }

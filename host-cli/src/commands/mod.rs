@@ -31,6 +31,7 @@ pub mod report;
 pub mod simulate;
 pub mod snapshot;
 pub mod watch;
+pub mod watch_mqtt;
 
 /// The exit-code contract, shown at the end of every `--help` (through [`after_help`]).
 pub const EXIT_CODES: &str = "\

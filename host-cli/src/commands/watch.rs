@@ -21,12 +21,14 @@ use clap::Args;
 use steadycal_core::real::Real;
 use steadycal_core::sample::Sample;
 
+use super::watch_mqtt::MqttArgs;
 use super::{
     exit_alarms, exit_bad_input, human_summary, reaches, resolve, ChatterArgs, ColumnArgs, FailOn,
     MonitorArgs, Resolved,
 };
 use crate::feed::{CsvFeed, FeedError};
 use crate::io::create_output;
+use crate::mqtt::service::Setup;
 use crate::precision::Precision;
 use crate::replay::engine::Engine;
 use crate::replay::sink::events::{event_json, write_event};
@@ -39,11 +41,15 @@ use crate::terminal::{colour_enabled, paint, stderr_is_terminal, stdout_is_termi
     "Examples:\n",
     "  stty -F /dev/ttyUSB0 115200 raw && steadycal watch /dev/ttyUSB0 --config monitor.toml\n",
     "  tail -f -n +1 logger.csv | steadycal watch - --summary summary.json\n",
-    "  steadycal watch feed.csv --json | jq -c 'select(.kind != \"sample_rejected\")'\n\n",
+    "  steadycal watch feed.csv --json | jq -c 'select(.kind != \"sample_rejected\")'\n",
+    "  steadycal watch --mqtt mqtt://localhost --topic 'plant/+/feed' --state-dir state\n\n",
     "Events go to standard output as they happen: JSON lines when it is not a terminal (or\n",
     "with --json), one readable line each on a terminal. The status line is drawn on\n",
     "standard error when it is a terminal. Ctrl-C or end of input stops the watch and\n",
-    "writes the summary.",
+    "writes the summary.\n\n",
+    "With --mqtt, samples come from the broker (one channel per `+` level of --topic) and\n",
+    "events, alarm states and statuses go to it under --publish-prefix (README, \"Live on\n",
+    "an MQTT broker\"); SIGINT or SIGTERM saves the state and stops.",
 )))]
 pub struct WatchArgs {
     /// The stream: a CSV with a header line, as in `replay` (`-` = stdin, the default).
@@ -70,6 +76,8 @@ pub struct WatchArgs {
     pub columns: ColumnArgs,
     #[command(flatten)]
     pub chatter: ChatterArgs,
+    #[command(flatten)]
+    pub broker: MqttArgs,
 }
 
 enum Message<R> {
@@ -80,6 +88,22 @@ enum Message<R> {
 /// Runs `watch`.
 pub fn run(args: WatchArgs) -> anyhow::Result<ExitCode> {
     let resolved = resolve(&args.monitor, &args.columns, None)?;
+    if let Some(url) = &args.broker.mqtt {
+        if args.input.as_os_str() != "-" || args.events.is_some() || args.summary.is_some() {
+            anyhow::bail!("--mqtt reads samples from the broker and publishes events there; leave out FILE, --events and --summary");
+        }
+        let setup = Setup {
+            config: resolved.config,
+            baseline: resolved.baseline,
+            columns: resolved.columns,
+        };
+        return crate::mqtt::run(
+            &args.broker.options(url),
+            setup,
+            args.monitor.precision,
+            args.chatter.quiet,
+        );
+    }
     match args.monitor.precision {
         Precision::F32 => watch::<f32>(&args, resolved),
         Precision::F64 => watch::<f64>(&args, resolved),

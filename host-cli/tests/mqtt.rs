@@ -1,0 +1,409 @@
+//! `watch --mqtt` against a real broker: Debian's mosquitto, started by each test on a
+//! free loopback port with a generated configuration and stopped at the end (no mock).
+//! Without mosquitto the tests are skipped, unless `STEADYCAL_REQUIRE_MOSQUITTO=1` (as
+//! `.ci/run` sets) makes its absence a failure.
+//!
+//! The expected events are what `replay` writes for the same feed: the comparison is of
+//! steadycal against itself across the broker, not against an outside value.
+
+mod common;
+
+use std::collections::BTreeMap;
+use std::io::Write;
+use std::net::TcpListener;
+use std::path::{Path, PathBuf};
+use std::process::{Child, Command, Stdio};
+use std::sync::{Arc, Mutex};
+use std::time::{Duration, Instant};
+
+use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
+use serde_json::Value;
+
+/// Longest wait for the service to get through a feed (not a speed target).
+const DEADLINE: Duration = Duration::from_secs(40);
+
+fn mosquitto() -> Option<PathBuf> {
+    let mut places: Vec<PathBuf> = std::env::var_os("PATH")
+        .map(|path| std::env::split_paths(&path).collect())
+        .unwrap_or_default();
+    places.push("/usr/sbin".into());
+    places
+        .into_iter()
+        .map(|dir| dir.join("mosquitto"))
+        .find(|path| path.is_file())
+}
+
+fn mosquitto_required(test: &str) -> Option<PathBuf> {
+    let found = mosquitto();
+    if found.is_none() {
+        assert!(
+            std::env::var("STEADYCAL_REQUIRE_MOSQUITTO").as_deref() != Ok("1"),
+            "mosquitto is required (STEADYCAL_REQUIRE_MOSQUITTO=1): apt-get install mosquitto mosquitto-clients"
+        );
+        eprintln!(
+            "SKIPPED {test}: mosquitto not installed (apt-get install mosquitto mosquitto-clients)"
+        );
+    }
+    found
+}
+
+/// A mosquitto on a free loopback port, with persistence in its own directory.
+struct Broker {
+    program: PathBuf,
+    dir: PathBuf,
+    port: u16,
+    child: Option<Child>,
+}
+
+impl Broker {
+    fn start(program: PathBuf, dir: &Path) -> Broker {
+        let port = TcpListener::bind("127.0.0.1:0")
+            .unwrap()
+            .local_addr()
+            .unwrap()
+            .port();
+        let dir = dir.join("broker");
+        std::fs::create_dir_all(&dir).unwrap();
+        // max_queued_messages 0: no limit on what waits for an offline persistent
+        // session (mosquitto drops beyond 1,000 by default).
+        let config = format!(
+            "listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\npersistence_location {}/\nmax_queued_messages 0\n",
+            dir.display()
+        );
+        std::fs::write(dir.join("mosquitto.conf"), config).unwrap();
+        let mut broker = Broker {
+            program,
+            dir,
+            port,
+            child: None,
+        };
+        broker.run();
+        broker
+    }
+
+    fn run(&mut self) {
+        let log = std::fs::OpenOptions::new()
+            .create(true)
+            .append(true)
+            .open(self.dir.join("log"))
+            .unwrap();
+        let child = Command::new(&self.program)
+            .arg("-c")
+            .arg(self.dir.join("mosquitto.conf"))
+            .stdout(log.try_clone().unwrap())
+            .stderr(log)
+            .spawn()
+            .expect("mosquitto starts");
+        self.child = Some(child);
+        let until = Instant::now() + Duration::from_secs(10);
+        while std::net::TcpStream::connect(("127.0.0.1", self.port)).is_err() {
+            assert!(Instant::now() < until, "mosquitto listens within 10 s");
+            std::thread::sleep(Duration::from_millis(20));
+        }
+    }
+
+    fn url(&self) -> String {
+        format!("mqtt://127.0.0.1:{}", self.port)
+    }
+}
+
+impl Drop for Broker {
+    fn drop(&mut self) {
+        if let Some(mut child) = self.child.take() {
+            let _ = child.kill();
+            let _ = child.wait();
+        }
+    }
+}
+
+fn signal(child: &Child, name: &str) {
+    let status = Command::new("kill")
+        .arg(format!("-{name}"))
+        .arg(child.id().to_string())
+        .status()
+        .unwrap();
+    assert!(status.success());
+}
+
+/// Everything published under `steadycal/`, collected by a persistent QoS 1 session
+/// that reconnects when the broker goes away.
+/// Messages received: topic and payload, in arrival order.
+type Seen = Arc<Mutex<Vec<(String, Vec<u8>)>>>;
+
+struct Collector {
+    seen: Seen,
+}
+
+impl Collector {
+    fn start(port: u16, id: &str) -> Collector {
+        let mut options = MqttOptions::new(id, "127.0.0.1", port);
+        options
+            .set_clean_session(false)
+            .set_max_packet_size(1 << 21, 1 << 21);
+        let (client, mut connection) = Client::new(options, 64);
+        let seen: Seen = Arc::new(Mutex::new(Vec::new()));
+        let store = Arc::clone(&seen);
+        std::thread::spawn(move || {
+            for notification in connection.iter() {
+                match notification {
+                    Ok(Event::Incoming(Packet::ConnAck(_))) => {
+                        let _ = client.try_subscribe("steadycal/#", QoS::AtLeastOnce);
+                    }
+                    Ok(Event::Incoming(Packet::Publish(p))) => {
+                        store
+                            .lock()
+                            .unwrap()
+                            .push((p.topic.clone(), p.payload.to_vec()));
+                    }
+                    Ok(_) => {}
+                    Err(_) => std::thread::sleep(Duration::from_millis(50)),
+                }
+            }
+        });
+        Collector { seen }
+    }
+
+    fn on(&self, topic: &str) -> Vec<Vec<u8>> {
+        self.seen
+            .lock()
+            .unwrap()
+            .iter()
+            .filter(|(t, _)| t == topic)
+            .map(|(_, p)| p.clone())
+            .collect()
+    }
+
+    fn last_json(&self, topic: &str) -> Option<Value> {
+        self.on(topic)
+            .last()
+            .map(|p| serde_json::from_slice(p).unwrap())
+    }
+
+    /// Waits until every channel's status counts `samples` samples.
+    fn wait_for_samples(&self, expected: &[(&str, u64)]) {
+        let until = Instant::now() + DEADLINE;
+        loop {
+            let done = expected.iter().all(|(channel, samples)| {
+                self.last_json(&format!("steadycal/{channel}/status"))
+                    .is_some_and(|s| s["samples"].as_u64() == Some(*samples))
+            });
+            if done {
+                return;
+            }
+            assert!(
+                Instant::now() < until,
+                "statuses within {DEADLINE:?}: {:?}",
+                expected
+                    .iter()
+                    .map(|(c, _)| self.last_json(&format!("steadycal/{c}/status")))
+                    .collect::<Vec<_>>()
+            );
+            std::thread::sleep(Duration::from_millis(50));
+        }
+    }
+}
+
+/// `steadycal watch --mqtt` in the background.
+fn watch(url: &str, state: &Path, extra: &[&str]) -> Child {
+    Command::new(common::binary())
+        .args([
+            "watch",
+            "--mqtt",
+            url,
+            "--topic",
+            "plant/+/feed",
+            "--state-dir",
+        ])
+        .arg(state)
+        .args(["--status-seconds", "1"])
+        .args(extra)
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap()
+}
+
+/// Stops the watch with SIGTERM and returns its standard error.
+fn stop_watch(child: Child) -> String {
+    signal(&child, "TERM");
+    let output = child.wait_with_output().unwrap();
+    assert!(output.status.success(), "watch exits 0 on SIGTERM");
+    String::from_utf8_lossy(&output.stderr).into_owned()
+}
+
+/// The first `rows` data rows of a shipped feed as CSV text, and as one JSON payload per
+/// row with the cells' text copied as JSON numbers (an empty cell is left out).
+fn feed(name: &str, rows: usize) -> (String, Vec<String>) {
+    let text = std::fs::read_to_string(common::feeds().join(name)).unwrap();
+    let mut lines = text.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let mut csv = header.join(",") + "\n";
+    let mut payloads = Vec::new();
+    for line in lines.take(rows) {
+        csv.push_str(line);
+        csv.push('\n');
+        let fields: Vec<String> = header
+            .iter()
+            .zip(line.split(','))
+            .filter(|(_, cell)| !cell.is_empty())
+            .map(|(name, cell)| format!("\"{name}\":{cell}"))
+            .collect();
+        payloads.push(format!("{{{}}}", fields.join(",")));
+    }
+    (csv, payloads)
+}
+
+/// What `replay` writes for the CSV: the event lines and the summary.
+fn replay(dir: &Path, name: &str, csv: &str) -> (Vec<Value>, Value) {
+    let input = dir.join(format!("{name}.csv"));
+    std::fs::write(&input, csv).unwrap();
+    let events = dir.join(format!("{name}.events.jsonl"));
+    let summary = dir.join(format!("{name}.summary.json"));
+    common::steadycal()
+        .arg("replay")
+        .arg(&input)
+        .arg("--events")
+        .arg(&events)
+        .arg("--summary")
+        .arg(&summary)
+        .arg("-q")
+        .assert()
+        .success();
+    let lines = std::fs::read_to_string(&events)
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    let summary = serde_json::from_str(&std::fs::read_to_string(&summary).unwrap()).unwrap();
+    (lines, summary)
+}
+
+/// Publishes payloads, one message each, at QoS 1 with mosquitto_pub (waits for it).
+fn publish(port: u16, topic: &str, payloads: &[String]) -> Child {
+    let mut child = Command::new("mosquitto_pub")
+        .args([
+            "-h",
+            "127.0.0.1",
+            "-p",
+            &port.to_string(),
+            "-q",
+            "1",
+            "-l",
+            "-t",
+            topic,
+        ])
+        .stdin(Stdio::piped())
+        .spawn()
+        .expect("mosquitto_pub runs");
+    let mut stdin = child.stdin.take().unwrap();
+    let text = payloads.join("\n") + "\n";
+    std::thread::spawn(move || {
+        let _ = stdin.write_all(text.as_bytes());
+    });
+    child
+}
+
+fn finish(mut child: Child) {
+    assert!(child.wait().unwrap().success(), "mosquitto_pub succeeded");
+}
+
+/// The events of a channel from the events topic, `channel` removed, in arrival order,
+/// repeats (the same line again, as QoS 1 and restarts allow) removed.
+fn events_of(collector: &Collector, channel: &str) -> (Vec<Value>, usize) {
+    let mut seen = std::collections::BTreeSet::new();
+    let mut events = Vec::new();
+    let mut repeats = 0;
+    for payload in collector.on(&format!("steadycal/{channel}/events")) {
+        let mut event: Value = serde_json::from_slice(&payload).unwrap();
+        assert_eq!(event["channel"], channel);
+        event.as_object_mut().unwrap().remove("channel");
+        if seen.insert(serde_json::to_string(&event).unwrap()) {
+            events.push(event);
+        } else {
+            repeats += 1;
+        }
+    }
+    (events, repeats)
+}
+
+/// The alarm kinds of a retained alarm state.
+fn alarm_kinds(state: &Value) -> Vec<String> {
+    state["alarms"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|a| a["kind"].as_str().unwrap().to_string())
+        .collect()
+}
+
+fn summary_alarm_kinds(summary: &Value) -> Vec<String> {
+    alarm_kinds(summary)
+}
+
+/// The retained messages a late subscriber sees on `topic`.
+fn retained(port: u16, topic: &str) -> Value {
+    let output = Command::new("mosquitto_sub")
+        .args([
+            "-h",
+            "127.0.0.1",
+            "-p",
+            &port.to_string(),
+            "-t",
+            topic,
+            "-C",
+            "1",
+            "-W",
+            "5",
+        ])
+        .output()
+        .unwrap();
+    assert!(output.status.success(), "a retained message on {topic}");
+    serde_json::from_slice(&output.stdout).unwrap()
+}
+
+const ROWS: usize = 3000;
+const FEEDS: [(&str, &str); 2] = [
+    ("cell-a", "gas-cell.csv"),
+    ("cell-b", "turbidity-outliers.csv"),
+];
+
+#[test]
+fn two_channels_at_once_give_the_events_replay_writes() {
+    let Some(program) = mosquitto_required("two_channels_at_once_give_the_events_replay_writes")
+    else {
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let broker = Broker::start(program, dir.path());
+    let collector = Collector::start(broker.port, "test-collector-1");
+    let state = dir.path().join("state");
+    let service = watch(&broker.url(), &state, &[]);
+    let mut expected = BTreeMap::new();
+    let mut publishers = Vec::new();
+    for (channel, file) in FEEDS {
+        let (csv, payloads) = feed(file, ROWS);
+        expected.insert(channel, replay(dir.path(), channel, &csv));
+        publishers.push(publish(
+            broker.port,
+            &format!("plant/{channel}/feed"),
+            &payloads,
+        ));
+    }
+    publishers.into_iter().for_each(finish);
+    collector.wait_for_samples(&[("cell-a", ROWS as u64), ("cell-b", ROWS as u64)]);
+    let stderr = stop_watch(service);
+    for (channel, (events, summary)) in &expected {
+        let (published, repeats) = events_of(&collector, channel);
+        assert!(!events.is_empty(), "the feed raises events");
+        assert_eq!(&published, events, "{channel}: events equal replay's");
+        assert_eq!(repeats, 0, "{channel}: no repeats without a restart");
+        let state = retained(broker.port, &format!("steadycal/{channel}/alarms"));
+        assert_eq!(alarm_kinds(&state), summary_alarm_kinds(summary));
+        assert_eq!(state["channel"], *channel);
+        let status = retained(broker.port, &format!("steadycal/{channel}/status"));
+        assert_eq!(status["samples"], ROWS as u64);
+        assert_eq!(status["rung"], summary["rung"]);
+    }
+    assert!(state.join("cell-a.snapshot").is_file(), "{stderr}");
+    assert!(stderr.contains("connected to mqtt://127.0.0.1"), "{stderr}");
+}
