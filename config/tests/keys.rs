@@ -299,7 +299,10 @@ fn detector_defaults_follow_the_range_and_the_origin() {
 fn alphas_become_the_core_default_thresholds() {
     // Core defaults: 5.414, 10.828, 3.090, 1.960, which are χ²₁(0.999)/2, χ²₁(0.999),
     // Φ⁻¹(0.999), Φ⁻¹(0.975), and χ²_p(0.999) = 10.828, 13.816, 16.266, 18.467 (standard χ²
-    // and normal tables, from memory); statrs 0.18 must reproduce them to the printed digits.
+    // and normal tables, from memory; the same from a reference library: scipy 1.11.4
+    // `chi2.ppf(0.999, p)` = 10.8276, 13.8155, 16.2662, 18.4668 for p = 1…4 and
+    // `norm.ppf(0.999)` = 3.09023, `norm.ppf(0.975)` = 1.95996); statrs 0.18 must reproduce
+    // them to the printed digits.
     let c = config(
         "[ladder]\nswitch_alpha = 0.001\n[spread]\nalpha = 0.001\ninterval_level = 0.95\n[mean_check]\nalpha = 0.001\n[detect.drift]\nalpha = 0.001\n",
     );
