@@ -95,31 +95,67 @@ fn feeds(dir: &Path) -> anyhow::Result<Vec<PathBuf>> {
     Ok(feeds)
 }
 
+impl FleetRow {
+    /// The row of a channel whose replay did not run: `status` says why.
+    pub fn failed(file: String, status: String) -> FleetRow {
+        FleetRow {
+            file,
+            samples: 0,
+            checks: 0,
+            rung: String::new(),
+            exponent: None,
+            exponent_se: None,
+            gain: None,
+            offset: None,
+            transform_changes: 0,
+            warnings: 0,
+            alarms: 0,
+            raised: [0; 3],
+            status,
+        }
+    }
+
+    /// The row of a channel from its replay's summary document (the one place a fleet row
+    /// is made: `fleet` and the Python package's cluster replay both call it).
+    pub fn from_summary(file: String, s: &serde_json::Value) -> FleetRow {
+        let f = |value: &serde_json::Value| value.as_f64();
+        let count = |value: &serde_json::Value| value.as_u64().unwrap_or(0);
+        let raised = [
+            count(&s["raised"]["info"]),
+            count(&s["raised"]["warn"]),
+            count(&s["raised"]["alarm"]),
+        ];
+        FleetRow {
+            file,
+            samples: count(&s["samples"]),
+            checks: count(&s["checks"]),
+            rung: s["rung"].as_str().unwrap_or("").into(),
+            exponent: f(&s["spread_exponent"]),
+            exponent_se: f(&s["spread_exponent_se"]),
+            gain: f(&s["params"]["gain"]),
+            offset: f(&s["params"]["offset"]),
+            transform_changes: count(&s["events"][KindId::TransformChanged.name()]),
+            warnings: raised[1],
+            alarms: raised[2],
+            raised,
+            status: match s["stopped_at"].as_str() {
+                Some(error) => error.to_string(),
+                None => "ok".into(),
+            },
+        }
+    }
+}
+
 fn channel(args: &FleetArgs, feed: &Path) -> FleetRow {
     let file = feed
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_default();
-    let failed = |status: String| FleetRow {
-        file: file.clone(),
-        samples: 0,
-        checks: 0,
-        rung: String::new(),
-        exponent: None,
-        exponent_se: None,
-        gain: None,
-        offset: None,
-        transform_changes: 0,
-        warnings: 0,
-        alarms: 0,
-        raised: [0; 3],
-        status,
-    };
     let beside = feed.with_extension("monitor.toml");
     let config_file = beside.is_file().then_some(beside.as_path());
     let resolved = match resolve(&args.monitor, &args.columns, config_file) {
         Ok(resolved) => resolved,
-        Err(error) => return failed(format!("{error:#}")),
+        Err(error) => return FleetRow::failed(file, format!("{error:#}")),
     };
     let mut options = ReplayOptions::new(feed.to_path_buf(), resolved.config);
     options.precision = args.monitor.precision;
@@ -129,31 +165,9 @@ fn channel(args: &FleetArgs, feed: &Path) -> FleetRow {
     // Channels run in parallel on the pool, one thread each: no parser thread per channel,
     // so `--jobs N` keeps N cores busy and no more.
     options.pipelined = false;
-    let result = match replay::replay(&options) {
-        Ok(result) => result,
-        Err(error) => return failed(format!("{error:#}")),
-    };
-    let s = &result.summary;
-    let f = |value: &serde_json::Value| value.as_f64();
-    FleetRow {
-        file,
-        samples: s["samples"].as_u64().unwrap_or(0),
-        checks: s["checks"].as_u64().unwrap_or(0),
-        rung: s["rung"].as_str().unwrap_or("").into(),
-        exponent: f(&s["spread_exponent"]),
-        exponent_se: f(&s["spread_exponent_se"]),
-        gain: f(&s["params"]["gain"]),
-        offset: f(&s["params"]["offset"]),
-        transform_changes: s["events"][KindId::TransformChanged.name()]
-            .as_u64()
-            .unwrap_or(0),
-        warnings: result.raised[1],
-        alarms: result.raised[2],
-        raised: result.raised,
-        status: match &result.error {
-            Some(error) => error.to_string(),
-            None => "ok".into(),
-        },
+    match replay::replay(&options) {
+        Ok(result) => FleetRow::from_summary(file, &result.summary),
+        Err(error) => FleetRow::failed(file, format!("{error:#}")),
     }
 }
 
