@@ -65,7 +65,9 @@ def _arrow_source(source: Any) -> Any:
     """A pandas DataFrame as a pyarrow Table; Arrow objects as they are; None for a path."""
     if isinstance(source, (str, os.PathLike)):
         return None
-    if hasattr(source, "__arrow_c_stream__") or isinstance(source, (pa.Table, pa.RecordBatch)):
+    if isinstance(source, pa.RecordBatch):
+        return pa.Table.from_batches([source])
+    if hasattr(source, "__arrow_c_stream__"):
         return source
     try:
         import pandas as pd
@@ -185,44 +187,55 @@ def replay(
             ``level_low=...``, ``level_high=...``.
 
     Raises:
-        ValueError: bad input, with the CLI's message (file, line, column or key).
+        ValueError: bad input, with the CLI's message (file, line, column or key); for a
+            feed that stopped at a bad row, ``error.run`` holds the outputs up to it.
     """
+    columns = {"time": time, "raw": raw, "ref": ref, "temp": temp}
+    return _replay(source, ("events", "readings", "checks"), config, precision, columns, feed_options)
+
+
+_FILES = {"events": "events.jsonl", "readings": "readings.csv", "checks": "checks.csv"}
+
+
+def _replay(source, outputs, config, precision, columns, feed_options) -> Run:
+    """The replay writing only `outputs` (the other tables are left empty)."""
     arrow = _arrow_source(source)
     with tempfile.TemporaryDirectory(prefix="steadycal-") as workdir:
-        out = {name: os.path.join(workdir, name) for name in ("events.jsonl", "readings.csv", "checks.csv", "summary.json")}
-        argv = [
-            f"--events={out['events.jsonl']}",
-            f"--readings={out['readings.csv']}",
-            f"--checks={out['checks.csv']}",
-            f"--summary={out['summary.json']}",
-            f"--precision={precision}",
-            "--quiet",
-        ]
+        paths = {name: os.path.join(workdir, file) for name, file in _FILES.items()}
+        summary_path = os.path.join(workdir, "summary.json")
+        argv = [f"--{name}={paths[name]}" for name in outputs]
+        argv += [f"--summary={summary_path}", f"--precision={precision}", "--quiet"]
         try:
             argv += _config_args(config, workdir)
-            argv += _column_args({"time": time, "raw": raw, "ref": ref, "temp": temp})
+            argv += _column_args(columns)
             argv += _flags(feed_options)
             if arrow is None:
                 _native.replay_command([os.fspath(source)] + argv)
+            elif hasattr(_native, "replay_arrow"):
+                _native.replay_arrow(arrow, _arrow_name(source), argv)
             else:
-                _native.replay_arrow(arrow, argv)
+                raise TypeError("this build replays paths only; in-memory tables need the Arrow reader of steadycal-cli")
         except ValueError as error:
             raise _clean(error, workdir) from None
-        with open(out["summary.json"], encoding="utf-8") as f:
+        with open(summary_path, encoding="utf-8") as f:
             summary = json.load(f)
         tables = schemas(precision)
-        run = Run(
-            summary,
-            _read_events(out["events.jsonl"], tables["events"]),
-            _read_csv(out["readings.csv"], tables["readings"]),
-            _read_csv(out["checks.csv"], tables["checks"]),
-            precision,
-        )
+        read = {"events": _read_events, "readings": _read_csv, "checks": _read_csv}
+        got = {
+            name: read[name](paths[name], tables[name]) if name in outputs else tables[name].empty_table()
+            for name in _FILES
+        }
+        run = Run(summary, got["events"], got["readings"], got["checks"], precision)
     if summary.get("stopped_at"):
         error = ValueError(summary["stopped_at"])
-        error.run = run  # type: ignore[attr-defined]  # the outputs up to the bad row
+        error.run = run  # type: ignore[attr-defined]
         raise error
     return run
+
+
+def _arrow_name(source: Any) -> str:
+    """The name an in-memory source goes by in messages and in the summary's `feed`."""
+    return "(DataFrame)" if type(source).__name__ == "DataFrame" else "(table)"
 
 
 def assess(source: PathLike, *, config: Any = None, **options: Any) -> Dict[str, Any]:
