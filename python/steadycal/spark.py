@@ -81,8 +81,9 @@ class _Channels:
         self.precision = precision
         self.channel_type = channel_type
 
-    def run(self, key: Any, table: pa.Table):
-        """The run of one channel's rows (sorted by time here), or the error it stopped on."""
+    def run(self, key: Any, table: pa.Table, outputs=()):
+        """The run of one channel's rows (sorted by time here) writing `outputs`, or the
+        error it stopped on."""
         table = table.sort_by([(self.columns["time"], "ascending")])
         with tempfile.TemporaryDirectory(prefix="steadycal-channel-") as workdir:
             config = self.configs.get(key, self.config)
@@ -94,7 +95,8 @@ class _Channels:
                         out.write(text)
             keep = [c for c in (self.columns["time"], self.columns["raw"], self.columns["ref"], self.columns["temp"]) if c is not None and c in table.column_names]
             try:
-                return _replay.replay(table.select(keep), config=config, precision=self.precision, **self.columns), None
+                run = _replay._replay(table.select(keep), outputs, config, self.precision, self.columns, {})
+                return run, None
             except ValueError as error:
                 return getattr(error, "run", None), str(error)
 
@@ -110,7 +112,7 @@ class _Channels:
 
     def events(self, key: Any, table: pa.Table) -> pa.Table:
         schema = _events_arrow_schema(self.channel_type)
-        run, error = self.run(key, table)
+        run, error = self.run(key, table, ("events",))
         if run is None:
             return schema.empty_table()
         events = run.events
