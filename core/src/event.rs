@@ -12,6 +12,7 @@ use heapless::Deque;
 use serde::{Deserialize, Serialize};
 
 use crate::real::Real;
+use crate::sample::{Flags, Outcome};
 use crate::transform::Rung;
 
 pub mod fields;
@@ -385,6 +386,15 @@ impl<R: Real, const Q: usize> EventQueue<R, Q> {
                 self.dropped = self.dropped.saturating_add(1);
                 false
             }
+        }
+    }
+
+    /// Appends an event raised by sample `seq` during a push and counts it in that push's
+    /// outcome (`new_events`, and [`Flags::EVENTS_DROPPED`] when the queue was full).
+    pub(crate) fn raise(&mut self, seq: u64, kind: EventKind<R>, outcome: &mut Outcome<R>) {
+        outcome.new_events = outcome.new_events.saturating_add(1);
+        if !self.push(Event { seq, kind }) {
+            outcome.flags.insert(Flags::EVENTS_DROPPED);
         }
     }
 

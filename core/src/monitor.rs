@@ -19,275 +19,20 @@
 use serde::{Deserialize, Serialize};
 
 use crate::adequacy::MeanCheck;
-use crate::basis::{Basis, BasisError};
-use crate::detect::alarm::Transition;
-use crate::detect::drift::{Baseline, BaselineError, DriftStatus, Layout};
+use crate::detect::drift::{Baseline, BaselineError, DriftStatus};
 use crate::detect::rejections::EndedRun;
-use crate::detect::screen::Screen;
-use crate::detect::{DetectConfig, DetectConfigError, DetectorCounts, Detectors};
+use crate::detect::{CheckSeen, DetectorCounts, Detectors};
 use crate::event::{AlarmKind, Event, EventKind, EventQueue, RejectReason, Severity};
-use crate::fit::FitConfig;
 use crate::ladder::{LadderConfig, PowerLadder};
 use crate::origin::{BaselineEstimate, LevelOrigin};
-use crate::real::{non_negative_setting, positive_setting, Real};
+use crate::real::{every, Real};
 use crate::sample::{Flags, Outcome, Reading, Sample};
-use crate::spread::{SpreadConfig, SpreadExponent, SpreadProfile};
+use crate::spread::{SpreadExponent, SpreadProfile};
 use crate::transform::Rung;
-
-/// Everything a monitor is configured with. One configuration can serve many channels.
-///
-/// The defaults are documented on [`MonitorConfig::default_for_range`].
-#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
-pub struct MonitorConfig<R> {
-    /// Terms of the calibration mean and their scaling.
-    pub basis: Basis<R>,
-    /// Forgetting factor β of every fit and running sum, in (0, 1].
-    pub forgetting: R,
-    /// Initial covariance diagonal of the fits (also the wind-up ceiling).
-    pub initial_variance: R,
-    /// Levels are measured above this origin; power rungs need values above it. With
-    /// `find_baseline`, only until the end of the warm-up.
-    pub level_origin: R,
-    /// From the end of the warm-up on, measure levels above the sensor's baseline (the
-    /// fitted raw output at zero reference, see [`crate::origin`]) instead of
-    /// `level_origin`. False when the origin is known (configured).
-    pub find_baseline: bool,
-    /// Lower end of the working range, raw units above the origin (spread bins start here).
-    pub level_low: R,
-    /// Upper end of the working range, raw units above the origin.
-    pub level_high: R,
-    /// Checks before the spread bins and the ladder's likelihoods start.
-    pub warm_up: u32,
-    /// Log-likelihood lead a rung needs to count as winning (default χ²₁(0.999)/2 = 5.41;
-    /// the quantile 10.83 from standard χ² tables, from memory).
-    pub switch_margin: R,
-    /// Consecutive winning checks before a switch.
-    pub switch_hold: u32,
-    /// Rung to start on.
-    pub initial_rung: Rung,
-    /// Koenker statistic above which the scatter is said to track the level (default
-    /// χ²₁(0.999) = 10.83, standard χ² tables, from memory).
-    pub spread_threshold: R,
-    /// How often (in checks) the spread exponent and Koenker statistic are evaluated.
-    pub spread_every: u32,
-    /// Checks after a switch before the mean-adequacy check runs.
-    pub mean_check_after: u32,
-    /// Residuals a level bin needs to take part in the mean-adequacy check.
-    pub mean_check_min_per_bin: u32,
-    /// Standard normal quantile of the mean-adequacy check (default 3.090 for α = 0.001,
-    /// standard normal tables, from memory).
-    pub mean_check_z: R,
-    /// Normal quantile of the interval reported for k (default 1.96 for 95 %).
-    pub interval_z: R,
-    /// Coverage factor of the expanded uncertainty (default 2).
-    pub coverage_factor: R,
-    /// Drift and fault detectors, and their alarm rules.
-    pub detect: DetectConfig<R>,
-}
-
-/// A configuration value that is not usable.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-pub enum ConfigError {
-    /// `forgetting` must be in (0, 1].
-    Forgetting,
-    /// `initial_variance` must be positive and finite.
-    InitialVariance,
-    /// `level_origin` must be finite.
-    LevelOrigin,
-    /// `level_low` and `level_high` must be finite with 0 < low < high.
-    LevelRange,
-    /// `switch_margin` must be non-negative and finite.
-    SwitchMargin,
-    /// `spread_threshold` must be positive and finite.
-    SpreadThreshold,
-    /// `coverage_factor`, `interval_z` and `mean_check_z` must be positive and finite.
-    Quantile,
-    /// `spread_every` must be at least 1.
-    SpreadEvery,
-    /// The basis is not usable.
-    Basis(BasisError),
-    /// A detector setting is not usable.
-    Detect(DetectConfigError),
-}
-
-impl ConfigError {
-    /// The name of the offending parameter, as written in config files.
-    pub const fn parameter(self) -> &'static str {
-        match self {
-            ConfigError::Forgetting => "forgetting",
-            ConfigError::InitialVariance => "initial_variance",
-            ConfigError::LevelOrigin => "level_origin",
-            ConfigError::LevelRange => "level_low/level_high",
-            ConfigError::SwitchMargin => "switch_margin",
-            ConfigError::SpreadThreshold => "spread_threshold",
-            ConfigError::Quantile => "coverage_factor/interval_z/mean_check_z",
-            ConfigError::SpreadEvery => "spread_every",
-            ConfigError::Basis(_) => "basis",
-            ConfigError::Detect(error) => error.parameter(),
-        }
-    }
-}
 
 /// Residuals (effective count) a spread profile restarted at a switch needs before its
 /// exponent and Koenker statistic are reported again: eight per bin of the default sixteen.
 const SPREAD_RESTART_CHECKS: u32 = 128;
-
-/// `count` is a multiple of `period` (a mask for a power of two, which the defaults are:
-/// a 64-bit remainder is a library call on a 32-bit board).
-#[inline]
-fn every(count: u64, period: u32) -> bool {
-    if period.is_power_of_two() {
-        // The mask fits in 32 bits: only the low word of the count matters.
-        (count as u32) & (period - 1) == 0
-    } else {
-        count.is_multiple_of(period as u64)
-    }
-}
-
-impl<R: Real> MonitorConfig<R> {
-    /// Defaults for a straight-line calibration over the working range `[low, high]` (raw
-    /// units above an origin of 0): β = 0.999 (memory of about 1000 checks), warm-up 200
-    /// checks, switch after a lead of 5.41 held for 200 checks, spread evaluated every 32
-    /// checks, mean check 1000 checks after a switch, k = 2 coverage; detectors as
-    /// documented on [`DetectConfig::default_for_range`].
-    ///
-    /// ```
-    /// use steadycal_core::monitor::MonitorConfig;
-    /// let config = MonitorConfig::<f32>::default_for_range(1.0, 1000.0);
-    /// assert!(config.validate(3).is_ok());
-    /// ```
-    pub fn default_for_range(low: R, high: R) -> Self {
-        let mut basis = Basis::linear(high);
-        basis.temperature_scale = R::from_f64(10.0);
-        MonitorConfig {
-            basis,
-            forgetting: R::from_f64(0.999),
-            initial_variance: R::from_f64(1e6),
-            level_origin: R::ZERO,
-            find_baseline: true,
-            level_low: low,
-            level_high: high,
-            warm_up: 200,
-            switch_margin: R::from_f64(5.414),
-            switch_hold: 200,
-            initial_rung: Rung::Identity,
-            spread_threshold: R::from_f64(10.828),
-            spread_every: 32,
-            mean_check_after: 1000,
-            mean_check_min_per_bin: 20,
-            mean_check_z: R::from_f64(3.090),
-            interval_z: R::from_f64(1.960),
-            coverage_factor: R::TWO,
-            detect: DetectConfig::default_for_range(R::ZERO, low, high),
-        }
-    }
-
-    /// Checks every value, naming the first offending parameter.
-    pub fn validate(&self, capacity: usize) -> Result<(), ConfigError> {
-        let beta = self.forgetting;
-        if !(positive_setting(beta) && beta <= R::ONE) {
-            return Err(ConfigError::Forgetting);
-        }
-        if !positive_setting(self.initial_variance) {
-            return Err(ConfigError::InitialVariance);
-        }
-        if !self.level_origin.is_finite() {
-            return Err(ConfigError::LevelOrigin);
-        }
-        if !(positive_setting(self.level_low)
-            && positive_setting(self.level_high)
-            && self.level_low < self.level_high)
-        {
-            return Err(ConfigError::LevelRange);
-        }
-        if !non_negative_setting(self.switch_margin) {
-            return Err(ConfigError::SwitchMargin);
-        }
-        if !positive_setting(self.spread_threshold) {
-            return Err(ConfigError::SpreadThreshold);
-        }
-        if !(positive_setting(self.coverage_factor)
-            && positive_setting(self.interval_z)
-            && positive_setting(self.mean_check_z))
-        {
-            return Err(ConfigError::Quantile);
-        }
-        if self.spread_every == 0 {
-            return Err(ConfigError::SpreadEvery);
-        }
-        self.detect.validate().map_err(ConfigError::Detect)?;
-        self.basis.validate(capacity).map_err(ConfigError::Basis)
-    }
-
-    /// The same configuration in another float type (values rounded to nearest).
-    ///
-    /// ```
-    /// use steadycal_core::monitor::MonitorConfig;
-    /// let wide = MonitorConfig::<f64>::default_for_range(1.0, 1000.0);
-    /// let narrow: MonitorConfig<f32> = wide.convert();
-    /// assert_eq!(narrow.forgetting, 0.999f32);
-    /// ```
-    pub fn convert<S: Real>(&self) -> MonitorConfig<S> {
-        let c = |value: R| S::from_f64(value.to_f64());
-        let basis = self.basis;
-        MonitorConfig {
-            basis: Basis {
-                quadratic: basis.quadratic,
-                temperature: basis.temperature,
-                reference_scale: c(basis.reference_scale),
-                temperature_reference: c(basis.temperature_reference),
-                temperature_scale: c(basis.temperature_scale),
-            },
-            forgetting: c(self.forgetting),
-            initial_variance: c(self.initial_variance),
-            level_origin: c(self.level_origin),
-            find_baseline: self.find_baseline,
-            level_low: c(self.level_low),
-            level_high: c(self.level_high),
-            warm_up: self.warm_up,
-            switch_margin: c(self.switch_margin),
-            switch_hold: self.switch_hold,
-            initial_rung: self.initial_rung,
-            spread_threshold: c(self.spread_threshold),
-            spread_every: self.spread_every,
-            mean_check_after: self.mean_check_after,
-            mean_check_min_per_bin: self.mean_check_min_per_bin,
-            mean_check_z: c(self.mean_check_z),
-            interval_z: c(self.interval_z),
-            coverage_factor: c(self.coverage_factor),
-            detect: self.detect.convert(),
-        }
-    }
-
-    /// The ladder's view of this configuration.
-    pub fn ladder(&self) -> LadderConfig<R> {
-        let scale = (self.level_low * self.level_high).sqrt();
-        LadderConfig {
-            fit: FitConfig {
-                forgetting: self.forgetting,
-                initial_variance: self.initial_variance,
-            },
-            level_origin: self.level_origin,
-            level_scale: scale,
-            inverse_level_scale: R::ONE / scale,
-            log_level_scale: scale.ln(),
-            level_floor: self.level_low / scale,
-            warm_up: self.warm_up,
-            switch_margin: self.switch_margin,
-            switch_hold: self.switch_hold,
-            decide_every: 8,
-        }
-    }
-
-    /// The spread profile's view of this configuration.
-    pub fn spread(&self) -> SpreadConfig<R> {
-        SpreadConfig {
-            level_low: self.level_low,
-            level_high: self.level_high,
-            forgetting: self.forgetting,
-        }
-    }
-}
 
 /// Fills the ladder settings of a monitor being decoded until `complete_restored`
 /// derives the real ones from its configuration.
@@ -347,9 +92,9 @@ pub struct Monitor<R, const P: usize = 3, const BINS: usize = 16, const Q: usize
     detectors: Detectors<R>,
     /// Where levels are measured from (the sensor's baseline once found).
     origin: LevelOrigin<R>,
-    /// `ALARM`/`WARNING` for the alarms raised now: derived from the alarm states, updated
-    /// at each raise and clear, so a sample does not scan every alarm; not in a snapshot
-    /// (rebuilt by `complete_restored`).
+    /// `ALARM`/`WARNING` for the alarms raised now: derived from the alarm states,
+    /// recomputed on a push that raised an event, so a sample does not scan every alarm;
+    /// not in a snapshot (rebuilt by `complete_restored`).
     #[serde(skip, default = "Flags::empty")]
     alarm_flags: Flags,
 }
@@ -481,60 +226,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     }
 
     fn raise(&mut self, seq: u64, kind: EventKind<R>, outcome: &mut Outcome<R>) {
-        outcome.new_events = outcome.new_events.saturating_add(1);
-        if !self.events.push(Event { seq, kind }) {
-            outcome.flags.insert(Flags::EVENTS_DROPPED);
-        }
-    }
-
-    /// One observation of a detector alarm; emits the raise (built by `event` with the
-    /// rule's severity) or the `cleared` event.
-    #[inline(always)]
-    fn observe_alarm(
-        &mut self,
-        seq: u64,
-        kind: AlarmKind,
-        present: bool,
-        event: impl FnOnce(Severity) -> EventKind<R>,
-        outcome: &mut Outcome<R>,
-    ) {
-        // Nothing to do for an absent signal on an idle alarm (most observations).
-        if !present && self.detectors.alarms.is_idle(kind) {
-            return;
-        }
-        if let Some(severity) = self.observe_alarm_episode(seq, kind, present, outcome) {
-            self.raise(seq, event(severity), outcome);
-        }
-    }
-
-    /// [`Monitor::observe_alarm`] while an episode is under way or the signal is present:
-    /// raises the `Cleared` event itself, and returns the severity of a raise for the
-    /// caller to build its event (not generic over the event, so one copy serves every
-    /// alarm).
-    #[inline(never)]
-    fn observe_alarm_episode(
-        &mut self,
-        seq: u64,
-        kind: AlarmKind,
-        present: bool,
-        outcome: &mut Outcome<R>,
-    ) -> Option<Severity> {
-        match self
-            .detectors
-            .alarms
-            .observe(&self.config.detect.alarms, kind, present)
-        {
-            Some(Transition::Raised(severity)) => {
-                self.alarm_flags = self.raised_alarm_flags();
-                Some(severity)
-            }
-            Some(Transition::Cleared) => {
-                self.alarm_flags = self.raised_alarm_flags();
-                self.raise(seq, EventKind::Cleared { alarm: kind }, outcome);
-                None
-            }
-            None => None,
-        }
+        self.events.raise(seq, kind, outcome);
     }
 
     fn reject(&mut self, sample: &Sample<R>, reason: RejectReason, outcome: &mut Outcome<R>) {
@@ -614,88 +306,28 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     }
 
     #[inline(always)]
-    fn flag_alarms(&self, outcome: &mut Outcome<R>) {
-        outcome.flags.insert(self.alarm_flags);
-    }
-
-    /// `ALARM` and `WARNING` for the severities of the alarms raised now.
-    fn raised_alarm_flags(&self) -> Flags {
-        let mut flags = Flags::empty();
-        for severity in self
-            .detectors
-            .alarms
-            .raised_severities(&self.config.detect.alarms)
-            .into_iter()
-            .flatten()
-        {
-            match severity {
-                Severity::Alarm => flags.insert(Flags::ALARM),
-                Severity::Warn => flags.insert(Flags::WARNING),
-                Severity::Info => {}
-            }
+    fn flag_alarms(&mut self, outcome: &mut Outcome<R>) {
+        // Every raise and clear of a detector alarm comes with an event: the flags can
+        // only have changed on a push that raised one.
+        if outcome.new_events != 0 {
+            self.alarm_flags = self.detectors.alarms.flags(&self.config.detect.alarms);
         }
-        flags
+        outcome.flags.insert(self.alarm_flags);
     }
 
     /// The sample-level screen (reference gap, physical range, stuck signal). Returns true
     /// when the sample was rejected.
     fn screen(&mut self, sample: &Sample<R>, outcome: &mut Outcome<R>) -> bool {
-        let screen_config = self.config.detect.screen;
-        let seq = sample.seq;
-        let is_check = sample.reference.is_some_and(|r| r.is_finite());
-        let gap = self
-            .detectors
-            .screen
-            .observe_time(&screen_config, sample.t, is_check);
-        if gap.is_some() {
-            self.detectors.counts.gap_samples += 1;
+        let rejected =
+            self.detectors
+                .screen(&self.config.detect, sample, &mut self.events, outcome);
+        match rejected {
+            Some(reason) => {
+                self.reject(sample, reason, outcome);
+                true
+            }
+            None => false,
         }
-        let seconds = gap.unwrap_or(0.0);
-        self.observe_alarm(
-            seq,
-            AlarmKind::ReferenceGap,
-            gap.is_some(),
-            |severity| EventKind::ReferenceGap { seconds, severity },
-            outcome,
-        );
-        let raw = sample.raw;
-        let in_range = Screen::in_range(&screen_config, raw);
-        self.observe_alarm(
-            seq,
-            AlarmKind::SignalOutOfRange,
-            !in_range,
-            |severity| EventKind::SignalOutOfRange { raw, severity },
-            outcome,
-        );
-        if !in_range {
-            self.detectors.counts.out_of_range += 1;
-            self.reject(sample, RejectReason::OutOfRange, outcome);
-            return true;
-        }
-        let run = self.detectors.screen.observe_raw(raw);
-        let identical = run >= screen_config.stuck_run;
-        let unresponsive = self.detectors.screen.unresponsive();
-        let reported_run = if identical {
-            run
-        } else {
-            screen_config.stuck_window
-        };
-        self.observe_alarm(
-            seq,
-            AlarmKind::SignalStuck,
-            identical || unresponsive,
-            |severity| EventKind::SignalStuck {
-                run: reported_run,
-                severity,
-            },
-            outcome,
-        );
-        if identical {
-            self.detectors.counts.stuck_samples += 1;
-            self.reject(sample, RejectReason::Stuck, outcome);
-            return true;
-        }
-        false
     }
 
     fn check(
@@ -718,13 +350,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 sample.raw,
                 spike_bound,
             );
-        if warmed_up
-            && self
-                .detectors
-                .screen
-                .is_spike(&self.config.detect.screen, beyond)
-        {
-            self.detectors.counts.spikes += 1;
+        if warmed_up && self.detectors.is_spike(&self.config.detect.screen, beyond) {
             self.reject(sample, RejectReason::Spike, outcome);
             return;
         }
@@ -827,143 +453,20 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             self.evaluate_spread(sample.seq, outcome);
         }
         if warmed_up {
-            self.detect(
-                sample,
-                step.standardized,
-                step.prediction,
-                step.switch.is_some(),
-                outcome,
-            );
-        }
-    }
-
-    /// The check-level detectors: bias CUSUM, spread jump, no-response window, drift.
-    fn detect(
-        &mut self,
-        sample: &Sample<R>,
-        standardized: Option<R>,
-        prediction: R,
-        switched: bool,
-        outcome: &mut Outcome<R>,
-    ) {
-        let detect = self.config.detect;
-        let seq = sample.seq;
-        if let Some(z) = standardized {
-            self.detectors.counts.cusum_checks += 1;
-            let signal = self.detectors.cusum.update(&detect.cusum, z);
-            if signal.is_some() {
-                self.detectors.counts.cusum_signals += 1;
-            }
-            self.observe_alarm(
-                seq,
-                AlarmKind::BiasShift,
-                signal.is_some(),
-                |severity| {
-                    let signal = signal.unwrap_or(crate::detect::cusum::CusumSignal {
-                        direction: crate::event::Direction::Up,
-                        size: R::ZERO,
-                        run: 0,
-                    });
-                    EventKind::BiasShift {
-                        direction: signal.direction,
-                        size: signal.size,
-                        severity,
-                    }
-                },
-                outcome,
-            );
-            let jump = self.detectors.spread_jump.update(&detect.spread_jump, z);
-            if jump.is_some() {
-                self.detectors.counts.spread_jump_signals += 1;
-            }
-            let ratio = jump.map(|j| j.ratio).unwrap_or(R::ONE);
-            self.observe_alarm(
-                seq,
-                AlarmKind::SpreadJump,
-                jump.is_some(),
-                |severity| EventKind::SpreadJump { ratio, severity },
-                outcome,
-            );
-        }
-        if switched {
-            // The standardization changes with the rung: both sums restart.
-            self.detectors.cusum.reset();
-            self.detectors.spread_jump.reset();
-        }
-        if self
-            .detectors
-            .screen
-            .observe_response(&detect.screen, sample.raw, prediction)
-            == Some(true)
-        {
-            self.detectors.counts.unresponsive_windows += 1;
-        }
-        self.drift(seq, outcome);
-    }
-
-    fn drift(&mut self, seq: u64, outcome: &mut Outcome<R>) {
-        // Once the baseline is frozen, only every `every`-th check has work (checked first:
-        // this runs on every check).
-        let frozen = self.detectors.drift.baseline().is_some();
-        if frozen && !every(self.counters.checks, self.config.detect.drift.every) {
-            return;
-        }
-        let drift_config = self.config.detect.drift;
-        let basis = self.config.basis;
-        let fit = self.ladder.active_fit();
-        if (fit.updates() as usize) <= fit.dim() {
-            return;
-        }
-        let since_warm_up = self.ladder.checks().saturating_sub(self.config.warm_up);
-        if !frozen {
-            if since_warm_up >= drift_config.freeze_after {
-                let parameters = basis.physical(&fit.parameters());
-                let layout = Layout::of(&basis);
-                let covariance =
-                    layout.physical_covariance(&fit.covariance(), fit.residual_variance());
-                if let Ok(baseline) = Baseline::new(parameters, Some(covariance)) {
-                    self.detectors.drift.set_baseline(baseline);
-                }
-            }
-            return;
-        }
-        let (theta, covariance, variance) =
-            (fit.parameters(), fit.covariance(), fit.residual_variance());
-        let Some(status) =
+            let check = CheckSeen {
+                seq: sample.seq,
+                raw: sample.raw,
+                standardized: step.standardized,
+                prediction: step.prediction,
+                switched: step.switch.is_some(),
+                checks: self.counters.checks,
+                ladder: &self.ladder,
+                warm_up: self.config.warm_up,
+                basis: &self.config.basis,
+            };
             self.detectors
-                .drift
-                .evaluate(&drift_config, &basis, &theta, &covariance, variance)
-        else {
-            return;
-        };
-        self.detectors.counts.drift_evaluations += 1;
-        if status.significant {
-            self.detectors.counts.drift_significant += 1;
+                .after_check(&self.config.detect, &check, &mut self.events, outcome);
         }
-        let gain_change = status.gain_change.unwrap_or(R::ZERO);
-        let gain_uncertainty = status.gain_uncertainty.unwrap_or(R::ZERO);
-        self.observe_alarm(
-            seq,
-            AlarmKind::GainDrift,
-            status.gain_signal(),
-            |severity| EventKind::GainDrift {
-                change: gain_change,
-                uncertainty: gain_uncertainty,
-                severity,
-            },
-            outcome,
-        );
-        self.observe_alarm(
-            seq,
-            AlarmKind::OffsetDrift,
-            status.offset_signal(),
-            |severity| EventKind::OffsetDrift {
-                change: status.offset_change,
-                uncertainty: status.offset_uncertainty,
-                severity,
-            },
-            outcome,
-        );
     }
 
     /// Takes the origin's next stage from the `log` rung's raw output at zero reference
@@ -1091,13 +594,6 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
 }
 
 // The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
-crate::wire::walk_struct!(impl[R: Real] MonitorConfig<R> {
-    basis, forgetting, initial_variance, level_origin, find_baseline, level_low, level_high,
-    warm_up,
-    switch_margin, switch_hold, initial_rung, spread_threshold, spread_every,
-    mean_check_after, mean_check_min_per_bin, mean_check_z, interval_z, coverage_factor,
-    detect,
-});
 crate::wire::walk_struct!(impl[] Counters {
     samples, checks, rejected, below_origin, readings, provisional_readings
 });
@@ -1105,6 +601,9 @@ crate::wire::walk_struct!(impl[] Counters {
 /// The monitor's own walk and the blank monitor a snapshot is decoded into.
 mod codec;
 pub(crate) use codec::Unusable;
+
+mod config;
+pub use config::{ConfigError, MonitorConfig};
 
 #[cfg(test)]
 mod tests {

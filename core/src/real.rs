@@ -335,6 +335,18 @@ pub(crate) fn non_negative_setting<R: Real>(x: R) -> bool {
     x == R::ZERO || x.is_positive_finite()
 }
 
+/// `count` is a multiple of `period` (a mask for a power of two, which the defaults are:
+/// a 64-bit remainder is a library call on a 32-bit board).
+#[inline]
+pub(crate) fn every(count: u64, period: u32) -> bool {
+    if period.is_power_of_two() {
+        // The mask fits in 32 bits: only the low word of the count matters.
+        (count as u32) & (period - 1) == 0
+    } else {
+        count.is_multiple_of(period as u64)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -18,6 +18,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::event::{AlarmKind, Severity};
+use crate::sample::Flags;
 
 /// How one alarm kind is raised and cleared.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -207,10 +208,33 @@ impl AlarmBoard {
 
     /// True when `kind` has no episode under way: an observation without its signal then
     /// changes nothing and raises nothing (the common case, checked first on every sample).
+    /// One load: a raised alarm has counted its signal at least once (`present ≥ 1`, see
+    /// [`AlarmBoard::consistent`]).
     #[inline(always)]
     pub fn is_idle(&self, kind: AlarmKind) -> bool {
-        let state = &self.states[kind.index()];
-        state.present == 0 && !state.raised
+        self.states[kind.index()].present == 0
+    }
+
+    /// True when every raised kind has counted its signal at least once, as observing
+    /// always leaves it (a raise counts the signal; a clear resets both): what
+    /// [`AlarmBoard::is_idle`] relies on. A restored board is checked.
+    pub fn consistent(&self) -> bool {
+        self.states
+            .iter()
+            .all(|state| !state.raised || state.present > 0)
+    }
+
+    /// `ALARM` and `WARNING` for the severities of the kinds raised now.
+    pub fn flags(&self, rules: &AlarmRules) -> Flags {
+        let mut flags = Flags::empty();
+        for severity in self.raised_severities(rules).into_iter().flatten() {
+            match severity {
+                Severity::Alarm => flags.insert(Flags::ALARM),
+                Severity::Warn => flags.insert(Flags::WARNING),
+                Severity::Info => {}
+            }
+        }
+        flags
     }
 
     /// True while any kind is raised.
@@ -319,5 +343,23 @@ mod tests {
         let mut bad = rules;
         bad.gain_drift.clear_after = 0;
         assert_eq!(bad.first_invalid(), Some(AlarmKind::GainDrift));
+    }
+
+    proptest::proptest! {
+        /// What `AlarmBoard::is_idle` relies on: observing never leaves a raised alarm
+        /// with no signal counted, whatever the rule and the signals.
+        #[test]
+        fn a_raised_alarm_has_counted_its_signal(
+            raise_after in 0u32..5,
+            clear_after in 0u32..5,
+            signals in proptest::collection::vec(proptest::bool::ANY, 0..64),
+        ) {
+            let rule = AlarmRule::new(Severity::Warn, raise_after, clear_after);
+            let mut state = AlarmState::default();
+            for present in signals {
+                state.observe(&rule, present);
+                proptest::prop_assert!(!state.raised || state.present > 0);
+            }
+        }
     }
 }

@@ -15,7 +15,7 @@
 //! The Wald statistic is computed in the fit's scaled coordinates (better conditioned, and
 //! the statistic is invariant under the rescaling); the physical covariance scales rows and
 //! columns of σ²P by the same factors as `Basis::physical` (gain = θ₁/s, quadratic = θ₂/s²,
-//! temperature = θ/s_T), computed here by [`Layout`].
+//! temperature = θ/s_T), computed here by [`CovarianceLayout`].
 //!
 //! Default quantiles χ²_p(0.999) for p = 1..4: 10.828, 13.816, 16.266, 18.467 (standard χ²
 //! tables, from memory).
@@ -94,7 +94,7 @@ impl<R: Real> Baseline<R> {
 
 /// Where each packed fit parameter goes among the physical ones, and its scale factor.
 #[derive(Clone, Copy, Debug, PartialEq)]
-pub struct Layout<R> {
+pub struct CovarianceLayout<R> {
     /// Number of parameters in use.
     pub len: usize,
     /// Physical slot (0 offset, 1 gain, 2 quadratic, 3 temperature) of packed index i.
@@ -103,7 +103,7 @@ pub struct Layout<R> {
     pub factors: [R; 4],
 }
 
-impl<R: Real> Layout<R> {
+impl<R: Real> CovarianceLayout<R> {
     /// The layout of a basis: `[1, ref/s, (ref/s)², ΔT/s_T]`, terms in use packed in order.
     pub fn of(basis: &Basis<R>) -> Self {
         let s = basis.reference_scale;
@@ -120,14 +120,14 @@ impl<R: Real> Layout<R> {
             factors[len] = R::ONE / basis.temperature_scale;
             len += 1;
         }
-        Layout {
+        CovarianceLayout {
             len,
             slots,
             factors,
         }
     }
 
-    /// Physical parameters from scaled ones. A slot outside `0..4` (not one `Layout::of`
+    /// Physical parameters from scaled ones. A slot outside `0..4` (not one `CovarianceLayout::of`
     /// makes) is skipped: checked indexing, so no panic path.
     pub fn physical<const P: usize>(&self, scaled: &[R; P]) -> [R; 4] {
         let mut out = [R::ZERO; 4];
@@ -277,7 +277,7 @@ impl<R: Real> DriftDetector<R> {
         variance: R,
     ) -> Option<DriftStatus<R>> {
         let baseline = self.baseline?;
-        let layout = Layout::of(basis);
+        let layout = CovarianceLayout::of(basis);
         let n = layout.len.min(P);
         if n == 0 || !variance.is_finite() {
             return None;
@@ -390,8 +390,8 @@ mod tests {
 
     #[test]
     fn a_slot_outside_the_four_is_skipped_not_a_panic() {
-        // A layout `Layout::of` never makes (the fields are public).
-        let layout = Layout {
+        // A layout `CovarianceLayout::of` never makes (the fields are public).
+        let layout = CovarianceLayout {
             len: 2,
             slots: [0, 9, 0, 0],
             factors: [1.0, 0.5, 0.0, 0.0],
@@ -408,7 +408,7 @@ mod tests {
         let mut b = basis();
         b.quadratic = true;
         b.temperature = true;
-        let layout = Layout::of(&b);
+        let layout = CovarianceLayout::of(&b);
         assert_eq!(layout.len, 4);
         let physical = layout.physical(&[1.0, 200.0, 3e4, 5.0]);
         assert_eq!(physical, [1.0, 2.0, 3.0, 0.5]);
@@ -428,7 +428,7 @@ mod tests {
             b.quadratic = quadratic;
             b.temperature = temperature;
             let scaled = [0.5, 123.0, -7.0, 2.5];
-            let ours = Layout::of(&b).physical(&scaled);
+            let ours = CovarianceLayout::of(&b).physical(&scaled);
             let theirs = b.physical(&scaled);
             for (a, c) in ours.iter().zip(theirs) {
                 assert!((a - c).abs() <= 1e-15 * c.abs(), "{ours:?} {theirs:?}");

@@ -21,6 +21,7 @@
 pub mod alarm;
 pub mod cusum;
 pub mod drift;
+mod observe;
 pub mod rejections;
 pub mod screen;
 pub mod spread_jump;
@@ -36,6 +37,8 @@ use drift::{DriftConfig, DriftDetector};
 use rejections::RejectionRun;
 use screen::{Screen, ScreenConfig};
 use spread_jump::{SpreadJumpConfig, SpreadJumpCusum};
+
+pub(crate) use observe::CheckSeen;
 
 /// Settings of every detector.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]

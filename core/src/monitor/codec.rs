@@ -82,10 +82,13 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         let fits_agree = Rung::ALL
             .iter()
             .all(|&rung| self.ladder.fit(rung).dim() == dim);
-        if *self.spread.config() != self.config.spread() || !fits_agree {
+        if *self.spread.config() != self.config.spread()
+            || !fits_agree
+            || !self.detectors.alarms.consistent()
+        {
             return Err(Unusable::Inconsistent);
         }
-        self.alarm_flags = self.raised_alarm_flags();
+        self.alarm_flags = self.detectors.alarms.flags(&self.config.detect.alarms);
         Ok(())
     }
 
