@@ -320,30 +320,13 @@ pub fn drift<R: Real + Display>(monitor: &Monitor<R>, origin: &BaselineOrigin) -
     })
 }
 
-/// Per-detector counts (signals and screened samples, not raised alarms) and the CUSUM in
-/// force.
+/// Per-detector counts (signals and screened samples, not raised alarms: the core's
+/// `DetectorCounts`, its fields in its order) and the CUSUM in force.
 #[derive(Clone, Copy, Debug, Serialize)]
 pub struct Detectors {
-    /// Spikes rejected.
-    pub spikes: u64,
-    /// Samples out of the physical range.
-    pub out_of_range: u64,
-    /// Samples in stuck runs.
-    pub stuck_samples: u64,
-    /// Windows without response.
-    pub unresponsive_windows: u64,
-    /// Checks the CUSUM saw.
-    pub cusum_checks: u64,
-    /// CUSUM signals.
-    pub cusum_signals: u64,
-    /// Spread-jump signals.
-    pub spread_jump_signals: u64,
-    /// Drift evaluations.
-    pub drift_evaluations: u64,
-    /// Significant drift evaluations.
-    pub drift_significant: u64,
-    /// Samples in reference gaps.
-    pub gap_samples: u64,
+    /// How often each detector fired.
+    #[serde(flatten)]
+    pub counts: steadycal_core::detect::DetectorCounts,
     /// The CUSUM in force.
     #[serde(flatten)]
     pub cusum: CusumSummary,
@@ -352,18 +335,8 @@ pub struct Detectors {
 impl Detectors {
     /// The counts of `monitor`.
     pub fn of<R: Real + Display>(monitor: &Monitor<R>) -> Self {
-        let counts = monitor.detector_counts();
         Detectors {
-            spikes: counts.spikes,
-            out_of_range: counts.out_of_range,
-            stuck_samples: counts.stuck_samples,
-            unresponsive_windows: counts.unresponsive_windows,
-            cusum_checks: counts.cusum_checks,
-            cusum_signals: counts.cusum_signals,
-            spread_jump_signals: counts.spread_jump_signals,
-            drift_evaluations: counts.drift_evaluations,
-            drift_significant: counts.drift_significant,
-            gap_samples: counts.gap_samples,
+            counts: monitor.detector_counts(),
             cusum: CusumSummary::of(monitor),
         }
     }
