@@ -78,6 +78,8 @@ pub struct Channel<R: Real> {
     pub checks_reported: u64,
     /// True when the channel changed since its last save.
     pub dirty: bool,
+    /// The record saved with the snapshot on disk.
+    pub saved: Option<ChannelRecord>,
 }
 
 impl<R: Real + Display> Channel<R> {
@@ -96,6 +98,7 @@ impl<R: Real + Display> Channel<R> {
             checks_saved: checks,
             checks_reported: checks,
             dirty: false,
+            saved: record.clone(),
         };
         if let Some(record) = record {
             channel.last_t = record.last_t;

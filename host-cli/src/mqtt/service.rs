@@ -151,6 +151,7 @@ pub struct Service<R: FeedFloat + Display> {
     published: u64,
     confirmed: u64,
     save_due: bool,
+    unconfirmed_since: Option<Instant>,
     refused: u64,
     link: Link,
     last_status: Instant,
@@ -181,6 +182,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
             published: 0,
             confirmed: 0,
             save_due: false,
+            unconfirmed_since: None,
             refused: 0,
             link: Link::default(),
             last_status: Instant::now(),
@@ -273,6 +275,12 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
             Note::Event(Event::Incoming(Packet::ConnAck(ack))) => {
                 self.link.connected = true;
                 self.link.connects += 1;
+                if self.link.connects > 1 {
+                    // The client sends again what the lost connection left unconfirmed,
+                    // but a publication the broker took without answering may come back
+                    // confirmed or not: count from here so a save is never held forever.
+                    self.confirmed = self.published;
+                }
                 if !self.settings.quiet {
                     let again = if self.link.connects > 1 { "re" } else { "" };
                     eprintln!("steadycal: {again}connected to {}", self.settings.shown);
@@ -447,9 +455,26 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         let due = self.save_due
             || self.pending.len() >= self.settings.ack_window
             || (idle && !self.pending.is_empty());
-        if !due || self.confirmed < self.published || !self.link.connected {
+        if !due || !self.link.connected {
             return Ok(());
         }
+        if self.confirmed < self.published {
+            // Held until the broker confirms what was published, but never for ever: a
+            // confirmation lost with a connection would otherwise stop every save.
+            let since = *self.unconfirmed_since.get_or_insert_with(Instant::now);
+            if since.elapsed() < CONFIRM_WAIT {
+                return Ok(());
+            }
+            if !self.settings.quiet {
+                eprintln!(
+                    "steadycal: warning: {} publication(s) unconfirmed for {} s; saving anyway",
+                    self.published - self.confirmed,
+                    CONFIRM_WAIT.as_secs()
+                );
+            }
+            self.confirmed = self.published;
+        }
+        self.unconfirmed_since = None;
         self.save_and_ack()
     }
 

@@ -3,16 +3,19 @@
 //! reads) and one `channels.json` holding each channel's [`ChannelRecord`].
 //!
 //! A save writes `channels.json` first, then the snapshots of the channels that changed,
-//! each power-safe ([`write_durably`]), then syncs the directory. A record is used on
-//! resume only when its `samples` equals the snapshot's sample count: a save cut short
-//! leaves records ahead of their snapshots, and those channels resume without them (their
-//! unacknowledged samples come back from the broker and are processed again).
+//! each power-safe ([`write_durably`]), then syncs the directory. Each channel's entry
+//! holds the new record and the one saved with the snapshot now on disk; on resume the
+//! one whose `samples` equals the snapshot's sample count is used. A save cut short thus
+//! leaves a record ahead of its snapshot and the previous one beside it; the channel
+//! resumes with the previous one (its unacknowledged samples come back from the broker
+//! and are processed again).
 
 use std::collections::BTreeMap;
 use std::fmt::Display;
 use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result};
+use serde::{Deserialize, Serialize};
 use steadycal_core::monitor::Monitor;
 use steadycal_core::real::Real;
 
@@ -23,6 +26,15 @@ use crate::snapshot_file;
 
 const RECORDS: &str = "channels.json";
 const EXTENSION: &str = "snapshot";
+
+/// A channel's entry in `channels.json`.
+#[derive(Serialize, Deserialize)]
+struct Entry {
+    /// The record written with this save.
+    record: ChannelRecord,
+    /// The record saved with the snapshot on disk before this save.
+    before: Option<ChannelRecord>,
+}
 
 /// A channel found in the state directory.
 pub struct Resumed<R: Real> {
@@ -58,7 +70,7 @@ impl StateDir {
     /// naming the file and the byte.
     pub fn load<R: Real>(&self) -> Result<Vec<Resumed<R>>> {
         let records_path = self.dir.join(RECORDS);
-        let mut records: BTreeMap<String, ChannelRecord> = match std::fs::read(&records_path) {
+        let mut records: BTreeMap<String, Entry> = match std::fs::read(&records_path) {
             Ok(bytes) => serde_json::from_slice(&bytes).with_context(|| {
                 format!("{}: not a channel record file", records_path.display())
             })?,
@@ -86,9 +98,13 @@ impl StateDir {
         let mut resumed = Vec::new();
         for name in names {
             let monitor = snapshot_file::restore_as::<R>(&self.snapshot_path(&name))?;
-            let record = records
-                .remove(&name)
-                .filter(|record| record.samples == monitor.counters().samples);
+            let samples = monitor.counters().samples;
+            let record = records.remove(&name).and_then(|entry| {
+                [Some(entry.record), entry.before]
+                    .into_iter()
+                    .flatten()
+                    .find(|record| record.samples == samples)
+            });
             resumed.push(Resumed {
                 name,
                 monitor,
@@ -104,9 +120,15 @@ impl StateDir {
         if !channels.iter().any(|c| c.dirty) {
             return Ok(0);
         }
-        let records: BTreeMap<&str, ChannelRecord> = channels
+        let records: BTreeMap<&str, Entry> = channels
             .iter()
-            .map(|c| (c.name.as_str(), c.record()))
+            .map(|c| {
+                let entry = Entry {
+                    record: c.record(),
+                    before: c.saved.clone(),
+                };
+                (c.name.as_str(), entry)
+            })
             .collect();
         let text = serde_json::to_vec(&records)?;
         write_durably(&self.dir.join(RECORDS), &text)?;
@@ -116,6 +138,7 @@ impl StateDir {
             let bytes = snapshot_file::encode(&path, &mut channel.engine.monitor)?;
             write_durably(&path, &bytes)?;
             channel.dirty = false;
+            channel.saved = Some(channel.record());
             channel.checks_saved = channel.checks();
             written += 1;
         }
