@@ -534,3 +534,68 @@ fn broker_and_service_restarts_lose_nothing() {
         assert_eq!(status["rung"], summary["rung"]);
     }
 }
+
+#[test]
+fn malformed_payloads_are_counted_reported_and_the_channel_goes_on() {
+    let Some(program) =
+        mosquitto_required("malformed_payloads_are_counted_reported_and_the_channel_goes_on")
+    else {
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let broker = Broker::start(program, dir.path());
+    let collector = Collector::start(broker.port, "test-collector-3");
+    let service = watch(&broker.url(), &dir.path().join("state"), &[]);
+    broker.wait_for_client("steadycal-watch", 1);
+    let mega = format!("{{\"t\":9,\"raw\":1,\"pad\":\"{}\"}}", "x".repeat(1 << 20));
+    let payloads: Vec<String> = [
+        r#"{"t":0,"raw":10,"ref":10}"#,
+        "not json",
+        r#"{"t":1,"ref":2}"#,
+        r#"{"t":2,"raw":"12","ref":12}"#,
+        r#"{"t":3,"raw":11,"ref":11}"#,
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
+    finish(publish(broker.port, "plant/cell-c/feed", &payloads));
+    // The 1 MB payload as one message (mosquitto_pub -f), then one more good sample.
+    let big = dir.path().join("big.json");
+    std::fs::write(&big, &mega).unwrap();
+    let status = Command::new("mosquitto_pub")
+        .args(["-h", "127.0.0.1", "-p", &broker.port.to_string(), "-q", "1"])
+        .args(["-t", "plant/cell-c/feed", "-f"])
+        .arg(&big)
+        .status()
+        .unwrap();
+    assert!(status.success());
+    finish(publish(
+        broker.port,
+        "plant/cell-c/feed",
+        &[r#"{"t":4,"raw":12,"ref":12}"#.to_string()],
+    ));
+    collector.wait_for_samples(&[("cell-c", 3)]);
+    let stderr = stop_watch(service);
+    let reports: Vec<Value> = collector
+        .on("steadycal/cell-c/errors")
+        .iter()
+        .map(|p| serde_json::from_slice(p).unwrap())
+        .collect();
+    let reasons: Vec<&str> = reports
+        .iter()
+        .map(|r| r["reason"].as_str().unwrap())
+        .collect();
+    assert_eq!(reasons.len(), 4, "{reasons:?}");
+    assert!(
+        reasons[0].starts_with("expected one JSON object per message"),
+        "{reasons:?}"
+    );
+    assert_eq!(reasons[1], "no `raw` field, expected a number");
+    assert_eq!(reasons[2], "field `raw`: expected a number, found \"12\"");
+    assert!(reasons[3].starts_with("payload of 1048"), "{reasons:?}");
+    assert_eq!(reports[3]["malformed"], 4);
+    let status = retained(broker.port, "steadycal/cell-c/status");
+    assert_eq!(status["malformed"], 4);
+    assert_eq!(status["samples"], 3);
+    assert!(stderr.contains("malformed payload"), "{stderr}");
+}
