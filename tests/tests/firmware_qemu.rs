@@ -468,6 +468,7 @@ fn compare_with_host(
         checks: None,
         precision: Precision::F32,
         columns: ColumnNames::default(),
+        missing: Default::default(),
         config: channel.monitor,
         baseline: channel.baseline,
         skip_bad_rows: false,

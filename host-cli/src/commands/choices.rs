@@ -25,17 +25,24 @@ impl ValueEnum for Precision {
 
 impl ValueEnum for InputFormat {
     fn value_variants<'a>() -> &'a [Self] {
-        &[InputFormat::Auto, InputFormat::Csv, InputFormat::DeviceLog]
+        &[
+            InputFormat::Auto,
+            InputFormat::Csv,
+            InputFormat::DeviceLog,
+            InputFormat::Parquet,
+        ]
     }
 
     fn to_possible_value(&self) -> Option<PossibleValue> {
         Some(match self {
             InputFormat::Auto => PossibleValue::new("auto").help(
-                "Decide by content: a device log starts with a 0x00 byte, a CSV feed never does",
+                "Decide by content: a device log starts with a 0x00 byte, a Parquet file with PAR1, a CSV feed with neither",
             ),
             InputFormat::Csv => PossibleValue::new("csv").help("CSV with a header"),
             InputFormat::DeviceLog => PossibleValue::new("device-log")
                 .help("A device log (COBS-framed postcard records, see `steadycal_core::record`)"),
+            InputFormat::Parquet => PossibleValue::new("parquet")
+                .help("A Parquet file, read one row group at a time"),
         })
     }
 }

@@ -1,7 +1,8 @@
 //! `steadycal fleet DIR`: replay every feed of a directory in parallel, one row per channel.
 //!
-//! Feeds are the `*.csv` files of the directory (not recursive), in name order; each is
-//! one channel. A channel's configuration is `NAME.monitor.toml` beside `NAME.csv` when it
+//! Feeds are the `*.csv` and `*.parquet` files of the directory (not recursive), in name
+//! order; each is one channel. A channel's configuration is `NAME.monitor.toml` beside
+//! `NAME.csv` (or `NAME.parquet`) when it
 //! exists, else `--config`, else the defaults. Feeds run on a rayon pool (`--jobs`, default:
 //! one per core); the rows come out in file-name order whatever the scheduling.
 
@@ -30,7 +31,7 @@ use crate::replay::{self, ReplayOptions};
     "--config, else the defaults.",
 )))]
 pub struct FleetArgs {
-    /// Directory of feeds (`*.csv`).
+    /// Directory of feeds (`*.csv`, `*.parquet`).
     pub dir: PathBuf,
     /// Write the table as CSV here (`-` = stdout).
     #[arg(long, value_name = "FILE")]
@@ -89,7 +90,12 @@ fn feeds(dir: &Path) -> anyhow::Result<Vec<PathBuf>> {
     let mut feeds: Vec<PathBuf> = std::fs::read_dir(dir)
         .with_context(|| format!("{}: cannot read directory", dir.display()))?
         .filter_map(|entry| entry.ok().map(|e| e.path()))
-        .filter(|path| path.is_file() && path.extension().is_some_and(|e| e == "csv"))
+        .filter(|path| {
+            path.is_file()
+                && path
+                    .extension()
+                    .is_some_and(|e| e == "csv" || e == "parquet")
+        })
         .collect();
     feeds.sort();
     Ok(feeds)
@@ -233,7 +239,10 @@ pub fn table(rows: &[FleetRow]) -> String {
 pub fn run(args: FleetArgs) -> anyhow::Result<ExitCode> {
     let feeds = feeds(&args.dir)?;
     if feeds.is_empty() {
-        anyhow::bail!("{}: no *.csv feeds in this directory", args.dir.display());
+        anyhow::bail!(
+            "{}: no *.csv or *.parquet feeds in this directory",
+            args.dir.display()
+        );
     }
     let mut pool = rayon::ThreadPoolBuilder::new();
     if let Some(jobs) = args.jobs {

@@ -8,6 +8,10 @@
 //! naming the file, the line, the column and what was expected.
 
 //!
+//! Arrow record batches (from Parquet files or a caller's tables) are read by [`arrow`] with
+//! the same column names and missing-value rules; [`parquet`] opens a Parquet file as such
+//! a stream, one row group at a time.
+//!
 //! One job per module: [`csv_feed`] (the reader: header, columns, rows to samples),
 //! [`records`] (the record reader driving `csv_core`), [`fast_row`] (plain rows parsed
 //! straight from the read buffer), [`decimal`] (numeric cells of the fast path, bit-identical to `str::parse`), [`cell`]
@@ -21,10 +25,12 @@ use steadycal_core::sample::Sample;
 
 use decimal::DecimalFloat;
 
+pub mod arrow;
 pub mod cell;
 pub mod csv_feed;
 pub mod decimal;
 pub mod fast_row;
+pub mod parquet;
 pub mod records;
 
 pub use cell::{parse_number, parse_rfc3339};
@@ -104,6 +110,50 @@ pub enum FeedError {
         /// What was there (cut to 40 characters).
         found: String,
     },
+    /// A column of a columnar source (Arrow, Parquet) is not in its schema.
+    #[error("{file}: no column `{column}`, expected one (found: {found})")]
+    NoColumn {
+        /// File name (or the source's name).
+        file: String,
+        /// The missing column.
+        column: String,
+        /// The schema's columns.
+        found: String,
+    },
+    /// A column of a columnar source holds another type than the column needs.
+    #[error("{file}: column `{column}` holds {found}, expected {expected}")]
+    ColumnType {
+        /// File name (or the source's name).
+        file: String,
+        /// Column name.
+        column: String,
+        /// The column's type.
+        found: String,
+        /// What would have been accepted.
+        expected: &'static str,
+    },
+    /// A value of a columnar source cannot be used (a missing time).
+    #[error("{file}: row {row}: column `{column}`: expected {expected}, found {found}")]
+    BadValue {
+        /// File name (or the source's name).
+        file: String,
+        /// 1-based row over the whole source.
+        row: u64,
+        /// Column name.
+        column: String,
+        /// What would have been accepted.
+        expected: &'static str,
+        /// What was there.
+        found: String,
+    },
+    /// A columnar source cannot be decoded.
+    #[error("{file}: {message}")]
+    Decode {
+        /// File name (or the source's name).
+        file: String,
+        /// What the decoder said.
+        message: String,
+    },
     /// A row is malformed (wrong number of fields, invalid UTF-8, ...).
     #[error("{location}: {message}")]
     BadRow {
@@ -121,6 +171,7 @@ impl FeedError {
             FeedError::BadCell { location, .. } | FeedError::BadRow { location, .. } => {
                 Some(location.line)
             }
+            FeedError::BadValue { row, .. } => Some(*row),
             _ => None,
         }
     }

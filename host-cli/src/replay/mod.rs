@@ -6,7 +6,9 @@
 //!
 //! One job per module: [`options`] (what to read and write), [`engine`] (the monitor and
 //! its bookkeeping, shared with `watch` and `fleet`), [`time_order`], [`pipeline`] (how rows
-//! reach the engine: a parsing thread, inline, or a device log), [`run`] (a replay under
+//! reach the engine: a parsing thread, inline, or a device log), [`record_batches`] (Arrow
+//! record batches, the entry of every columnar source), [`parquet_file`] (a Parquet file's
+//! batches decoded on a second thread), [`run`] (a replay under
 //! way: rows, outputs, the end), [`sink`] (one module per output), [`progress`].
 //! The command-line arguments live in `commands::replay`.
 
@@ -19,8 +21,10 @@ use crate::feed::{CsvFeed, FeedError};
 
 pub mod engine;
 pub mod options;
+pub mod parquet_file;
 pub mod pipeline;
 pub mod progress;
+pub mod record_batches;
 pub mod run;
 pub mod sink;
 pub mod time_order;
@@ -28,6 +32,7 @@ pub mod time_order;
 pub use crate::precision::Precision;
 pub use engine::Engine;
 pub use options::{InputFormat, PersistOptions, ReplayOptions};
+pub use record_batches::replay_record_batches;
 pub use run::ReplayResult;
 
 /// Runs a replay with the options' float type.
@@ -37,6 +42,9 @@ pub use run::ReplayResult;
 /// parsing and the core overlap on two cores while memory stays flat in the feed length.
 /// The core still sees the samples one by one, in feed order: results are identical to a
 /// single-threaded run.
+///
+/// A Parquet file (detected by content, or asked for with [`InputFormat::Parquet`]) is read
+/// one row group at a time through [`replay_record_batches`].
 ///
 /// A device log (detected by content, or asked for with [`InputFormat::DeviceLog`]) is read
 /// whole and replayed record by record; damaged byte spans are skipped and listed in the
@@ -54,8 +62,21 @@ pub fn replay(options: &ReplayOptions) -> Result<ReplayResult> {
         Box::new(File::open(&options.feed).map_err(io_error)?)
     };
     let mut reader = std::io::BufReader::with_capacity(1 << 16, input);
+    let is_parquet = match options.persist.input_format {
+        InputFormat::Parquet => true,
+        InputFormat::Auto => {
+            crate::feed::parquet::looks_like_parquet(reader.fill_buf().map_err(io_error)?)
+        }
+        _ => false,
+    };
+    if is_parquet {
+        if file == "-" {
+            anyhow::bail!("-: a Parquet feed is read from a file (its footer comes last), not from standard input");
+        }
+        return parquet_file::replay_parquet(options);
+    }
     let is_log = match options.persist.input_format {
-        InputFormat::Csv => false,
+        InputFormat::Csv | InputFormat::Parquet => false,
         InputFormat::DeviceLog => true,
         InputFormat::Auto => {
             crate::device_log::looks_like_device_log(reader.fill_buf().map_err(io_error)?)

@@ -8,6 +8,7 @@ use steadycal_config::Commissioned;
 use steadycal_core::monitor::MonitorConfig;
 
 use crate::feed::ColumnNames;
+use crate::field::missing::MissingMarkers;
 use crate::precision::Precision;
 
 /// What to replay and where to write.
@@ -28,6 +29,9 @@ pub struct ReplayOptions {
     pub precision: Precision,
     /// Column names.
     pub columns: ColumnNames,
+    /// Cells that mean "no value" (the defaults, empty and `NA`, plus `--missing` and the
+    /// configuration's `columns.missing`); Arrow and Parquet sources also treat nulls so.
+    pub missing: MissingMarkers,
     /// Monitor configuration (f64 values; rounded for f32 runs).
     pub config: MonitorConfig<f64>,
     /// The commissioned baseline of the drift test (the configuration's `[baseline]`);
@@ -53,13 +57,16 @@ pub struct ReplayOptions {
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum InputFormat {
-    /// Decide by content: a device log starts with a 0x00 byte, a CSV feed never does.
+    /// Decide by content: a device log starts with a 0x00 byte, a Parquet file with `PAR1`,
+    /// a CSV feed with neither.
     #[default]
     Auto,
     /// CSV with a header.
     Csv,
     /// A device log (COBS-framed postcard records, see `steadycal_core::record`).
     DeviceLog,
+    /// A Parquet file (starts with `PAR1`), read one row group at a time.
+    Parquet,
 }
 
 /// Snapshot and device-log options of a replay.
@@ -90,6 +97,7 @@ impl ReplayOptions {
             checks: None,
             precision: Precision::F32,
             columns: ColumnNames::default(),
+            missing: MissingMarkers::default(),
             config,
             baseline: None,
             skip_bad_rows: false,

@@ -89,27 +89,9 @@ where
                 return census;
             }
         });
-        'batches: for mut batch in receiver {
-            run.progress(batch.bytes);
-            if batch.errors.is_empty() {
-                for (sample, &line) in batch.samples.iter().zip(&batch.lines) {
-                    run.good(*sample, line)?;
-                }
-            } else {
-                let mut errors = batch.errors.drain(..).peekable();
-                for (index, (sample, &line)) in batch.samples.iter().zip(&batch.lines).enumerate() {
-                    while let Some((_, error)) = errors.next_if(|(at, _)| *at == index) {
-                        if !run.bad(error) {
-                            break 'batches;
-                        }
-                    }
-                    run.good(*sample, line)?;
-                }
-                for (_, error) in errors.by_ref() {
-                    if !run.bad(error) {
-                        break 'batches;
-                    }
-                }
+        for mut batch in receiver {
+            if !run.batch(&mut batch)? {
+                break;
             }
             let _ = recycle.try_send(batch);
         }

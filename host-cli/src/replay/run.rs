@@ -16,7 +16,7 @@ use steadycal_core::sample::Sample;
 
 use crate::baseline::BaselineOrigin;
 use crate::device_log::DeviceLogWriter;
-use crate::feed::{FeedError, ParsedRow};
+use crate::feed::{Batch, FeedError, ParsedRow};
 use crate::field::census::{RunCensus, Suspect};
 use crate::io::create_output;
 use crate::replay::engine::Engine;
@@ -226,6 +226,33 @@ impl<'a, R: Real + Display> Run<'a, R> {
         }
         self.error = Some(feed_error);
         false
+    }
+
+    /// The rows of a batch, good and bad, in order (the progress bar moved to its bytes);
+    /// false when the run stops in it.
+    pub(crate) fn batch(&mut self, batch: &mut Batch<R>) -> Result<bool> {
+        self.progress(batch.bytes);
+        if batch.errors.is_empty() {
+            for (sample, &line) in batch.samples.iter().zip(&batch.lines) {
+                self.good(*sample, line)?;
+            }
+            return Ok(true);
+        }
+        let mut errors = batch.errors.drain(..).peekable();
+        for (index, (sample, &line)) in batch.samples.iter().zip(&batch.lines).enumerate() {
+            while let Some((_, error)) = errors.next_if(|(at, _)| *at == index) {
+                if !self.bad(error) {
+                    return Ok(false);
+                }
+            }
+            self.good(*sample, line)?;
+        }
+        for (_, error) in errors.by_ref() {
+            if !self.bad(error) {
+                return Ok(false);
+            }
+        }
+        Ok(true)
     }
 
     /// A good row, on `line`: time order, the core, and every output.

@@ -22,11 +22,13 @@ mod field_run;
     "  cat feed.csv | steadycal replay - --summary - | jq .rung\n",
     "  steadycal replay logger.csv --raw-column counts --ref-column cal_gas --skip-bad-rows\n",
     "  steadycal replay first.csv --save-snapshot state.bin && steadycal replay rest.csv --resume state.bin\n",
-    "  steadycal replay board.log --summary summary.json   (a device log, detected by content)",
+    "  steadycal replay board.log --summary summary.json   (a device log, detected by content)\n",
+    "  steadycal replay feed.parquet --raw-column counts --missing=-9999 --summary -",
 )))]
 pub struct ReplayArgs {
     /// Feed to replay: CSV with a header naming `raw` and optionally `t` (seconds or RFC
-    /// 3339), `ref`, `temp` (`-` = stdin).
+    /// 3339), `ref`, `temp` (`-` = stdin); or a Parquet file with columns of those names; or
+    /// a device log.
     pub feed: PathBuf,
     /// Write events as JSON lines here (`-` = stdout).
     #[arg(long, value_name = "FILE")]
@@ -131,6 +133,9 @@ fn config_missing(args: &ReplayArgs) -> anyhow::Result<Vec<String>> {
 pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
     let mut options = args.options()?;
     let missing = config_missing(&args)?;
+    if is_parquet(&options)? {
+        return parquet_run(&args, options, &missing);
+    }
     if super::field::FieldPlan::wanted(&args.field, &args.reference, &args.columns, &missing) {
         let time_given = args.columns.time_column.is_some()
             || args
@@ -161,6 +166,67 @@ pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
         side.write_report(&options, &args.monitor, path)?;
     }
     finish(&args, &options, result, false)
+}
+
+/// True when the feed is a Parquet file (asked for, or by its first bytes).
+fn is_parquet(options: &ReplayOptions) -> anyhow::Result<bool> {
+    Ok(match options.persist.input_format {
+        InputFormat::Parquet => true,
+        InputFormat::Auto if options.feed.as_os_str() != "-" => {
+            use std::io::Read;
+            let mut head = [0u8; 4];
+            let n = std::fs::File::open(&options.feed)
+                .and_then(|mut f| f.read(&mut head))
+                .unwrap_or(0);
+            crate::feed::parquet::looks_like_parquet(&head[..n])
+        }
+        _ => false,
+    })
+}
+
+/// Runs `replay` on a Parquet file: columns by name, nulls and `--missing` markers as
+/// missing cells; the options about text cells do not apply.
+fn parquet_run(
+    args: &ReplayArgs,
+    mut options: ReplayOptions,
+    config_missing: &[String],
+) -> anyhow::Result<ExitCode> {
+    let field = &args.field;
+    let text_only = [
+        ("--time-format", field.time_format.is_some()),
+        ("--time-unit", field.time_unit.is_some()),
+        ("--timezone", field.timezone.is_some()),
+        ("--separator", field.separator.is_some()),
+        ("--decimal-comma", field.decimal_comma),
+        ("--save-config", field.save_config.is_some()),
+        ("--reference", args.reference.reference.is_some()),
+    ];
+    if let Some((name, _)) = text_only.iter().find(|(_, given)| *given) {
+        anyhow::bail!(
+            "{}: {name} does not apply to a Parquet feed (its columns carry their types: numbers, or timestamps for the time column)",
+            options.feed.display()
+        );
+    }
+    let mut markers: Vec<String> = Vec::new();
+    for marker in config_missing {
+        markers.push(
+            crate::field::missing::parse_marker(marker)
+                .map_err(|e| anyhow::anyhow!("columns.missing: {e}"))?,
+        );
+    }
+    markers.extend(field.missing.iter().cloned());
+    options.missing = crate::field::missing::MissingMarkers::new(&markers)
+        .map_err(|e| anyhow::anyhow!("--missing: {e}"))?;
+    let side = match &args.report {
+        Some(_) => Some(super::report::SideFiles::prepare(&mut options)?),
+        None => None,
+    };
+    let result = replay::replay(&options)?;
+    if let (Some(side), Some(path)) = (&side, &args.report) {
+        side.write_report(&options, &args.monitor, path)?;
+    }
+    let strict_failed = field.strict && !result.suspects.is_empty();
+    finish(args, &options, result, strict_failed)
 }
 
 /// What every replay does after the run: reports a feed error (exit 2), prints the human
