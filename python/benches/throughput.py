@@ -72,6 +72,9 @@ def cpu_of(work) -> float:
 def session():
     from pyspark.sql import SparkSession
 
+    # The workers run this interpreter (the one steadycal is installed in).
+    os.environ.setdefault("PYSPARK_PYTHON", sys.executable)
+
     spark = (
         SparkSession.builder.master("local[2]")
         .config("spark.ui.enabled", "false")

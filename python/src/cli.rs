@@ -85,3 +85,49 @@ pub fn toml_of_json(json: &str) -> Result<String> {
 pub fn config_text(json: &str) -> PyResult<String> {
     toml_of_json(json).map_err(value_error)
 }
+
+/// `replay_arrow(source, name, argv)`: `steadycal replay` on an Arrow stream (a pyarrow
+/// Table, or any object with `__arrow_c_stream__`) through the host library's
+/// `replay_record_batches`, with the same options (columns, `--missing` and the
+/// configuration's `columns.missing`, outputs); `name` stands for the feed in messages and
+/// in the summary. Batches are read as the replay goes.
+#[pyfunction]
+pub fn replay_arrow(
+    py: Python<'_>,
+    source: &Bound<'_, PyAny>,
+    name: String,
+    argv: Vec<String>,
+) -> PyResult<()> {
+    use arrow::pyarrow::{FromPyArrow, Table};
+    let parsed =
+        Replay::try_parse_from(["replay".to_string(), name.clone()].into_iter().chain(argv))
+            .map_err(usage_error)?;
+    let args = parsed.args;
+    let mut options = args.options().map_err(value_error)?;
+    let mut markers = Vec::new();
+    if let Some(path) = &args.monitor.config {
+        let file =
+            steadycal_cli::config::ConfigFile::read(path).map_err(|e| value_error(e.into()))?;
+        for marker in file.columns.missing.unwrap_or_default() {
+            markers.push(
+                steadycal_cli::field::missing::parse_marker(&marker)
+                    .map_err(|e| value_error(anyhow!("columns.missing: {e}")))?,
+            );
+        }
+    }
+    markers.extend(args.field.missing.iter().cloned());
+    options.missing = steadycal_cli::field::missing::MissingMarkers::new(&markers)
+        .map_err(|e| value_error(anyhow!("--missing: {e}")))?;
+    let table = Table::from_pyarrow_bound(source)?;
+    let (batches, schema) = table.into_inner();
+    py.detach(|| {
+        steadycal_cli::replay::replay_record_batches(
+            &name,
+            schema,
+            batches.into_iter().map(Ok),
+            &options,
+        )
+    })
+    .map_err(value_error)?;
+    Ok(())
+}

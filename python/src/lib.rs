@@ -24,6 +24,7 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<monitor::Monitor>()?;
     m.add_function(wrap_pyfunction!(monitor::restore_monitor, m)?)?;
     m.add_function(wrap_pyfunction!(cli::replay_command, m)?)?;
+    m.add_function(wrap_pyfunction!(cli::replay_arrow, m)?)?;
     m.add_function(wrap_pyfunction!(cli::assess_command, m)?)?;
     m.add_function(wrap_pyfunction!(cli::fleet_row, m)?)?;
     m.add_function(wrap_pyfunction!(cli::config_text, m)?)?;

@@ -149,7 +149,8 @@ def _by_partition(df, spec: _Channels, per_channel: Callable[[Any, pa.Table], pa
 def _by_group(df, spec: _Channels, per_channel: Callable[[Any, pa.Table], pa.Table], schema: pa.Schema):
     """`groupBy(channel).applyInArrow`: one pyarrow Table per channel."""
 
-    def group(key, table: pa.Table) -> pa.Table:
+    # No annotations: pyspark infers the UDF kind from type hints, and fails on string ones.
+    def group(key, table):
         return per_channel(key[0].as_py(), table)
 
     return df.groupBy(spec.channel).applyInArrow(group, _spark_schema(schema))

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 import os
+import sys
 import shutil
 import subprocess
 from pathlib import Path
@@ -57,6 +58,9 @@ def spark():
     if shutil.which("java") is None:
         pytest.fail("java is not installed (CI installs openjdk-17-jre-headless)")
     from pyspark.sql import SparkSession
+
+    # The workers run this interpreter (the one steadycal is installed in).
+    os.environ.setdefault("PYSPARK_PYTHON", sys.executable)
 
     session = (
         SparkSession.builder.master("local[2]")
