@@ -8,14 +8,16 @@ replay`` gives on the same rows.
 
 Two ways to lay the work out (``method``):
 
-- ``"partition"`` (default): ``repartition(channel)``, ``sortWithinPartitions(channel,
+- ``"group"`` (default): ``groupBy(channel).applyInArrow``: Spark hands each channel to
+  Python as one ``pyarrow.Table``, which is sorted by time there.
+- ``"partition"``: ``repartition(channel)``, ``sortWithinPartitions(channel,
   time)`` and ``mapInArrow``: each task streams its partition's Arrow batches and replays
   one channel after the other, with one Python worker per task and one Arrow stream.
-- ``"group"``: ``groupBy(channel).applyInArrow``: Spark hands each channel to Python as one
-  ``pyarrow.Table``, which is sorted by time there.
 
-Both give identical rows; the README's "Python and clusters" section has the measured
-throughput and per-channel overhead of each.
+Both give identical rows. ``group`` is the default because it measured faster: 16 channels
+of 10^5 rows from Parquet on local[2] in 4.95 s against 6.76 s (the sort of the whole
+partition costs more than sorting each channel's table); see the README's "Python and
+clusters" section.
 
 Configurations: ``config`` (a path or a dict of sections) for every channel, ``configs``
 (a dict channel → path or dict) for some, or ``config_column`` (a column holding a
@@ -187,7 +189,7 @@ def replay_channels(
     configs: Optional[Mapping[Any, Any]] = None,
     config_column: Optional[str] = None,
     precision: str = "f32",
-    method: str = "partition",
+    method: str = "group",
 ):
     """One row per channel: ``channel`` and the fields of a ``steadycal fleet --json`` row
     (samples, checks, rung, exponent, exponent_se, gain, offset, transform_changes,
@@ -208,7 +210,7 @@ def channel_events(
     configs: Optional[Mapping[Any, Any]] = None,
     config_column: Optional[str] = None,
     precision: str = "f32",
-    method: str = "partition",
+    method: str = "group",
 ):
     """One row per event: ``channel``, then the columns of :attr:`steadycal.Run.events`
     (``seq`` and integer fields as 64-bit integers)."""
