@@ -543,3 +543,18 @@ fn a_closed_output_pipe_ends_the_run_quietly() {
         String::from_utf8_lossy(&output.stderr)
     );
 }
+
+#[test]
+fn a_field_run_writes_its_report() {
+    let dir = scratch("report");
+    let page = dir.join("run.html");
+    steadycal()
+        .arg("replay")
+        .arg(feeds().join("load-cell.csv"))
+        .args(["--missing=-9999", "--quiet", "--report"])
+        .arg(&page)
+        .assert()
+        .success();
+    let html = std::fs::read_to_string(&page).unwrap();
+    assert!(html.starts_with("<!DOCTYPE html>") && html.contains("<svg"));
+}

@@ -3,7 +3,6 @@
 //! the warnings, `--save-config` and `--strict`.
 
 use std::io::Write;
-use std::process::ExitCode;
 
 use anyhow::Result;
 use serde_json::Value;
@@ -140,8 +139,13 @@ fn run_typed<R: FeedFloat + std::fmt::Display>(
     })
 }
 
-/// Runs `replay` on field logs; the summary is written here, with the field entries.
-pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Result<ExitCode> {
+/// Runs `replay` on field logs; the summary is written here, with the field entries. The
+/// working range found in the data is left in `options`.
+pub fn run(
+    args: &ReplayArgs,
+    options: &mut ReplayOptions,
+    plan: &FieldPlan,
+) -> Result<ReplayResult> {
     let config_has_range = match &args.monitor.config {
         Some(path) => {
             let file = crate::config::ConfigFile::read(path)?;
@@ -154,8 +158,8 @@ pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Re
     let mut from_data = false;
     if !explicit && options.feed.as_os_str() != "-" && options.persist.resume.is_none() {
         let found = match options.precision {
-            Precision::F32 => range_from_data::<f32>(&plan, &options)?,
-            Precision::F64 => range_from_data::<f64>(&plan, &options)?,
+            Precision::F32 => range_from_data::<f32>(plan, options)?,
+            Precision::F64 => range_from_data::<f64>(plan, options)?,
         };
         if let Some((low, high)) = found {
             options.config.level_low = low;
@@ -167,11 +171,11 @@ pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Re
     options.range_source = source;
     let summary_path = options.summary.take();
     let (mut result, tally) = match options.precision {
-        Precision::F32 => run_typed::<f32>(&plan, &options)?,
-        Precision::F64 => run_typed::<f64>(&plan, &options)?,
+        Precision::F32 => run_typed::<f32>(plan, options)?,
+        Precision::F64 => run_typed::<f64>(plan, options)?,
     };
     if let Value::Object(map) = &mut result.summary {
-        summary_entries(map, &tally, &plan);
+        summary_entries(map, &tally, plan);
         map.insert(
             "level_low".into(),
             serde_json::json!(options.config.level_low),
@@ -229,6 +233,5 @@ pub fn run(args: &ReplayArgs, mut options: ReplayOptions, plan: FieldPlan) -> Re
         )?;
     }
     options.summary = summary_path;
-    let strict_failed = plan.strict && !result.suspects.is_empty();
-    super::finish(args, &options, result, strict_failed)
+    Ok(result)
 }

@@ -152,20 +152,31 @@ pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
             time_given,
             &missing,
         )?;
-        if args.report.is_some() {
-            let _ = super::report::SideFiles::prepare(&mut options)?;
-        }
-        return field_run::run(&args, options, plan);
+        let result = with_report(&args, &mut options, |options| {
+            field_run::run(&args, options, &plan)
+        })?;
+        let strict_failed = plan.strict && !result.suspects.is_empty();
+        return finish(&args, &options, result, strict_failed);
     }
-    let side = match &args.report {
-        Some(_) => Some(super::report::SideFiles::prepare(&mut options)?),
-        None => None,
-    };
-    let result = replay::replay(&options)?;
-    if let (Some(side), Some(path)) = (&side, &args.report) {
-        side.write_report(&options, &args.monitor, path)?;
-    }
+    let result = with_report(&args, &mut options, |options| replay::replay(options))?;
     finish(&args, &options, result, false)
+}
+
+/// Runs `replay` (`run`) with `--report`: the side files the report reads back are
+/// prepared first (the outputs asked for, or files in a private temporary directory), the
+/// report written after the run.
+fn with_report(
+    args: &ReplayArgs,
+    options: &mut ReplayOptions,
+    run: impl FnOnce(&mut ReplayOptions) -> anyhow::Result<replay::ReplayResult>,
+) -> anyhow::Result<replay::ReplayResult> {
+    let Some(path) = &args.report else {
+        return run(options);
+    };
+    let side = super::report::SideFiles::prepare(options)?;
+    let result = run(options)?;
+    side.write_report(options, &args.monitor, path)?;
+    Ok(result)
 }
 
 /// True when the feed is a Parquet file (asked for, or by its first bytes).
@@ -217,14 +228,7 @@ fn parquet_run(
     markers.extend(field.missing.iter().cloned());
     options.missing = crate::field::missing::MissingMarkers::new(&markers)
         .map_err(|e| anyhow::anyhow!("--missing: {e}"))?;
-    let side = match &args.report {
-        Some(_) => Some(super::report::SideFiles::prepare(&mut options)?),
-        None => None,
-    };
-    let result = replay::replay(&options)?;
-    if let (Some(side), Some(path)) = (&side, &args.report) {
-        side.write_report(&options, &args.monitor, path)?;
-    }
+    let result = with_report(args, &mut options, |options| replay::replay(options))?;
     let strict_failed = field.strict && !result.suspects.is_empty();
     finish(args, &options, result, strict_failed)
 }
