@@ -21,6 +21,20 @@ pub fn create_output(path: &Path) -> Result<Box<dyn Write>> {
     }
 }
 
+/// Opens an output to add to (`-` is standard output): a file is created when absent and
+/// written after what it holds.
+pub fn append_output(path: &Path) -> Result<Box<dyn Write>> {
+    if path.as_os_str() == "-" {
+        return create_output(path);
+    }
+    let file = std::fs::OpenOptions::new()
+        .append(true)
+        .create(true)
+        .open(path)
+        .with_context(|| format!("{}: cannot open to append", path.display()))?;
+    Ok(Box::new(BufWriter::with_capacity(1 << 16, file)))
+}
+
 /// Replaces `path` with `bytes` so that a power cut leaves the old content or the new,
 /// never a mix: write `path.tmp`, sync it, rename it over `path`. The caller syncs the
 /// directory ([`sync_directory`]) once after a group of such writes.

@@ -480,6 +480,7 @@ fn compare_with_host(
             device_log_out: Some(log_path.clone()),
             ..Default::default()
         },
+        channel: None,
         pipelined: true,
     };
     let result = replay(&options).expect("host replay");

@@ -49,6 +49,10 @@ pub struct FieldArgs {
     /// missing marker.
     #[arg(long)]
     pub strict: bool,
+    /// Column naming the channel of each row in a long file of many sensors: one monitor
+    /// runs per channel (for a wide file, give several names to --raw-column instead).
+    #[arg(long, value_name = "NAME")]
+    pub channel_column: Option<String>,
     /// Write the monitor configuration used (the working range included, wherever it came
     /// from) as a complete commented file, for the board.
     #[arg(long, value_name = "FILE")]
@@ -128,9 +132,21 @@ pub fn range_source(
     }
 }
 
+/// Where the channels of a file of many sensors are.
+#[derive(Clone, Debug, PartialEq)]
+pub enum ChannelSource {
+    /// A wide file: one sensor column per channel (`--raw-column s1,s2,s3`).
+    Columns(Vec<String>),
+    /// A long file: the column naming each row's channel (`--channel-column id`).
+    Column(String),
+}
+
 /// Everything a field replay needs to open its logs.
 #[derive(Clone, Debug)]
 pub struct FieldPlan {
+    /// The channels of a file of many sensors (`None`: one sensor; `sensor.raw` then
+    /// holds one column).
+    pub channels: Option<ChannelSource>,
     /// The sensor log's layout.
     pub sensor: LogLayout,
     /// The reference log, its layout, clock offset and pairing.
@@ -158,6 +174,11 @@ impl FieldPlan {
             || field.strict
             || field.save_config.is_some()
             || reference.reference.is_some()
+            || field.channel_column.is_some()
+            || columns
+                .raw_column
+                .as_deref()
+                .is_some_and(|c| c.contains(','))
             || !config_missing.is_empty()
             || columns
                 .time_column
@@ -188,16 +209,35 @@ impl FieldPlan {
         let missing =
             MissingMarkers::new(&markers).map_err(|e| anyhow::anyhow!("--missing: {e}"))?;
         let time = time_given.then(|| column_list(&names.time));
+        let raw = column_list(&names.raw);
+        let channels = match (&field.channel_column, raw.len()) {
+            (Some(_), 2..) => anyhow::bail!(
+                "--channel-column: give either several sensor columns (--raw-column s1,s2: a wide file) or a channel column (a long file), not both"
+            ),
+            (Some(column), _) => Some(ChannelSource::Column(column.clone())),
+            (None, 2..) => {
+                if let Some(name) = raw.iter().find(|n| n.is_empty()) {
+                    anyhow::bail!("--raw-column: an empty column name in {:?}{name}", names.raw);
+                }
+                Some(ChannelSource::Columns(raw.clone()))
+            }
+            (None, _) => None,
+        };
         let sensor = LogLayout {
             separator: field.separator.unwrap_or(b','),
             decimal_comma: field.decimal_comma,
             time: time.clone(),
             time_reader: time_reader.clone(),
-            raw: vec![names.raw.clone()],
+            raw: if raw.len() > 1 {
+                raw
+            } else {
+                vec![names.raw.clone()]
+            },
             reference: (reference.reference.is_none()).then(|| names.reference.clone()),
             reference_required: false,
             temperature: Some(names.temperature.clone()),
-            channel: None,
+            channel: field.channel_column.clone(),
+            only_channel: None,
             missing: missing.clone(),
         };
         let reference = match &reference.reference {
@@ -235,17 +275,32 @@ impl FieldPlan {
                     reference: Some(names.reference.clone()),
                     reference_required: true,
                     temperature: None,
+                    channel: None,
                     ..sensor.clone()
                 };
                 Some((path.clone(), layout, offset, pairing))
             }
         };
         Ok(FieldPlan {
+            channels,
             sensor,
             reference,
             timezone: time_reader.zone_name().to_string(),
             strict: field.strict,
         })
+    }
+
+    /// The plan of one channel of a file of many sensors: its sensor column (a wide file)
+    /// or its rows (a long file).
+    pub fn for_channel(&self, name: &str) -> FieldPlan {
+        let mut plan = self.clone();
+        match &self.channels {
+            Some(ChannelSource::Columns(_)) => plan.sensor.raw = vec![name.to_string()],
+            Some(ChannelSource::Column(_)) => plan.sensor.only_channel = Some(name.to_string()),
+            None => {}
+        }
+        plan.channels = None;
+        plan
     }
 
     /// Opens the sensor log (and the reference log).

@@ -59,6 +59,10 @@ pub struct FleetArgs {
 pub struct FleetRow {
     /// Feed file name.
     pub file: String,
+    /// The channel, for one channel of a file of many sensors (`replay --raw-column
+    /// s1,s2` or `--channel-column`); absent for a file of one.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub channel: Option<String>,
     /// Samples.
     pub samples: u64,
     /// Checks.
@@ -84,6 +88,10 @@ pub struct FleetRow {
     pub raised: [u64; 3],
     /// `ok`, or what stopped the feed.
     pub status: String,
+    /// The channel's whole replay summary, for one channel of a file of many sensors
+    /// (`replay --summary`); absent in `fleet`'s table.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub summary: Option<serde_json::Value>,
 }
 
 fn feeds(dir: &Path) -> anyhow::Result<Vec<PathBuf>> {
@@ -106,6 +114,7 @@ impl FleetRow {
     pub fn failed(file: String, status: String) -> FleetRow {
         FleetRow {
             file,
+            channel: None,
             samples: 0,
             checks: 0,
             rung: String::new(),
@@ -118,6 +127,7 @@ impl FleetRow {
             alarms: 0,
             raised: [0; 3],
             status,
+            summary: None,
         }
     }
 
@@ -133,6 +143,7 @@ impl FleetRow {
         ];
         FleetRow {
             file,
+            channel: None,
             samples: count(&s["samples"]),
             checks: count(&s["checks"]),
             rung: s["rung"].as_str().unwrap_or("").into(),
@@ -148,6 +159,15 @@ impl FleetRow {
                 Some(error) => error.to_string(),
                 None => "ok".into(),
             },
+            summary: None,
+        }
+    }
+
+    /// What names the row in messages: the channel when there is one, else the file.
+    pub fn label(&self) -> String {
+        match &self.channel {
+            Some(channel) => format!("channel {channel}"),
+            None => self.file.clone(),
         }
     }
 }
@@ -183,16 +203,22 @@ fn cell(value: Option<f64>, digits: usize) -> String {
         .unwrap_or_else(|| "-".into())
 }
 
-/// The rows as an aligned text table.
+/// The rows as an aligned text table (the first column names the channel when the rows
+/// are the channels of one file, the file otherwise).
 pub fn table(rows: &[FleetRow]) -> String {
+    let first = if rows.iter().any(|r| r.channel.is_some()) {
+        "channel"
+    } else {
+        "file"
+    };
     let header = [
-        "file", "samples", "checks", "rung", "k", "k_se", "gain", "offset", "switches", "warnings",
+        first, "samples", "checks", "rung", "k", "k_se", "gain", "offset", "switches", "warnings",
         "alarms", "status",
     ];
     let mut lines: Vec<Vec<String>> = vec![header.iter().map(|s| s.to_string()).collect()];
     for row in rows {
         lines.push(vec![
-            row.file.clone(),
+            row.channel.clone().unwrap_or_else(|| row.file.clone()),
             row.samples.to_string(),
             row.checks.to_string(),
             row.rung.clone(),
@@ -276,14 +302,22 @@ pub fn run(args: FleetArgs) -> anyhow::Result<ExitCode> {
         out.write_all(b"\n")?;
         out.flush()?;
     }
+    Ok(exit_status(&rows, args.fail_on))
+}
+
+/// How a run over channels ends, once every channel ran and every output was written: the
+/// channels that could not be read are listed on standard error and the exit code is 2;
+/// otherwise 1 when an event reached `--fail-on` on any channel; otherwise success.
+/// `fleet` and `replay` on a file of many sensors both end here.
+pub fn exit_status(rows: &[FleetRow], fail_on: Option<FailOn>) -> ExitCode {
     if rows.iter().any(|row| row.status != "ok") {
         for row in rows.iter().filter(|row| row.status != "ok") {
-            eprintln!("steadycal: {}: {}", row.file, row.status);
+            eprintln!("steadycal: {}: {}", row.label(), row.status);
         }
-        return Ok(exit_bad_input());
+        return exit_bad_input();
     }
-    if rows.iter().any(|row| reaches(&row.raised, args.fail_on)) {
-        return Ok(exit_alarms());
+    if rows.iter().any(|row| reaches(&row.raised, fail_on)) {
+        return exit_alarms();
     }
-    Ok(ExitCode::SUCCESS)
+    ExitCode::SUCCESS
 }

@@ -1,6 +1,10 @@
 //! Reading a log as a logger wrote it: any one-byte separator, a decimal comma, the time in
 //! one column or spread over several (joined with one space), any [`TimeReader`] form,
-//! missing markers, one or several sensor columns, a channel column.
+//! missing markers, one or several sensor columns, a channel column. A reader may keep only
+//! the rows of one channel of a long file ([`LogLayout::only_channel`]); the others are
+//! passed over without reading their cells. [`LogReader::next_shape`] reads what a file of
+//! many channels holds (the channel names, rows without any sensor value) without parsing
+//! numbers.
 //!
 //! Records are split by the `csv` crate (the one the canonical reader's tests compare
 //! against). A row whose every cell is blank (a spreadsheet's trailing `;;;;` rows) is
@@ -42,6 +46,9 @@ pub struct LogLayout {
     pub temperature: Option<String>,
     /// Channel column of a long file.
     pub channel: Option<String>,
+    /// Keep only the rows whose channel cell is this name (the channel column must be
+    /// set); the other rows are passed over unread and take no row index.
+    pub only_channel: Option<String>,
     /// Missing markers.
     pub missing: MissingMarkers,
 }
@@ -58,9 +65,25 @@ impl Default for LogLayout {
             reference_required: false,
             temperature: Some("temp".into()),
             channel: None,
+            only_channel: None,
             missing: MissingMarkers::default(),
         }
     }
+}
+
+/// What one row of a file of many channels holds, read without parsing numbers
+/// ([`LogReader::next_shape`]).
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct RowShape {
+    /// 1-based line.
+    pub line: u64,
+    /// The channel cell (trimmed; empty without a channel column).
+    pub channel: String,
+    /// Every sensor column of the layout holds a missing marker (false without sensor
+    /// columns).
+    pub no_sensor_value: bool,
+    /// The reference cell holds something other than a missing marker.
+    pub has_reference: bool,
 }
 
 /// One row of a log.
@@ -99,6 +122,7 @@ pub struct LogReader {
     record: csv::ByteRecord,
     columns: Columns,
     time: TimeReader,
+    only_channel: Option<String>,
     missing: MissingMarkers,
     decimal_comma: bool,
     text: String,
@@ -217,6 +241,7 @@ impl LogReader {
                 channel,
             },
             time: layout.time_reader.clone(),
+            only_channel: layout.only_channel.clone(),
             missing: layout.missing.clone(),
             decimal_comma: layout.decimal_comma,
             text: String::new(),
@@ -266,8 +291,9 @@ impl LogReader {
         }
     }
 
-    /// Reads the next row into `row`; `None` at the end.
-    pub fn next_row<T: FeedFloat>(&mut self, row: &mut LogRow<T>) -> Option<Result<(), FeedError>> {
+    /// Reads the next record that is not blank (blank ones are counted); `None` at the end,
+    /// `Some(Err)` for a record the CSV reader refuses (its line named).
+    fn next_record(&mut self) -> Option<Result<(), FeedError>> {
         loop {
             match self.reader.read_byte_record(&mut self.record) {
                 Ok(false) => return None,
@@ -295,7 +321,56 @@ impl LogReader {
                 self.blank_rows += 1;
                 continue;
             }
-            break;
+            return Some(Ok(()));
+        }
+    }
+
+    /// The trimmed text of cell `index` of the current record (empty when absent or not
+    /// UTF-8).
+    fn cell_text(&self, index: usize) -> &str {
+        std::str::from_utf8(self.record.get(index).unwrap_or(b""))
+            .unwrap_or("")
+            .trim()
+    }
+
+    /// What the next row holds (channel cell, whether every sensor cell and the reference
+    /// cell are missing markers), without parsing numbers or times; `None` at the end.
+    /// Nothing is counted in the tallies.
+    pub fn next_shape(&mut self) -> Option<Result<RowShape, FeedError>> {
+        if let Err(error) = self.next_record()? {
+            return Some(Err(error));
+        }
+        let line = self.record.position().map(|p| p.line()).unwrap_or(0);
+        let columns = &self.columns;
+        let missing = |i: usize| self.missing.is_missing(self.cell_text(i));
+        Some(Ok(RowShape {
+            line,
+            channel: columns
+                .channel
+                .map(|i| self.cell_text(i).to_string())
+                .unwrap_or_default(),
+            no_sensor_value: !columns.raw.is_empty()
+                && columns.raw.iter().all(|&(i, _)| missing(i)),
+            has_reference: columns
+                .reference
+                .as_ref()
+                .is_some_and(|&(i, _)| !missing(i)),
+        }))
+    }
+
+    /// Reads the next row into `row`; `None` at the end.
+    pub fn next_row<T: FeedFloat>(&mut self, row: &mut LogRow<T>) -> Option<Result<(), FeedError>> {
+        loop {
+            if let Err(error) = self.next_record()? {
+                return Some(Err(error));
+            }
+            let wanted = match (&self.only_channel, self.columns.channel) {
+                (Some(name), Some(index)) => self.cell_text(index) == name,
+                _ => true,
+            };
+            if wanted {
+                break;
+            }
         }
         let line = self.record.position().map(|p| p.line()).unwrap_or(0);
         row.line = line;
@@ -551,6 +626,46 @@ mod tests {
         };
         let out = rows("t,id,raw\n0,a,1\n0,b,2\n", &layout);
         assert_eq!(out[1].as_ref().unwrap().channel, "b");
+    }
+
+    #[test]
+    fn one_channel_of_a_long_file_and_the_shape_of_rows() {
+        let layout = LogLayout {
+            channel: Some("id".into()),
+            only_channel: Some("b".into()),
+            ..LogLayout::default()
+        };
+        let out = rows("t,id,raw\n0,a,x\n0,b,2\n1,a,3\n1, b ,4\n", &layout);
+        let got: Vec<(f64, Option<f64>, u64, u64)> = out
+            .iter()
+            .map(|r| {
+                let r = r.as_ref().unwrap();
+                (r.t, r.raw[0], r.line, r.index)
+            })
+            .collect();
+        assert_eq!(got, [(0.0, Some(2.0), 3, 0), (1.0, Some(4.0), 5, 1)]);
+        let layout = LogLayout {
+            raw: vec!["s1".into(), "s2".into()],
+            missing: MissingMarkers::new(&["-200"]).unwrap(),
+            ..LogLayout::default()
+        };
+        let mut r = reader(
+            "t,s1,s2,ref\n0,1,NA,\n1,-200,,5\n,,,\n2,x,-200,NA\n",
+            &layout,
+        )
+        .unwrap();
+        let shapes: Vec<(u64, bool, bool)> = std::iter::from_fn(|| r.next_shape())
+            .map(|s| {
+                let s = s.unwrap();
+                (s.line, s.no_sensor_value, s.has_reference)
+            })
+            .collect();
+        assert_eq!(
+            shapes,
+            [(2, false, false), (3, true, true), (5, false, false)]
+        );
+        assert_eq!(r.blank_rows, 1);
+        assert_eq!(r.tally.column_total("s1"), 0);
     }
 
     #[test]

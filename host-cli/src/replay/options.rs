@@ -48,6 +48,10 @@ pub struct ReplayOptions {
     pub range_source: &'static str,
     /// Snapshots and device logs: resume, save, input format, log output.
     pub persist: PersistOptions,
+    /// The channel's name, when this run is one channel of a file of many sensors: every
+    /// event, reading and check row then starts with it (`channel`), and the outputs are
+    /// appended to, after the header the caller wrote (`sink::channel_headers`).
+    pub channel: Option<String>,
     /// Parse the CSV on a second thread (default). `fleet` turns it off: there the
     /// channels run in parallel, one thread each. The results are the same either way.
     pub pipelined: bool,
@@ -105,6 +109,7 @@ impl ReplayOptions {
             warnings: true,
             range_source: "default",
             persist: PersistOptions::default(),
+            channel: None,
             pipelined: true,
         }
     }

@@ -26,6 +26,7 @@ use crate::replay::sink::checks::ChecksSink;
 use crate::replay::sink::events::EventsSink;
 use crate::replay::sink::readings::ReadingsSink;
 use crate::replay::sink::summary::write_summary;
+use crate::replay::sink::ChannelPrefix;
 use crate::replay::time_order::{TimeStep, LIST_LIMIT};
 use crate::snapshot_file;
 
@@ -124,20 +125,21 @@ impl<'a, R: Real + Display> Run<'a, R> {
             .as_deref()
             .map(|path| create_output(path).and_then(|out| Ok(DeviceLogWriter::<R>::new(out)?)))
             .transpose()?;
+        let prefix = ChannelPrefix::new(options.channel.as_deref());
         let events_out = options
             .events
             .as_deref()
-            .map(EventsSink::create)
+            .map(|path| EventsSink::create(path, &prefix))
             .transpose()?;
         let readings_out = options
             .readings
             .as_deref()
-            .map(ReadingsSink::create)
+            .map(|path| ReadingsSink::create(path, &prefix))
             .transpose()?;
         let checks_out = options
             .checks
             .as_deref()
-            .map(ChecksSink::create)
+            .map(|path| ChecksSink::create(path, &prefix))
             .transpose()?;
         let census = {
             // The configuration in force: a resumed snapshot's own.

@@ -110,7 +110,12 @@ fn run_typed<R: FeedFloat + std::fmt::Display>(
     options: &ReplayOptions,
 ) -> Result<(ReplayResult, FieldTally)> {
     let samples = Samples::<R>::open(plan, options)?;
-    let file = options.feed.display().to_string();
+    // Warnings name the channel of a file of many sensors (the summary's `file` is the
+    // file's own name, set by the caller).
+    let file = match &options.channel {
+        Some(channel) => format!("{}[{channel}]", options.feed.display()),
+        None => options.feed.display().to_string(),
+    };
     let (sender, receiver) = std::sync::mpsc::sync_channel::<Vec<FieldSample<R>>>(8);
     std::thread::scope(|scope| {
         let reader = scope.spawn(move || {

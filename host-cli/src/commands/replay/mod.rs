@@ -11,6 +11,7 @@ use super::{
 };
 use crate::replay::{self, InputFormat, PersistOptions, ReplayOptions};
 
+mod channels;
 mod field_run;
 
 /// Arguments of `replay`.
@@ -152,6 +153,9 @@ pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
             time_given,
             &missing,
         )?;
+        if plan.channels.is_some() {
+            return channels::run(&args, options, &plan);
+        }
         let result = with_report(&args, &mut options, |options| {
             field_run::run(&args, options, &plan)
         })?;
@@ -211,6 +215,14 @@ fn parquet_run(
         ("--decimal-comma", field.decimal_comma),
         ("--save-config", field.save_config.is_some()),
         ("--reference", args.reference.reference.is_some()),
+        ("--channel-column", field.channel_column.is_some()),
+        (
+            "--raw-column with several names",
+            args.columns
+                .raw_column
+                .as_deref()
+                .is_some_and(|c| c.contains(',')),
+        ),
     ];
     if let Some((name, _)) = text_only.iter().find(|(_, given)| *given) {
         anyhow::bail!(

@@ -10,20 +10,23 @@ use steadycal_core::monitor::Monitor;
 use steadycal_core::real::Real;
 use steadycal_core::sample::{Flags, Outcome, Sample};
 
-use crate::io::create_output;
+use super::ChannelPrefix;
 use crate::report::checks::{before, write_row, Before, HEADER};
 
 /// The checks output of a run.
 pub struct ChecksSink {
     out: Box<dyn Write>,
+    prefix: ChannelPrefix,
 }
 
 impl ChecksSink {
-    /// Creates the output (`-` is standard output) and writes the header.
-    pub fn create(path: &Path) -> Result<Self> {
-        let mut out = create_output(path)?;
-        writeln!(out, "{HEADER}")?;
-        Ok(ChecksSink { out })
+    /// Creates the output (`-` is standard output) and writes the header; or appends to it
+    /// for one channel of a file of many (each row then starts with the channel).
+    pub fn create(path: &Path, prefix: &ChannelPrefix) -> Result<Self> {
+        Ok(ChecksSink {
+            out: super::open(path, prefix, Some(HEADER))?,
+            prefix: prefix.clone(),
+        })
     }
 
     /// What the row of `sample` needs from the monitor before it is pushed (`None`: the
@@ -44,6 +47,9 @@ impl ChecksSink {
     ) -> std::io::Result<()> {
         if outcome.flags.contains(Flags::REJECTED) {
             return Ok(());
+        }
+        if !self.prefix.is_empty() {
+            self.out.write_all(&self.prefix.row)?;
         }
         write_row(self.out.as_mut(), monitor, sample, before)
     }

@@ -16,7 +16,7 @@ use serde_json::Value;
 use steadycal_core::event::{Event, FieldValue};
 use steadycal_core::real::Real;
 
-use crate::io::create_output;
+use super::ChannelPrefix;
 use crate::number::shortest_f64;
 use crate::stack_buffer::StackBuffer;
 
@@ -79,23 +79,49 @@ pub fn write_event<R: Real + Display>(
     Ok(())
 }
 
+/// Writes one event's JSON object with `"channel":NAME` first (`prefix` is
+/// [`ChannelPrefix::event`]), no newline.
+pub fn write_channel_event<R: Real + Display>(
+    out: &mut dyn Write,
+    prefix: &[u8],
+    event: &Event<R>,
+    t: f64,
+) -> std::io::Result<()> {
+    let line = EventLine { event, t };
+    let mut buffer = StackBuffer::<LINE_BYTES>::default();
+    if serde_json::to_writer(&mut buffer, &line).is_ok() {
+        out.write_all(prefix)?;
+        return out.write_all(&buffer.as_bytes()[1..]);
+    }
+    let mut text = serde_json::to_vec(&line)?;
+    text.splice(0..1, prefix.iter().copied());
+    out.write_all(&text)
+}
+
 /// The events output of a run: one line per event.
 pub struct EventsSink {
     out: Box<dyn Write>,
+    prefix: ChannelPrefix,
 }
 
 impl EventsSink {
-    /// Creates the output (`-` is standard output).
-    pub fn create(path: &Path) -> Result<Self> {
+    /// Creates the output (`-` is standard output), or appends to it for one channel of a
+    /// file of many (each line then starts with the channel).
+    pub fn create(path: &Path, prefix: &ChannelPrefix) -> Result<Self> {
         Ok(EventsSink {
-            out: create_output(path)?,
+            out: super::open(path, prefix, None)?,
+            prefix: prefix.clone(),
         })
     }
 
     /// Writes one event's line.
     #[inline]
     pub fn write<R: Real + Display>(&mut self, event: &Event<R>, t: f64) -> std::io::Result<()> {
-        write_event(self.out.as_mut(), event, t)?;
+        if self.prefix.is_empty() {
+            write_event(self.out.as_mut(), event, t)?;
+        } else {
+            write_channel_event(self.out.as_mut(), &self.prefix.event, event, t)?;
+        }
         self.out.write_all(b"\n")
     }
 
@@ -161,6 +187,23 @@ mod tests {
             serde_json::from_slice(&direct).unwrap(),
             serde_json::from_slice(&built).unwrap(),
         )
+    }
+
+    #[test]
+    fn a_channel_comes_first() {
+        let mut line = Vec::new();
+        let kind = EventKind::SpreadTracksLevel {
+            k: 1.0f64,
+            k_low: 0.5,
+            k_high: 1.5,
+        };
+        let prefix = ChannelPrefix::new(Some("cell \"B\""));
+        write_channel_event(&mut line, &prefix.event, &Event { seq: 3, kind }, 2.0).unwrap();
+        assert_eq!(
+            String::from_utf8(line).unwrap(),
+            r#"{"channel":"cell \"B\"","seq":3,"t":2.0,"kind":"spread_tracks_level","k":1.0,"k_low":0.5,"k_high":1.5}"#
+        );
+        assert_eq!(prefix.row, b"\"cell \"\"B\"\"\",");
     }
 
     #[test]

@@ -11,7 +11,7 @@ use steadycal_core::real::Real;
 use steadycal_core::sample::{Outcome, Sample};
 use steadycal_core::transform::Rung;
 
-use crate::io::create_output;
+use super::ChannelPrefix;
 
 /// The header line.
 pub const HEADER: &str = "seq,t,raw,value,standard_uncertainty,expanded_uncertainty,rung,flags";
@@ -19,14 +19,17 @@ pub const HEADER: &str = "seq,t,raw,value,standard_uncertainty,expanded_uncertai
 /// The readings output of a run.
 pub struct ReadingsSink {
     out: Box<dyn Write>,
+    prefix: ChannelPrefix,
 }
 
 impl ReadingsSink {
-    /// Creates the output (`-` is standard output) and writes the header.
-    pub fn create(path: &Path) -> Result<Self> {
-        let mut out = create_output(path)?;
-        writeln!(out, "{HEADER}")?;
-        Ok(ReadingsSink { out })
+    /// Creates the output (`-` is standard output) and writes the header; or appends to it
+    /// for one channel of a file of many (each row then starts with the channel).
+    pub fn create(path: &Path, prefix: &ChannelPrefix) -> Result<Self> {
+        Ok(ReadingsSink {
+            out: super::open(path, prefix, Some(HEADER))?,
+            prefix: prefix.clone(),
+        })
     }
 
     /// Writes the row of a sample without a reference (samples with one are checks, not
@@ -40,6 +43,9 @@ impl ReadingsSink {
     ) -> std::io::Result<()> {
         if sample.reference.is_some() {
             return Ok(());
+        }
+        if !self.prefix.is_empty() {
+            self.out.write_all(&self.prefix.row)?;
         }
         write_reading(self.out.as_mut(), sample, outcome, rung)
     }
