@@ -460,3 +460,32 @@ fn fleet_exits_2_when_one_feed_cannot_be_read_after_writing_the_others() {
     assert_eq!(table.lines().count(), 4);
     assert!(table.starts_with("file,samples,checks,"));
 }
+
+#[test]
+fn options_about_one_channel_are_refused_by_name() {
+    let dir = scratch("refused");
+    let feed = small_wide(&dir, &small_body(30, reading));
+    let failure = |args: &[&str]| -> String {
+        let output = steadycal()
+            .arg("replay")
+            .args(args)
+            .assert()
+            .code(2)
+            .get_output()
+            .clone();
+        String::from_utf8(output.stderr).unwrap()
+    };
+    let feed = feed.to_str().unwrap();
+    assert_eq!(
+        failure(&[feed, "--raw-column", "a,b", "--report", "r.html"]),
+        "steadycal: --report is about one channel; a file of many sensors runs one monitor per channel (replay one channel's column alone to use --report)\n"
+    );
+    assert_eq!(
+        failure(&["-", "--raw-column", "a,b"]),
+        "steadycal: -: a file of many sensors is read once per channel: give a file, not standard input\n"
+    );
+    assert_eq!(
+        failure(&[feed, "--raw-column", "a,b", "--channel-column", "id"]),
+        "steadycal: --channel-column: give either several sensor columns (--raw-column s1,s2: a wide file) or a channel column (a long file), not both\n"
+    );
+}

@@ -24,7 +24,8 @@ mod field_run;
     "  steadycal replay logger.csv --raw-column counts --ref-column cal_gas --skip-bad-rows\n",
     "  steadycal replay first.csv --save-snapshot state.bin && steadycal replay rest.csv --resume state.bin\n",
     "  steadycal replay board.log --summary summary.json   (a device log, detected by content)\n",
-    "  steadycal replay feed.parquet --raw-column counts --missing=-9999 --summary -",
+    "  steadycal replay feed.parquet --raw-column counts --missing=-9999 --summary -\n",
+    "  steadycal replay platform.csv --raw-column cell_a,cell_b,cell_c --summary -   (one monitor per sensor)",
 )))]
 pub struct ReplayArgs {
     /// Feed to replay: CSV with a header naming `raw` and optionally `t` (seconds or RFC
@@ -215,15 +216,19 @@ fn parquet_run(
         ("--decimal-comma", field.decimal_comma),
         ("--save-config", field.save_config.is_some()),
         ("--reference", args.reference.reference.is_some()),
-        ("--channel-column", field.channel_column.is_some()),
-        (
-            "--raw-column with several names",
-            args.columns
-                .raw_column
-                .as_deref()
-                .is_some_and(|c| c.contains(',')),
-        ),
     ];
+    let many = field.channel_column.is_some()
+        || args
+            .columns
+            .raw_column
+            .as_deref()
+            .is_some_and(|c| c.contains(','));
+    if many {
+        anyhow::bail!(
+            "{}: many sensors in one file (several --raw-column names, --channel-column) are read from CSV logs, not from Parquet; replay one sensor column at a time",
+            options.feed.display()
+        );
+    }
     if let Some((name, _)) = text_only.iter().find(|(_, given)| *given) {
         anyhow::bail!(
             "{}: {name} does not apply to a Parquet feed (its columns carry their types: numbers, or timestamps for the time column)",
