@@ -1,6 +1,7 @@
 //! `steadycal assess` end to end: chosen weights, known uncertainties from named columns,
-//! renamed columns and the level origin in the JSON document; bad uncertainty cells refused
-//! with file, line and column. Inputs are written by the tests (invented).
+//! renamed columns, the level origin and the DIN 32645 blank method in the JSON document; bad
+//! uncertainty cells refused with file, line and column. Inputs are written by the tests
+//! (invented).
 
 mod common;
 
@@ -170,4 +171,69 @@ fn missing_markers_leave_checks_out_and_are_counted() {
         stderr.contains("1 row(s) with a reference but a missing `raw` were left out"),
         "{stderr}"
     );
+}
+
+#[test]
+fn blank_readings_give_the_din32645_blank_method() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("lab.csv");
+    let mut text = String::from("t,raw,ref\n");
+    let blanks = [0.98, 1.03, 1.01, 0.97, 1.02];
+    let standards = [
+        (1.0, 3.02),
+        (2.0, 4.97),
+        (3.0, 7.05),
+        (4.0, 8.96),
+        (5.0, 11.03),
+    ];
+    let rows = blanks
+        .iter()
+        .map(|raw| (0.0, *raw))
+        .chain(standards.iter().copied());
+    for (i, (reference, raw)) in rows.enumerate() {
+        text.push_str(&format!("{i},{raw},{reference}\n"));
+    }
+    std::fs::write(&path, text).unwrap();
+    let output = steadycal()
+        .arg("assess")
+        .arg(&path)
+        .args(["--json", "--weights", "none"])
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert_eq!(output.status.code(), Some(0), "{stderr}");
+    let json: serde_json::Value = serde_json::from_slice(&output.stdout).unwrap();
+    let blank = &json["limits"]["din32645_blank"];
+    assert_eq!(blank["blank_readings"], 5);
+    assert_eq!(blank["df"], 4);
+    let critical = blank["critical_value"].as_f64().unwrap();
+    assert!(critical > 0.0 && critical < 0.2, "{blank}");
+    // A single blank reading gives no blank method.
+    let single = dir.path().join("single.csv");
+    let whole = std::fs::read_to_string(&path).unwrap();
+    // Keep the header, the first blank and the standards.
+    let lines: Vec<&str> = whole
+        .lines()
+        .enumerate()
+        .filter(|(i, _)| !(2..=5).contains(i))
+        .map(|(_, line)| line)
+        .collect();
+    std::fs::write(&single, lines.join("\n") + "\n").unwrap();
+    let output = steadycal()
+        .arg("assess")
+        .arg(&single)
+        .args(["--json", "--weights", "none"])
+        .output()
+        .unwrap();
+    let json: serde_json::Value = serde_json::from_slice(&output.stdout).unwrap();
+    assert!(json["limits"]["din32645"].is_object());
+    assert!(json["limits"]["din32645_blank"].is_null());
+    let text_output = steadycal()
+        .arg("assess")
+        .arg(&path)
+        .args(["--weights", "none"])
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&text_output.stdout);
+    assert!(text.contains("DIN 32645 blank method"), "{text}");
 }

@@ -26,10 +26,20 @@
 //! printed standard error at y = 3500 to eight digits. The critical value is then a round
 //! trip; the detection limit, the quantification limit and the confidence half-width are
 //! independent checks of the formulas.
+//!
+//! The blank-value method (the standard's *Leerwertmethode*) is checked on the data set's ten
+//! blank signals, which envalysis prints as text (`Blanks: 2003 1901 2212 1976 2279 1853 2165
+//! 2108 2368 1943` in `tests/testthat/_snaps/calibration.md`), with its printed critical value
+//! 0.053 (the "LOD" row of `calibration()`, α = 0.01, one reading; envalysis rounds to three
+//! decimals), and on the blanks of its `neitzel2003` data set (V. Neitzel, CLB Chemie in Labor
+//! und Biotechnik 54(7), 2003, pp. 242–246, as shipped by envalysis: blanks 0.027 … 0.023,
+//! slope 2.48461 printed) with its printed critical value 0.009. envalysis puts the number of
+//! standards where the standard puts the number of blank readings; both are 10 in both data
+//! sets, so the two readings of the formula agree here.
 
 use steadycal_cli::assess::distributions;
 use steadycal_cli::assess::inverse::{inverse_row, InverseModel};
-use steadycal_cli::assess::limits::din32645;
+use steadycal_cli::assess::limits::{din32645, din32645_blank};
 use steadycal_cli::assess::{Basis, CalibrationModel};
 
 /// (a, b, s, x) as described in the module docs.
@@ -107,4 +117,43 @@ fn din32645_worked_example() {
     assert!((half_width - 0.07434261).abs() < 2e-8, "{half_width}");
     assert!((value - half_width - 0.03113656).abs() < 2e-7);
     assert!((value + half_width - 0.17982178).abs() < 2e-7);
+}
+
+#[test]
+fn din32645_blank_method() {
+    // envalysis 0.7.0, tests/testthat/_snaps/calibration.md: the DIN 32645 data set's blanks.
+    let blanks = [
+        2003.0, 1901.0, 2212.0, 1976.0, 2279.0, 1853.0, 2165.0, 2108.0, 2368.0, 1943.0,
+    ];
+    let (_, b, _, _) = line();
+    let blank = din32645_blank(&blanks, b, 0.01, 0.01, 1).unwrap();
+    println!(
+        "DIN 32645 blanks: mean {:.1}, s {:.4}, critical reading {:.2}, critical value {:.6}, detection limit {:.6}",
+        blank.blank_mean,
+        blank.blank_sd,
+        blank.critical_signal,
+        blank.critical_value,
+        blank.detection_limit
+    );
+    assert_eq!(blank.df, 9);
+    assert_eq!(format!("{:.3}", blank.critical_value), "0.053"); // envalysis: LOD 0.053
+                                                                 // The standard's approximation: detection limit twice the critical value for α = β.
+    assert!((blank.detection_limit - 2.0 * blank.critical_value).abs() < 1e-15);
+    // The prediction-interval root with the same t: y_c lies above the blank mean by b·x_c.
+    assert!((blank.critical_signal - blank.blank_mean - b * blank.critical_value).abs() < 1e-9);
+
+    // envalysis 0.7.0, same file: neitzel2003, blanks and slope as printed.
+    let blanks = [
+        0.027, 0.033, 0.041, 0.028, 0.018, 0.022, 0.029, 0.038, 0.024, 0.023,
+    ];
+    let blank = din32645_blank(&blanks, 2.48461, 0.01, 0.01, 1).unwrap();
+    println!(
+        "Neitzel 2003 blanks: critical value {:.6}",
+        blank.critical_value
+    );
+    assert_eq!(format!("{:.3}", blank.critical_value), "0.009"); // envalysis: LOD 0.009
+
+    // Fewer than two blank readings or a zero slope give no limits.
+    assert!(din32645_blank(&[2003.0], b, 0.01, 0.01, 1).is_none());
+    assert!(din32645_blank(&blanks, 0.0, 0.01, 0.01, 1).is_none());
 }

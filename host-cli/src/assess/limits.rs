@@ -31,6 +31,19 @@
 //! These are the definitions of the R package chemCal's `lod(method = "din")` (critical
 //! value with β = 0.5) and `loq()`; `tests/tests/assess_din32645.rs` reproduces the
 //! standard's worked example as published there (0.07, 0.14, 0.212).
+//!
+//! The blank-value method of DIN 32645:2008 ([`Din32645Blank`], the standard's
+//! *Leerwertmethode*) is reported when the run holds at least two readings of the blank
+//! (reference exactly 0): from the SD `s_L` of the `n` blank readings, `f = n − 1`, and the
+//! slope `b` of the OLS line,
+//!
+//! - critical value of the signal `y_c = ȳ_L + s_L · t(1 − α; f) · √(1/m + 1/n)`,
+//! - critical value `x_c = s_L / b · t(1 − α; f) · √(1/m + 1/n)`,
+//! - detection limit `x_d = s_L / b · (t(1 − α; f) + t(1 − β; f)) · √(1/m + 1/n)`.
+//!
+//! The blank method's quantification limit is not reported (no published value to check it
+//! against could be reached). `tests/tests/assess_din32645.rs` reproduces the standard's
+//! blank data as printed by the R package envalysis (critical value 0.053).
 
 use serde::Serialize;
 
@@ -93,6 +106,9 @@ pub struct Limits {
     /// DIN 32645 / ISO 11843-2 calibration-curve limits (`null` unless the calibration mean
     /// is a straight line without a temperature term).
     pub din32645: Option<Din32645>,
+    /// DIN 32645 blank-value limits (`null` unless the run holds two or more blank readings
+    /// and the calibration mean is a straight line without a temperature term).
+    pub din32645_blank: Option<Din32645Blank>,
     /// Limits with one constant σ.
     pub constant_sigma: DetectionLimits,
     /// Limits with σ from the spread model at the low end.
@@ -115,6 +131,7 @@ pub fn limits(
     sigma_basis: String,
     standards: [f64; 2],
     din32645: Option<Din32645>,
+    din32645_blank: Option<Din32645Blank>,
 ) -> Limits {
     let [lowest_standard, highest_standard] = standards;
     let (chosen, headline) = match (&spread_model, prefer_spread_model) {
@@ -128,6 +145,7 @@ pub fn limits(
         sigma_basis,
         lod_extrapolated: lod < lowest_standard,
         din32645,
+        din32645_blank,
         chosen,
         lod,
         loq,
@@ -209,5 +227,68 @@ pub fn din32645(
         critical_value,
         detection_limit,
         quantification_limit,
+    })
+}
+
+/// The DIN 32645 blank-value method (module docs).
+#[derive(Debug, Clone, Serialize)]
+pub struct Din32645Blank {
+    /// Probability of a false positive α (one-sided).
+    pub alpha: f64,
+    /// Probability of a false negative β (one-sided).
+    pub beta: f64,
+    /// Readings averaged into one determination.
+    pub readings_averaged: usize,
+    /// Blank readings `n` (reference exactly 0).
+    pub blank_readings: usize,
+    /// Degrees of freedom `n − 1`.
+    pub df: usize,
+    /// Mean blank reading `ȳ_L`.
+    pub blank_mean: f64,
+    /// SD of the blank readings `s_L`.
+    pub blank_sd: f64,
+    /// Critical value of the reading `y_c`.
+    pub critical_signal: f64,
+    /// Critical value of the net concentration `x_c` (decision limit).
+    pub critical_value: f64,
+    /// Detection limit `x_d`.
+    pub detection_limit: f64,
+}
+
+/// DIN 32645 blank-value limits from the blank readings and the calibration slope (module
+/// docs); `None` with fewer than two blank readings, a zero slope or undefined quantiles.
+pub fn din32645_blank(
+    blanks: &[f64],
+    slope: f64,
+    alpha: f64,
+    beta: f64,
+    readings_averaged: usize,
+) -> Option<Din32645Blank> {
+    let n = blanks.len();
+    if n < 2 || readings_averaged == 0 || !(slope != 0.0 && slope.is_finite()) {
+        return None;
+    }
+    let df = n - 1;
+    let blank_mean = blanks.iter().sum::<f64>() / n as f64;
+    let blank_sd =
+        (blanks.iter().map(|y| (y - blank_mean).powi(2)).sum::<f64>() / df as f64).sqrt();
+    if !blank_sd.is_finite() {
+        return None;
+    }
+    let t_alpha = super::distributions::t_quantile(1.0 - alpha, df as f64)?;
+    let t_beta = super::distributions::t_quantile(1.0 - beta, df as f64)?;
+    let root = (1.0 / readings_averaged as f64 + 1.0 / n as f64).sqrt();
+    let s_x = blank_sd / slope.abs();
+    Some(Din32645Blank {
+        alpha,
+        beta,
+        readings_averaged,
+        blank_readings: n,
+        df,
+        blank_mean,
+        blank_sd,
+        critical_signal: blank_mean + blank_sd * t_alpha * root,
+        critical_value: s_x * t_alpha * root,
+        detection_limit: s_x * (t_alpha + t_beta) * root,
     })
 }

@@ -75,6 +75,19 @@ pub fn metrology_rows(a: &Assessment) -> Vec<(String, String)> {
             ),
         ));
     }
+    if let Some(blank) = &a.limits.din32645_blank {
+        rows.push((
+            format!(
+                "DIN 32645 blank method (n = {}, α = β = {})",
+                blank.blank_readings, blank.alpha
+            ),
+            format!(
+                "critical value {}, detection limit {}",
+                significant(blank.critical_value),
+                significant(blank.detection_limit)
+            ),
+        ));
+    }
     rows.push((
         "coverage".into(),
         format!(
@@ -358,6 +371,18 @@ fn limits_section(out: &mut String, a: &Assessment) {
             significant(din.critical_value),
             significant(din.detection_limit),
             significant(din.quantification_limit)
+        );
+    }
+    if let Some(blank) = &a.limits.din32645_blank {
+        let _ = writeln!(
+            out,
+            "  DIN 32645 blank method ({} blank readings, alpha = beta = {}, m = {}): critical reading {}, critical value {}, detection limit {}",
+            blank.blank_readings,
+            blank.alpha,
+            blank.readings_averaged,
+            significant(blank.critical_signal),
+            significant(blank.critical_value),
+            significant(blank.detection_limit)
         );
     }
 }

@@ -541,18 +541,35 @@ pub(super) fn detection_limits(
         },
         _ => "constant sigma: the OLS residual SD s_y/x".to_string(),
     };
-    let din = if run.parameters == 2 {
-        limits::din32645(
-            &data.reference,
-            ols.residual_sd,
-            ols.params[1],
-            options.din32645_alpha,
-            options.din32645_alpha,
-            3.0,
-            options.readings_averaged,
+    let (din, din_blank) = if run.parameters == 2 {
+        let alpha = options.din32645_alpha;
+        let blanks: Vec<f64> = data
+            .reference
+            .iter()
+            .zip(&data.raw)
+            .filter(|(reference, _)| **reference == 0.0)
+            .map(|(_, raw)| *raw)
+            .collect();
+        (
+            limits::din32645(
+                &data.reference,
+                ols.residual_sd,
+                ols.params[1],
+                alpha,
+                alpha,
+                3.0,
+                options.readings_averaged,
+            ),
+            limits::din32645_blank(
+                &blanks,
+                ols.params[1],
+                alpha,
+                alpha,
+                options.readings_averaged,
+            ),
         )
     } else {
-        None
+        (None, None)
     };
     limits::limits(
         constant_sigma,
@@ -561,6 +578,7 @@ pub(super) fn detection_limits(
         sigma_basis,
         [lowest, highest],
         din,
+        din_blank,
     )
 }
 
