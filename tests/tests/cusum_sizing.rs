@@ -5,8 +5,11 @@
 //! Reference: Lucas & Crosier (1982), "Fast initial response for CUSUM quality control
 //! schemes", Technometrics 24(3), 199–205: two-sided in-control average run lengths for
 //! k = 0.5 of 168 at h = 4 and 465 at h = 5 (the values as quoted in the issue and in
-//! Montgomery's Introduction to Statistical Quality Control, tabular CUSUM ARL table; page
-//! of the original table not checked, from memory).
+//! Montgomery's Introduction to Statistical Quality Control, tabular CUSUM ARL table; from
+//! memory: neither the journal nor an edition of the book could be reached here, so page and
+//! table number are not given; the stored copy of Montgomery & Runger, Applied Statistics
+//! and Probability for Engineers, 3rd ed. (2003), section 16-10, p. 637, recommends the same
+//! design, h = 4 or 5 with k = 1/2, but its table page was not among the stored pages).
 //!
 //! Simulated data are invented, for the tests only: standard normal scores (the core's
 //! `TabularCusum` alone), and an in-control straight-line feed with scatter proportional to

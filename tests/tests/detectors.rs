@@ -183,7 +183,8 @@ fn constant_sigma_cusum_false_alarms_where_steadycal_does_not() {
     // SD ∝ level (2 % of the level), no drift. steadycal's CUSUM sees residuals standardized
     // by the spread model at their level; the comparison CUSUM standardizes the residuals of
     // the ordinary (identity-rung, unweighted) fit by its one global SD. Both use k = 0.5,
-    // h = 5, whose in-control ARL is 465 (Montgomery, from memory).
+    // h = 5, whose in-control ARL is 465 (Montgomery's table, cited and checked by simulation in
+    // cusum_run_lengths_match_montgomery; from memory, the book could not be reached here).
     let started = Instant::now();
     let checks = if FULL { 1_000_000 } else { 100_000 };
     let (rows, _) = generate(&scenario(

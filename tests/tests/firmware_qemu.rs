@@ -174,8 +174,8 @@ mod lines;
 /// Field values for an event of any kind, asked in the order of the core's description:
 /// floats from a list of awkward f32 values (tiny, subnormal, largest, negative zero, not
 /// finite), integers at their type's ends, flags alternating, every name of a set in turn.
-/// (IEEE 754 binary32 limits, from memory; the largest is Rust's `f32::MAX` and 1e-45 rounds
-/// to the smallest subnormal, Rust's `f32::from_bits(1)`.)
+/// (IEEE 754 binary32 limits as Rust 1.95's core library gives them: the largest is
+/// `f32::MAX`, and 1e-45 rounds to the smallest subnormal, `f32::from_bits(1)`.)
 struct Probe(usize);
 
 impl Probe {
