@@ -1,5 +1,5 @@
 //! `defmt::Format` for the types a firmware logs (feature `defmt`): events, samples,
-//! outcomes, readings, flags and rungs.
+//! outcomes, readings, checks' details, flags and rungs.
 //!
 //! Written by hand in this one module, rather than derived on each type, so the modules that
 //! own the types stay untouched. Names are the same as in the event logs (`name()`); an
@@ -11,7 +11,7 @@ use defmt::{write, Format, Formatter};
 use crate::event::{AlarmKind, Direction, Event, EventKind, RejectReason, Severity};
 use crate::monitor::ConfigError;
 use crate::real::Real;
-use crate::sample::{Flags, Outcome, Reading, Sample};
+use crate::sample::{CheckDetail, Flags, Outcome, Reading, Sample};
 use crate::transform::Rung;
 
 macro_rules! by_name {
@@ -70,12 +70,25 @@ impl<R: Real + Format> Format for Reading<R> {
     }
 }
 
+impl<R: Real + Format> Format for CheckDetail<R> {
+    fn format(&self, f: Formatter) {
+        write!(
+            f,
+            "check {} predicted {} residual {} standardized {}",
+            self.rung, self.prediction, self.residual, self.standardized
+        )
+    }
+}
+
 impl<R: Real + Format> Format for Outcome<R> {
     fn format(&self, f: Formatter) {
         write!(
             f,
-            "outcome {} {} new_events={=u8}",
-            self.reading, self.flags, self.new_events
+            "outcome {} {} {} new_events={=u8}",
+            self.reading(),
+            self.check(),
+            self.flags,
+            self.new_events
         )
     }
 }

@@ -26,7 +26,7 @@ use crate::event::{AlarmKind, Event, EventKind, EventQueue, RejectReason, Severi
 use crate::ladder::{LadderConfig, PowerLadder};
 use crate::origin::{BaselineEstimate, LevelOrigin};
 use crate::real::{every, Real};
-use crate::sample::{Flags, Outcome, Reading, Sample};
+use crate::sample::{CheckDetail, Detail, Flags, Outcome, Reading, Sample};
 use crate::spread::{SpreadExponent, SpreadProfile};
 use crate::transform::Rung;
 
@@ -70,7 +70,7 @@ pub struct Counters {
 ///     monitor.push(&Sample::check(i, i as f64, 0.5 + 2.0 * reference, reference));
 /// }
 /// let outcome = monitor.push(&Sample::reading(50, 50.0, 100.5));
-/// let reading = outcome.reading.unwrap();
+/// let reading = outcome.reading().unwrap();
 /// assert!((reading.value - 50.0).abs() < 1e-6);
 /// ```
 #[derive(Clone, Debug, Serialize, Deserialize)]
@@ -104,11 +104,26 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     pub fn new(config: MonitorConfig<R>) -> Result<Self, ConfigError> {
         config.validate(P)?;
         let ladder_config = config.ladder();
-        Ok(Monitor {
+        let ladder = PowerLadder::new(config.basis.len(), &ladder_config, config.initial_rung);
+        let spread = SpreadProfile::new(config.spread());
+        Ok(Self::assemble(config, ladder_config, ladder, spread))
+    }
+
+    /// The monitor of `config` with the parts built from it given and every other part as
+    /// a fresh monitor starts: the one list of the monitor's fields, for [`Monitor::new`]
+    /// and for the blank monitor a snapshot is decoded into (`codec`).
+    #[inline(always)]
+    fn assemble(
+        config: MonitorConfig<R>,
+        ladder_config: LadderConfig<R>,
+        ladder: PowerLadder<R, P>,
+        spread: SpreadProfile<R, BINS>,
+    ) -> Self {
+        Monitor {
             config,
             ladder_config,
-            ladder: PowerLadder::new(config.basis.len(), &ladder_config, config.initial_rung),
-            spread: SpreadProfile::new(config.spread()),
+            ladder,
+            spread,
             mean_check: MeanCheck::new(),
             events: EventQueue::new(),
             counters: Counters::default(),
@@ -118,7 +133,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             detectors: Detectors::new(),
             origin: LevelOrigin::new(config.level_origin, config.find_baseline),
             alarm_flags: Flags::empty(),
-        })
+        }
     }
 
     /// The configuration.
@@ -266,7 +281,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     #[inline(always)]
     fn push_sample(&mut self, sample: &Sample<R>) -> Outcome<R> {
         let mut outcome = Outcome {
-            reading: None,
+            detail: Detail::Nothing,
             flags: Flags::empty(),
             new_events: 0,
         };
@@ -297,7 +312,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         }
         if self.ladder.provisional(&self.ladder_config) {
             outcome.flags.insert(Flags::PROVISIONAL);
-            if outcome.reading.is_some() {
+            if matches!(outcome.detail, Detail::Reading(_)) {
                 self.counters.provisional_readings += 1;
             }
         }
@@ -354,10 +369,17 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             self.reject(sample, RejectReason::Spike, outcome);
             return;
         }
+        let rung = self.ladder.active();
         let step = self
             .ladder
             .update_assessed(&self.ladder_config, &x, sample.raw, assessment);
         self.counters.checks += 1;
+        outcome.detail = Detail::Check(CheckDetail {
+            prediction: step.prediction,
+            residual: step.residual,
+            standardized: step.standardized,
+            rung,
+        });
         // The origin settles by the end of the warm-up (tested first: after it, nothing).
         if !warmed_up && self.origin.due(self.ladder.checks(), self.config.warm_up) {
             self.find_baseline();
@@ -552,7 +574,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         match self.reading(sample.raw, temperature) {
             Some(reading) => {
                 self.counters.readings += 1;
-                outcome.reading = Some(reading);
+                outcome.detail = Detail::Reading(reading);
                 if self.ladder.active().needs_positive()
                     && !(sample.raw > self.ladder_config.level_origin)
                 {
@@ -606,150 +628,4 @@ mod config;
 pub use config::{ConfigError, MonitorConfig};
 
 #[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn default_monitor_fits_in_two_kilobytes() {
-        // Target from the design: Monitor<f32> with defaults (P = 3, 16 bins, 5 rungs,
-        // queue of 8) at most 2048 bytes. The README states the measured figure.
-        let size = core::mem::size_of::<Monitor<f32>>();
-        std::eprintln!("size_of::<Monitor<f32>>() = {size}");
-        assert!(size <= 2048, "{size}");
-    }
-
-    #[test]
-    fn bad_config_names_parameter() {
-        let mut config = MonitorConfig::<f32>::default_for_range(1.0, 100.0);
-        config.forgetting = 1.5;
-        let error = Monitor::<f32>::new(config).unwrap_err();
-        assert_eq!(error.parameter(), "forgetting");
-        let mut config = MonitorConfig::<f32>::default_for_range(100.0, 1.0);
-        config.level_low = 100.0;
-        assert_eq!(
-            Monitor::<f32>::new(config).unwrap_err(),
-            ConfigError::LevelRange
-        );
-    }
-
-    #[test]
-    fn non_finite_samples_are_rejected_without_touching_state() {
-        let config = MonitorConfig::<f32>::default_for_range(1.0, 100.0);
-        let mut monitor: Monitor<f32> = Monitor::new(config).unwrap();
-        for value in [f32::NAN, f32::INFINITY, f32::NEG_INFINITY] {
-            let outcome = monitor.push(&Sample::check(0, 0.0, value, 1.0));
-            assert!(outcome.flags.contains(Flags::REJECTED));
-            let outcome = monitor.push(&Sample::check(0, 0.0, 1.0, value));
-            assert!(outcome.flags.contains(Flags::REJECTED));
-            let outcome = monitor.push(&Sample::reading(0, 0.0, value));
-            assert!(outcome.flags.contains(Flags::REJECTED));
-        }
-        assert_eq!(monitor.counters().checks, 0);
-        assert_eq!(monitor.counters().rejected, 9);
-        // Runs by reason: raw, reference, raw ×2, reference, raw ×2, reference, and an open
-        // run of one raw: 6 events, each with its count.
-        let mut counts = std::vec::Vec::new();
-        while let Some(event) = monitor.pop_event() {
-            if let EventKind::SampleRejected { count, .. } = event.kind {
-                counts.push(count);
-            }
-        }
-        assert_eq!(counts, [1, 1, 2, 1, 2, 1]);
-        assert_eq!(monitor.events_dropped(), 0);
-    }
-
-    fn line_monitor() -> Monitor<f64> {
-        let config = MonitorConfig::<f64>::default_for_range(1.0, 100.0);
-        let mut monitor: Monitor<f64> = Monitor::new(config).unwrap();
-        // A deterministic, slightly noisy line through 400 checks (invented, for the test).
-        for i in 0..400u64 {
-            let reference = 1.0 + (i % 50) as f64 * 2.0;
-            let noise = 0.01 * (((i * 7919) % 13) as f64 - 6.0);
-            monitor.push(&Sample::check(
-                i,
-                i as f64,
-                0.5 + 2.0 * reference + noise,
-                reference,
-            ));
-        }
-        while monitor.pop_event().is_some() {}
-        monitor
-    }
-
-    #[test]
-    fn out_of_range_is_rejected_and_raises() {
-        let mut monitor = line_monitor();
-        // Default physical range for [1, 100]: [-100, 200].
-        let mut raised = false;
-        for i in 0..3u64 {
-            let outcome = monitor.push(&Sample::reading(400 + i, 400.0, 250.0));
-            assert!(outcome.flags.contains(Flags::REJECTED));
-            while let Some(event) = monitor.pop_event() {
-                raised |=
-                    matches!(event.kind, EventKind::SignalOutOfRange { raw, .. } if raw == 250.0);
-            }
-        }
-        assert!(raised);
-        assert_eq!(
-            monitor.raised_alarms()[AlarmKind::SignalOutOfRange.index()],
-            Some(Severity::Alarm)
-        );
-        assert_eq!(monitor.detector_counts().out_of_range, 3);
-    }
-
-    #[test]
-    fn isolated_spike_is_excluded_from_the_fits() {
-        let mut monitor = line_monitor();
-        let before = monitor.ladder().active_fit().parameters();
-        let outcome = monitor.push(&Sample::check(400, 400.0, 150.0, 10.0));
-        assert!(outcome.flags.contains(Flags::REJECTED));
-        assert_eq!(monitor.ladder().active_fit().parameters(), before);
-        assert_eq!(monitor.detector_counts().spikes, 1);
-        // The run of one rejection is raised when the next sample is accepted, by the
-        // rejected sample.
-        assert_eq!(monitor.pop_event(), None);
-        monitor.push(&Sample::check(401, 401.0, 20.5, 10.0));
-        assert_eq!(
-            monitor.pop_event(),
-            Some(Event {
-                seq: 400,
-                kind: EventKind::SampleRejected {
-                    reason: RejectReason::Spike,
-                    count: 1
-                }
-            })
-        );
-    }
-
-    #[test]
-    fn baseline_is_checked_and_used() {
-        let mut monitor = line_monitor();
-        let mut covariance = [[0.0; 4]; 4];
-        covariance[0][0] = f64::NAN;
-        assert_eq!(
-            monitor.set_baseline([0.5, 2.0, 0.0, 0.0], Some(covariance)),
-            Err(BaselineError::NonFinite)
-        );
-        // A baseline 5 % below the true gain: the drift test reports and raises gain_drift.
-        monitor.set_baseline([0.5, 1.9, 0.0, 0.0], None).unwrap();
-        let mut raised = None;
-        for i in 400..600u64 {
-            let reference = 1.0 + (i % 50) as f64 * 2.0;
-            let noise = 0.01 * (((i * 7919) % 13) as f64 - 6.0);
-            monitor.push(&Sample::check(
-                i,
-                i as f64,
-                0.5 + 2.0 * reference + noise,
-                reference,
-            ));
-            while let Some(event) = monitor.pop_event() {
-                if let EventKind::GainDrift { change, .. } = event.kind {
-                    raised = Some(change);
-                }
-            }
-        }
-        let change = raised.expect("gain_drift");
-        assert!((change - (2.0 / 1.9 - 1.0)).abs() < 1e-3, "{change}");
-        assert!(monitor.drift_status().unwrap().gain_signal());
-    }
-}
+mod tests;

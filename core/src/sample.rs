@@ -3,6 +3,9 @@
 //! # Invariants
 //! - A `Sample` may carry any value, NaN and ±∞ included; the monitor screens it.
 //! - An [`Outcome`] with a [`Reading`] always has finite value and uncertainties.
+//! - An [`Outcome`] carries a [`CheckDetail`] exactly when its sample was a check the
+//!   monitor fitted (flag `CHECK` without `REJECTED`); a push makes a reading or a check's
+//!   detail, never both ([`Detail`]).
 
 use serde::{Deserialize, Serialize};
 
@@ -75,6 +78,22 @@ pub struct Reading<R> {
     pub rung: Rung,
 }
 
+/// What the rung in use made of a check the monitor fitted, before the check updated it:
+/// the values the monitor's own check step computed, so that no caller runs the ladder
+/// again to learn them.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct CheckDetail<R> {
+    /// The rung in use's a-priori prediction of the raw value (raw units).
+    pub prediction: R,
+    /// `raw − prediction`.
+    pub residual: R,
+    /// The residual standardized by that rung's spread model at this level, including the
+    /// uncertainty of the prediction; `None` until the fit has a residual variance.
+    pub standardized: Option<R>,
+    /// The rung in use when the check arrived (the one that made the prediction).
+    pub rung: Rung,
+}
+
 /// Bit flags describing what one push did.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
 pub struct Flags(pub u16);
@@ -137,12 +156,45 @@ impl Flags {
 /// What one `Monitor::push` returns.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Outcome<R> {
-    /// The calibrated reading, for a sample without reference that could be inverted.
-    pub reading: Option<Reading<R>>,
+    /// The reading or the check's detail, when the push made one.
+    pub detail: Detail<R>,
     /// What happened.
     pub flags: Flags,
     /// How many events this push appended to the monitor's queue (including dropped ones).
     pub new_events: u8,
 }
+
+impl<R: Copy> Outcome<R> {
+    /// The calibrated reading, for a sample without reference that could be inverted.
+    #[inline]
+    pub fn reading(&self) -> Option<Reading<R>> {
+        match self.detail {
+            Detail::Reading(reading) => Some(reading),
+            _ => None,
+        }
+    }
+
+    /// The check's detail, for a check the monitor fitted.
+    #[inline]
+    pub fn check(&self) -> Option<CheckDetail<R>> {
+        match self.detail {
+            Detail::Check(check) => Some(check),
+            _ => None,
+        }
+    }
+}
+
+/// What a push produced beside its flags and events: a sample is either read or checked,
+/// so one of the two at most (one field keeps [`Outcome`] as small as a reading).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub enum Detail<R> {
+    /// Neither: the sample was rejected, or no reading could be made.
+    Nothing,
+    /// The calibrated reading of a sample without reference.
+    Reading(Reading<R>),
+    /// The detail of a check the monitor fitted.
+    Check(CheckDetail<R>),
+}
+
 // The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
 crate::wire::wire_struct!(impl[R: Real] Sample<R> { seq, t, raw, reference, temperature });

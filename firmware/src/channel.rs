@@ -93,7 +93,7 @@ mod real {
         pub fn push(&mut self, sample: &Sample<f32>) -> Outcome<f32> {
             black_box(sample);
             black_box(Outcome {
-                reading: None,
+                detail: steadycal_core::sample::Detail::Nothing,
                 flags: Default::default(),
                 new_events: 0,
             })

@@ -126,7 +126,7 @@ fn run() -> Result<(), &'static str> {
             digest.add(
                 sample.seq,
                 outcome
-                    .reading
+                    .reading()
                     .map(|r| [r.value, r.standard_uncertainty, r.expanded_uncertainty]),
             );
         }

@@ -150,7 +150,7 @@ fn finish(
     last: Option<steadycal_core::store::SlotInfo>,
 ) -> Result<(), &'static str> {
     use crate::channel::BoardMonitor;
-    use steadycal_core::sample::{Outcome, Sample};
+    use steadycal_core::sample::{Detail, Outcome, Sample};
     use steadycal_core::snapshot::Snapshot;
     use steadycal_core::store::SnapshotStore;
 
@@ -223,21 +223,27 @@ fn finish(
         crcs[0]
     ));
 
-    fn bits(outcome: &Outcome<f32>) -> (Option<[u32; 3]>, u16, u8) {
-        (
-            outcome.reading.map(|r| {
-                [
-                    r.value.to_bits(),
-                    r.standard_uncertainty.to_bits(),
-                    r.expanded_uncertainty.to_bits(),
-                ]
-            }),
-            outcome.flags.0,
-            outcome.new_events,
-        )
+    /// Every bit of an outcome: flags, event count, and the reading or the check's detail.
+    fn bits(outcome: &Outcome<f32>) -> ([u32; 4], u16, u8) {
+        let words = match outcome.detail {
+            Detail::Nothing => [0; 4],
+            Detail::Reading(r) => [
+                1 | (r.rung as u32) << 8,
+                r.value.to_bits(),
+                r.standard_uncertainty.to_bits(),
+                r.expanded_uncertainty.to_bits(),
+            ],
+            Detail::Check(c) => [
+                2 | (c.rung as u32) << 8 | (c.standardized.is_some() as u32) << 16,
+                c.prediction.to_bits(),
+                c.residual.to_bits(),
+                c.standardized.map_or(0, f32::to_bits),
+            ],
+        };
+        (words, outcome.flags.0, outcome.new_events)
     }
     fn same_outcome(a: &Outcome<f32>, b: &Outcome<f32>) -> bool {
-        bits(a) == bits(b) && a.reading.map(|r| r.rung) == b.reading.map(|r| r.rung)
+        bits(a) == bits(b)
     }
     fn same_event(a: &Event<f32>, b: &Event<f32>) -> bool {
         let mut frame = [0u8; steadycal_core::record::MAX_FRAME_LEN];

@@ -96,7 +96,7 @@ fn push_one<'py, R: Column>(
         .map_err(|e| value_error(e.into()))?;
     let out = PyDict::new(py);
     out.set_item("seq", sample.seq)?;
-    let reading = match outcome.reading {
+    let reading = match outcome.reading() {
         Some(r) => {
             let d = PyDict::new(py);
             d.set_item("value", r.value.to_f64())?;

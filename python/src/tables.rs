@@ -87,7 +87,7 @@ impl<R: Column> Readings<R> {
         self.seq.push(sample.seq);
         self.t.push(sample.t);
         self.raw.push(sample.raw);
-        let reading = outcome.reading;
+        let reading = outcome.reading();
         self.value.push(reading.map(|r| r.value));
         self.standard.push(reading.map(|r| r.standard_uncertainty));
         self.expanded.push(reading.map(|r| r.expanded_uncertainty));

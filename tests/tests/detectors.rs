@@ -464,7 +464,7 @@ fn reference_gap_raised_and_cleared_as_configured() {
         for (seq, row) in rows.iter().enumerate() {
             let outcome = monitor.push(&sample(seq, row));
             warned += outcome.flags.contains(Flags::WARNING) as u32;
-            readings += outcome.reading.is_some() as u32;
+            readings += outcome.reading().is_some() as u32;
             while let Some(event) = monitor.pop_event() {
                 events.push(event);
             }

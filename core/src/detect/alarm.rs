@@ -227,11 +227,13 @@ impl AlarmBoard {
     /// `ALARM` and `WARNING` for the severities of the kinds raised now.
     pub fn flags(&self, rules: &AlarmRules) -> Flags {
         let mut flags = Flags::empty();
-        for severity in self.raised_severities(rules).into_iter().flatten() {
-            match severity {
-                Severity::Alarm => flags.insert(Flags::ALARM),
-                Severity::Warn => flags.insert(Flags::WARNING),
-                Severity::Info => {}
+        for kind in AlarmKind::ALL {
+            if self.raised(kind) {
+                match rules.rule(kind).map(|rule| rule.severity) {
+                    Some(Severity::Alarm) => flags.insert(Flags::ALARM),
+                    Some(Severity::Warn) => flags.insert(Flags::WARNING),
+                    Some(Severity::Info) | None => {}
+                }
             }
         }
         flags

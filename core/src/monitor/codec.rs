@@ -3,16 +3,14 @@
 //! `alarm_flags` are not written; a snapshot is decoded into [`Monitor::blank`], whose
 //! values there `complete_restored` replaces.
 
-use super::{ConfigError, Counters, Monitor, MonitorConfig};
-use crate::adequacy::MeanCheck;
+use super::{ConfigError, Monitor, MonitorConfig};
 use crate::basis::Basis;
 use crate::detect::alarm::AlarmRules;
 use crate::detect::cusum::CusumConfig;
 use crate::detect::drift::DriftConfig;
 use crate::detect::screen::ScreenConfig;
 use crate::detect::spread_jump::SpreadJumpConfig;
-use crate::detect::{DetectConfig, Detectors};
-use crate::event::EventQueue;
+use crate::detect::DetectConfig;
 use crate::fit::FitConfig;
 use crate::ladder::{LadderConfig, PowerLadder};
 use crate::real::Real;
@@ -113,73 +111,61 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
             switch_hold: 0,
             decide_every: 0,
         };
-        Monitor {
-            config: MonitorConfig {
-                basis: Basis {
-                    quadratic: false,
-                    temperature: false,
-                    reference_scale: z,
-                    temperature_reference: z,
-                    temperature_scale: z,
-                },
-                forgetting: z,
-                initial_variance: z,
-                level_origin: z,
-                find_baseline: false,
-                level_low: z,
-                level_high: z,
-                warm_up: 0,
-                switch_margin: z,
-                switch_hold: 0,
-                initial_rung: Rung::Identity,
-                spread_threshold: z,
-                spread_every: 0,
-                mean_check_after: 0,
-                mean_check_min_per_bin: 0,
-                mean_check_z: z,
-                interval_z: z,
-                coverage_factor: z,
-                detect: DetectConfig {
-                    screen: ScreenConfig {
-                        raw_low: z,
-                        raw_high: z,
-                        stuck_run: 0,
-                        stuck_window: 0,
-                        stuck_response: z,
-                        spike_bound: z,
-                        spike_run_limit: 0,
-                        reference_gap_seconds: 0.0,
-                    },
-                    cusum: CusumConfig {
-                        reference_value: z,
-                        decision_interval: z,
-                    },
-                    spread_jump: SpreadJumpConfig {
-                        reference_value: z,
-                        decision_interval: z,
-                    },
-                    drift: DriftConfig {
-                        gain_tolerance_percent: z,
-                        offset_tolerance: z,
-                        wald_quantiles: [z; 4],
-                        freeze_after: 0,
-                        every: 0,
-                    },
-                    alarms: AlarmRules::DEFAULT,
-                },
+        let config = MonitorConfig {
+            basis: Basis {
+                quadratic: false,
+                temperature: false,
+                reference_scale: z,
+                temperature_reference: z,
+                temperature_scale: z,
             },
-            ladder_config,
-            ladder: PowerLadder::new(2, &ladder_config, Rung::Identity),
-            spread: SpreadProfile::blank(),
-            mean_check: MeanCheck::new(),
-            events: EventQueue::new(),
-            counters: Counters::default(),
-            spread_raised: false,
-            last_exponent: None,
-            rung_doubted: false,
-            detectors: Detectors::new(),
-            origin: crate::origin::LevelOrigin::new(z, false),
-            alarm_flags: crate::sample::Flags::empty(),
-        }
+            forgetting: z,
+            initial_variance: z,
+            level_origin: z,
+            find_baseline: false,
+            level_low: z,
+            level_high: z,
+            warm_up: 0,
+            switch_margin: z,
+            switch_hold: 0,
+            initial_rung: Rung::Identity,
+            spread_threshold: z,
+            spread_every: 0,
+            mean_check_after: 0,
+            mean_check_min_per_bin: 0,
+            mean_check_z: z,
+            interval_z: z,
+            coverage_factor: z,
+            detect: DetectConfig {
+                screen: ScreenConfig {
+                    raw_low: z,
+                    raw_high: z,
+                    stuck_run: 0,
+                    stuck_window: 0,
+                    stuck_response: z,
+                    spike_bound: z,
+                    spike_run_limit: 0,
+                    reference_gap_seconds: 0.0,
+                },
+                cusum: CusumConfig {
+                    reference_value: z,
+                    decision_interval: z,
+                },
+                spread_jump: SpreadJumpConfig {
+                    reference_value: z,
+                    decision_interval: z,
+                },
+                drift: DriftConfig {
+                    gain_tolerance_percent: z,
+                    offset_tolerance: z,
+                    wald_quantiles: [z; 4],
+                    freeze_after: 0,
+                    every: 0,
+                },
+                alarms: AlarmRules::DEFAULT,
+            },
+        };
+        let ladder = PowerLadder::new(2, &ladder_config, Rung::Identity);
+        Monitor::assemble(config, ladder_config, ladder, SpreadProfile::blank())
     }
 }

@@ -323,63 +323,37 @@ impl serde::Serializer for &mut MaxSize {
     }
 }
 
+// Every compound serializer of `MaxSize` adds up its elements and ends with nothing more:
+// one impl body, written once for each trait (a method with a `$key` also gets the field's
+// name, which costs nothing).
 macro_rules! compound {
-    ($($trait:ident: $method:ident),*) => {$(
+    ($($trait:ident { $($method:ident $(($key:ty))?),+ })*) => {$(
         impl serde::ser::$trait for &mut MaxSize {
             type Ok = ();
             type Error = Never;
-            fn $method<T: ?Sized + serde::Serialize>(&mut self, v: &T) -> Result<(), Never> {
-                v.serialize(&mut **self)
-            }
+            $(
+                fn $method<T: ?Sized + serde::Serialize>(
+                    &mut self,
+                    $(_: $key,)?
+                    v: &T,
+                ) -> Result<(), Never> {
+                    v.serialize(&mut **self)
+                }
+            )+
             fn end(self) -> Result<(), Never> {
                 Ok(())
             }
         }
     )*};
 }
-compound!(SerializeSeq: serialize_element, SerializeTuple: serialize_element,
-    SerializeTupleStruct: serialize_field, SerializeTupleVariant: serialize_field);
-
-impl serde::ser::SerializeMap for &mut MaxSize {
-    type Ok = ();
-    type Error = Never;
-    fn serialize_key<T: ?Sized + serde::Serialize>(&mut self, v: &T) -> Result<(), Never> {
-        v.serialize(&mut **self)
-    }
-    fn serialize_value<T: ?Sized + serde::Serialize>(&mut self, v: &T) -> Result<(), Never> {
-        v.serialize(&mut **self)
-    }
-    fn end(self) -> Result<(), Never> {
-        Ok(())
-    }
-}
-impl serde::ser::SerializeStruct for &mut MaxSize {
-    type Ok = ();
-    type Error = Never;
-    fn serialize_field<T: ?Sized + serde::Serialize>(
-        &mut self,
-        _: &'static str,
-        v: &T,
-    ) -> Result<(), Never> {
-        v.serialize(&mut **self)
-    }
-    fn end(self) -> Result<(), Never> {
-        Ok(())
-    }
-}
-impl serde::ser::SerializeStructVariant for &mut MaxSize {
-    type Ok = ();
-    type Error = Never;
-    fn serialize_field<T: ?Sized + serde::Serialize>(
-        &mut self,
-        _: &'static str,
-        v: &T,
-    ) -> Result<(), Never> {
-        v.serialize(&mut **self)
-    }
-    fn end(self) -> Result<(), Never> {
-        Ok(())
-    }
+compound! {
+    SerializeSeq { serialize_element }
+    SerializeTuple { serialize_element }
+    SerializeTupleStruct { serialize_field }
+    SerializeTupleVariant { serialize_field }
+    SerializeMap { serialize_key, serialize_value }
+    SerializeStruct { serialize_field(&'static str) }
+    SerializeStructVariant { serialize_field(&'static str) }
 }
 
 fn max_size<T: serde::Serialize>(value: &T) -> MaxSize {

@@ -291,10 +291,6 @@ impl<'a, R: Real + Display> Run<'a, R> {
                 sample.temperature.map(R::to_f64),
             );
         }
-        let before = match self.checks_out {
-            Some(_) => ChecksSink::before(&engine.monitor, &sample),
-            None => None,
-        };
         if let Some(log) = self.log_out.as_mut() {
             log.write(&Record::Sample(sample))?;
         }
@@ -312,8 +308,8 @@ impl<'a, R: Real + Display> Run<'a, R> {
         if let Some(out) = self.readings_out.as_mut() {
             out.write(&sample, &outcome, engine.monitor.rung())?;
         }
-        if let (Some(out), Some(before)) = (self.checks_out.as_mut(), before) {
-            out.write(&engine.monitor, &sample, &before, &outcome)?;
+        if let Some(out) = self.checks_out.as_mut() {
+            out.write(&engine.monitor, &sample, &outcome)?;
         }
         Ok(())
     }

@@ -16,8 +16,11 @@
 //! | `value`, `value_u` | the check's raw output read back through the calibration after the check, and its expanded uncertainty (reference units; empty when no reading can be made) |
 //!
 //! # Contract
-//! - Writing never changes the monitor: the a-priori values come from
-//!   [`steadycal_core::ladder::PowerLadder::assess`], which changes nothing.
+//! - Writing never changes the monitor: the a-priori values (`fitted`, `residual`,
+//!   `standardized`, `rung`) are the ones the monitor's check step computed, carried by the
+//!   push's [`steadycal_core::sample::CheckDetail`]; `value` and `value_u` are the
+//!   monitor's reading of the check's raw output after the check (a check makes no
+//!   reading of its own).
 //! - Numbers are written with Rust's shortest round-trip formatting of the run's float type,
 //!   so two runs write identical files.
 //! - Reading a malformed file is an error naming the file, line and column.
@@ -29,7 +32,7 @@ use std::path::Path;
 use anyhow::{bail, Context, Result};
 use steadycal_core::monitor::Monitor;
 use steadycal_core::real::Real;
-use steadycal_core::sample::Sample;
+use steadycal_core::sample::{CheckDetail, Sample};
 
 /// The header line of the per-check table.
 pub const HEADER: &str =
@@ -68,38 +71,17 @@ pub struct CheckRow {
     pub value_u: Option<f64>,
 }
 
-/// What the active rung said about a check before it was pushed.
-#[derive(Clone, Copy, Debug)]
-pub struct Before<R> {
-    prediction: R,
-    standardized: Option<R>,
-    rung: &'static str,
-}
-
-/// The a-priori view of a sample, or `None` when it is not a check.
-pub fn before<R: Real>(monitor: &Monitor<R>, sample: &Sample<R>) -> Option<Before<R>> {
-    let reference = sample.reference.filter(|r| r.is_finite())?;
-    let config = monitor.config();
-    let x: [R; 3] = config.basis.regressors(reference, sample.temperature);
-    let assessment = monitor.ladder().assess(&config.ladder(), &x, sample.raw);
-    Some(Before {
-        prediction: assessment.prediction,
-        standardized: assessment.standardized,
-        rung: monitor.rung().name(),
-    })
-}
-
 fn optional<R: Display>(value: Option<R>) -> String {
     value.map(|v| v.to_string()).unwrap_or_default()
 }
 
-/// Writes the row of a check that the monitor fitted (call after the push, with the
-/// [`before`] view taken just before it).
+/// Writes the row of a check that the monitor fitted: call after the push, with the
+/// check's detail from its outcome.
 pub fn write_row<R: Real + Display>(
     out: &mut dyn Write,
     monitor: &Monitor<R>,
     sample: &Sample<R>,
-    before: &Before<R>,
+    check: &CheckDetail<R>,
 ) -> std::io::Result<()> {
     let reference = sample.reference.unwrap_or(R::ZERO);
     let config = monitor.config();
@@ -109,6 +91,8 @@ pub fn write_row<R: Real + Display>(
     let covariance = fit.parameter_covariance();
     let offset_u = (covariance[0][0] * factors[0] * factors[0]).sqrt();
     let gain_u = (covariance[1][1] * factors[1] * factors[1]).sqrt();
+    // The check's raw read back through the calibration the check left: a reading the
+    // push did not make (a check makes none), so asked for here.
     let reading = monitor.reading(sample.raw, sample.temperature);
     writeln!(
         out,
@@ -117,10 +101,10 @@ pub fn write_row<R: Real + Display>(
         sample.t,
         reference,
         sample.raw,
-        before.prediction,
-        sample.raw - before.prediction,
-        optional(before.standardized),
-        before.rung,
+        check.prediction,
+        check.residual,
+        optional(check.standardized),
+        check.rung.name(),
         params[0],
         offset_u,
         params[1],

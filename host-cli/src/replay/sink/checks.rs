@@ -8,10 +8,10 @@ use std::path::Path;
 use anyhow::Result;
 use steadycal_core::monitor::Monitor;
 use steadycal_core::real::Real;
-use steadycal_core::sample::{Flags, Outcome, Sample};
+use steadycal_core::sample::{Outcome, Sample};
 
 use super::ChannelPrefix;
-use crate::report::checks::{before, write_row, Before, HEADER};
+use crate::report::checks::{write_row, HEADER};
 
 /// The checks output of a run.
 pub struct ChecksSink {
@@ -29,29 +29,21 @@ impl ChecksSink {
         })
     }
 
-    /// What the row of `sample` needs from the monitor before it is pushed (`None`: the
-    /// sample is no check).
-    #[inline]
-    pub fn before<R: Real>(monitor: &Monitor<R>, sample: &Sample<R>) -> Option<Before<R>> {
-        before(monitor, sample)
-    }
-
-    /// Writes the row of a check the monitor accepted.
+    /// Writes the row of a check the monitor fitted (any other sample writes nothing).
     #[inline]
     pub fn write<R: Real + Display>(
         &mut self,
         monitor: &Monitor<R>,
         sample: &Sample<R>,
-        before: &Before<R>,
         outcome: &Outcome<R>,
     ) -> std::io::Result<()> {
-        if outcome.flags.contains(Flags::REJECTED) {
+        let Some(check) = outcome.check() else {
             return Ok(());
-        }
+        };
         if !self.prefix.is_empty() {
             self.out.write_all(&self.prefix.row)?;
         }
-        write_row(self.out.as_mut(), monitor, sample, before)
+        write_row(self.out.as_mut(), monitor, sample, &check)
     }
 
     /// Flushes the output.

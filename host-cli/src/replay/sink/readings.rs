@@ -63,7 +63,7 @@ fn write_reading<R: Real + Display>(
     rung: Rung,
 ) -> std::io::Result<()> {
     let flags: Vec<&str> = outcome.flags.names().collect();
-    match outcome.reading {
+    match outcome.reading() {
         Some(reading) => writeln!(
             out,
             "{},{},{},{},{},{},{},{}",
