@@ -4,6 +4,8 @@
 //! ends, bad cells, invalid UTF-8, wrong field counts, RFC 3339 times, a missing last line
 //! end), read in random small pieces so rows are cut at every place, both give the same
 //! samples bit for bit, the same errors word for word, the same lines and byte positions.
+//! The reference applies the missing-cell rule of the feed format (README, "Feed format"):
+//! an empty or `NA` value cell is missing, and a row whose raw cell is missing is no sample.
 
 use std::io::Read;
 
@@ -13,7 +15,8 @@ use steadycal_cli::feed::{
 };
 use steadycal_core::sample::Sample;
 
-/// The reader as it was before the fast path, kept here as the reference.
+/// The reader as it was before the fast path, kept here as the reference (with the
+/// missing-cell rule added).
 mod reference {
     use super::*;
 
@@ -24,6 +27,7 @@ mod reference {
         names: ColumnNames,
         record: csv::ByteRecord,
         row: u64,
+        pub missing_raw: u64,
     }
 
     pub fn shorten(bytes: &[u8]) -> String {
@@ -99,6 +103,7 @@ mod reference {
                 names: names.clone(),
                 record: csv::ByteRecord::new(),
                 row: 0,
+                missing_raw: 0,
             })
         }
 
@@ -138,23 +143,13 @@ mod reference {
             })
         }
 
-        fn cell<T: FeedFloat>(
-            &self,
-            index: usize,
-            name: &str,
-            optional: bool,
-        ) -> Result<Option<T>, FeedError> {
+        fn cell<T: FeedFloat>(&self, index: usize, name: &str) -> Result<Option<T>, FeedError> {
             let cell = self.record.get(index).unwrap_or(b"");
-            if cell.iter().all(|b| b.is_ascii_whitespace()) {
-                if optional {
-                    return Ok(None);
-                }
-                return Err(FeedError::BadCell {
-                    location: self.location(index + 1),
-                    column: name.to_string(),
-                    expected: "a number (nan and inf are accepted as data)",
-                    found: String::new(),
-                });
+            // The default missing markers: an empty cell and `NA` (any case), trimmed.
+            if std::str::from_utf8(cell)
+                .is_ok_and(|text| text.trim().is_empty() || text.trim().eq_ignore_ascii_case("NA"))
+            {
+                return Ok(None);
             }
             match parse_number(cell) {
                 Some(value) => Ok(Some(value)),
@@ -174,41 +169,46 @@ mod reference {
         }
 
         pub fn next_sample<T: FeedFloat>(&mut self) -> Option<Result<Sample<T>, FeedError>> {
-            match self.reader.read_byte_record(&mut self.record) {
-                Ok(false) => return None,
-                Ok(true) => {}
-                Err(error) => {
-                    self.row += 1;
-                    return Some(Err(csv_error(&self.file, error)));
+            loop {
+                match self.reader.read_byte_record(&mut self.record) {
+                    Ok(false) => return None,
+                    Ok(true) => {}
+                    Err(error) => {
+                        self.row += 1;
+                        return Some(Err(csv_error(&self.file, error)));
+                    }
+                }
+                let seq = self.row;
+                self.row += 1;
+                let [time, raw, reference, temperature] = self.columns;
+                let row = (|| {
+                    let t = match time {
+                        Some(index) => self.time_cell(index)?,
+                        None => seq as f64,
+                    };
+                    let raw = self.cell::<T>(raw.unwrap(), &self.names.raw)?;
+                    let reference = match reference {
+                        Some(index) => self.cell::<T>(index, &self.names.reference)?,
+                        None => None,
+                    };
+                    let temperature = match temperature {
+                        Some(index) => self.cell::<T>(index, &self.names.temperature)?,
+                        None => None,
+                    };
+                    Ok(raw.map(|raw| Sample {
+                        seq,
+                        t,
+                        raw,
+                        reference,
+                        temperature,
+                    }))
+                })();
+                match row {
+                    Ok(Some(sample)) => return Some(Ok(sample)),
+                    Ok(None) => self.missing_raw += 1,
+                    Err(error) => return Some(Err(error)),
                 }
             }
-            let seq = self.row;
-            self.row += 1;
-            let [time, raw, reference, temperature] = self.columns;
-            Some((|| {
-                let t = match time {
-                    Some(index) => self.time_cell(index)?,
-                    None => seq as f64,
-                };
-                let raw = self
-                    .cell::<T>(raw.unwrap(), &self.names.raw, false)?
-                    .unwrap_or(T::NAN);
-                let reference = match reference {
-                    Some(index) => self.cell::<T>(index, &self.names.reference, true)?,
-                    None => None,
-                };
-                let temperature = match temperature {
-                    Some(index) => self.cell::<T>(index, &self.names.temperature, true)?,
-                    None => None,
-                };
-                Ok(Sample {
-                    seq,
-                    t,
-                    raw,
-                    reference,
-                    temperature,
-                })
-            })())
         }
     }
 }
@@ -278,6 +278,7 @@ fn compare<T: FeedFloat + Into<f64>>(
         let a = old.next_sample::<T>().map(seen);
         let b = new.next_sample::<T>().map(seen);
         prop_assert_eq!(&a, &b);
+        prop_assert_eq!(old.missing_raw, new.missing_raw());
         let Some(a) = a else { break };
         prop_assert_eq!(old.line(), new.line());
         prop_assert_eq!(old.bytes_read(), new.bytes_read());
@@ -335,7 +336,8 @@ fn cell() -> impl Strategy<Value = Vec<u8>> {
         1 => prop::sample::select(vec![
             " 1.5", "1.5 ", "\"2.5\"", "\"a,b\"", "\"x\"\"y\"", "nan", "-inf", "abc", "1e5",
             "-.5", "+3", "2026-03-01T00:00:01Z", "2026-03-01T01:00:01+01:00", "\"1\n2\"", " ",
-            "1\"2", "0x1", "1.2.3", "12345678901234567890.5", "\u{e9}",
+            "1\"2", "0x1", "1.2.3", "12345678901234567890.5", "\u{e9}", "NA", "na", " NA ",
+            "NaN", "N/A",
         ]).prop_map(|s| s.as_bytes().to_vec()),
         1 => Just(vec![0xff, b'1']),
         1 => Just(vec![b'1', 0xc3]),

@@ -187,6 +187,7 @@ fn channel(args: &FleetArgs, feed: &Path) -> FleetRow {
     options.precision = args.monitor.precision;
     options.columns = resolved.columns;
     options.baseline = resolved.baseline;
+    options.missing = resolved.missing;
     options.warnings = false;
     // Channels run in parallel on the pool, one thread each: no parser thread per channel,
     // so `--jobs N` keeps N cores busy and no more.

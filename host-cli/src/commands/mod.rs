@@ -172,6 +172,8 @@ pub struct Resolved {
     pub baseline: Option<steadycal_config::Commissioned>,
     /// The column names.
     pub columns: ColumnNames,
+    /// The missing markers: the defaults (empty, `NA`) and the file's `columns.missing`.
+    pub missing: crate::field::missing::MissingMarkers,
 }
 
 /// Reads the config file (if any) and applies the overrides.
@@ -194,10 +196,15 @@ pub fn resolve(
     }
     let channel = file.channel(&name)?;
     let names = column_names(&file, columns);
+    let missing = crate::field::missing::MissingMarkers::new(
+        file.columns.missing.as_deref().unwrap_or_default(),
+    )
+    .map_err(|e| anyhow::anyhow!("{name}: columns.missing: {e}"))?;
     Ok(Resolved {
         config: channel.monitor,
         baseline: channel.baseline,
         columns: names,
+        missing,
     })
 }
 

@@ -14,7 +14,7 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{self, RecvTimeoutError};
-use std::sync::Arc;
+use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant};
 
 use clap::Args;
@@ -27,6 +27,7 @@ use super::{
     MonitorArgs, Resolved,
 };
 use crate::feed::{CsvFeed, FeedError};
+use crate::field::missing::MissingTally;
 use crate::io::create_output;
 use crate::mqtt::service::Setup;
 use crate::precision::Precision;
@@ -127,16 +128,30 @@ where
     let (sender, receiver) = mpsc::sync_channel::<Message<R>>(4096);
     let input = args.input.clone();
     let columns = resolved.columns.clone();
+    let missing = resolved.missing.clone();
     let file = input.display().to_string();
+    // The reader's counts of missing cells, published whenever they change (the engine
+    // thread reads them for the summary, also after Ctrl-C).
+    let counts = Arc::new(Mutex::new((0u64, MissingTally::default())));
+    let published = Arc::clone(&counts);
     std::thread::spawn(move || {
         let mut feed = match CsvFeed::open(&input, &columns) {
-            Ok(feed) => feed,
+            Ok(feed) => feed.with_missing(&missing),
             Err(error) => {
                 let _ = sender.send(Message::Error(error));
                 return;
             }
         };
-        while let Some(next) = feed.next_sample::<R>() {
+        let mut seen = 0;
+        loop {
+            let next = feed.next_sample::<R>();
+            if feed.missing_cells() != seen {
+                seen = feed.missing_cells();
+                if let Ok(mut counts) = published.lock() {
+                    *counts = (feed.missing_raw(), feed.missing_tally());
+                }
+            }
+            let Some(next) = next else { break };
             let message = match next {
                 Ok(sample) => Message::Sample(sample, feed.line()),
                 Err(error) => Message::Error(error),
@@ -239,6 +254,9 @@ where
     if let serde_json::Value::Object(map) = &mut summary {
         map.insert("rows_skipped".into(), serde_json::json!(skipped));
         map.insert("interrupted".into(), serde_json::json!(interrupted));
+        let (missing_raw, missing) = counts.lock().map(|c| c.clone()).unwrap_or_default();
+        map.insert("missing_raw".into(), serde_json::json!(missing_raw));
+        map.insert("missing".into(), serde_json::json!(missing.by_column));
     }
     if let Some(path) = &args.summary {
         let mut out = create_output(path)?;

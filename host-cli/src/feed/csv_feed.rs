@@ -1,6 +1,19 @@
 //! [`CsvFeed`]: the feed reader. It reads the header, finds the columns by name, and turns
 //! each row into a sample by the fast path or, for any other row, by the record reader and
 //! a parse cell by cell that words every error.
+//!
+//! Missing cells: a value cell whose text is a missing marker ([`MissingMarkers`]: empty
+//! and `NA` always, and the markers declared with [`CsvFeed::with_missing`]) holds no value.
+//! A row whose `raw` cell is missing is no sample: it is counted ([`CsvFeed::missing_raw`])
+//! and skipped, its data-row index (`seq`) left unused as in an Arrow source; a missing
+//! `ref` makes the row a reading, a missing `temp` is passed on as absent. Every missing
+//! cell is counted by column and marker ([`CsvFeed::missing_tally`]). A time cell that is
+//! a marker is a bad row, as before. `nan` and `inf` are data, never markers.
+//!
+//! The fast path reads rows with no marker but the empty cell (a number parsed from a
+//! marker's text such as `-200` would be a value there): when numeric markers are
+//! declared, every row takes the general path, which matches a cell's text as the marker
+//! set does.
 
 use std::io::Read;
 use std::path::Path;
@@ -12,6 +25,19 @@ use super::cell::{parse_number, parse_rfc3339, shorten, trim};
 use super::fast_row::{fast_row, Role};
 use super::records::RecordReader;
 use super::{Batch, ColumnNames, FeedError, FeedFloat, Location};
+use crate::field::missing::{MissingMarkers, MissingTally};
+
+/// A value cell of the general path: a number, or the missing marker at this position of
+/// [`MissingMarkers::texts`].
+enum Cell<T> {
+    Value(T),
+    Missing(usize),
+}
+
+/// Value columns in the order their missing cells are counted.
+const RAW: usize = 0;
+const REFERENCE: usize = 1;
+const TEMPERATURE: usize = 2;
 
 #[derive(Clone, Copy, Debug)]
 struct ColumnIndex {
@@ -30,9 +56,16 @@ struct ColumnIndex {
 pub struct CsvFeed<R: Read> {
     reader: RecordReader<R>,
     roles: Box<[Role]>,
+    /// The roles as found in the header (`roles` is emptied to turn the fast path off).
+    header_roles: Box<[Role]>,
     columns: ColumnIndex,
     names: ColumnNames,
     row: u64,
+    missing: MissingMarkers,
+    /// Rows whose raw cell was missing.
+    missing_raw: u64,
+    /// Missing cells: `[raw, ref, temp]` counts per marker of `missing.texts()`.
+    missing_cells: Vec<[u64; 3]>,
 }
 
 impl CsvFeed<Box<dyn Read + Send>> {
@@ -66,6 +99,10 @@ impl<R: Read> CsvFeed<R> {
             },
             names: names.clone(),
             row: 0,
+            header_roles: Box::new([]),
+            missing: MissingMarkers::default(),
+            missing_raw: 0,
+            missing_cells: vec![[0; 3]; MissingMarkers::default().texts().len()],
         };
         feed.reader.read_record()?;
         let header = std::mem::take(&mut feed.reader.record);
@@ -120,8 +157,50 @@ impl<R: Read> CsvFeed<R> {
             // One column under two names: leave every row to the general path.
             Box::new([])
         };
+        feed.header_roles = feed.roles.clone();
         feed.columns = columns;
         Ok(feed)
+    }
+
+    /// Reads `markers` (which hold the defaults, empty and `NA`) as missing cells. With a
+    /// numeric marker every row takes the general path (see the module notes).
+    pub fn with_missing(mut self, markers: &MissingMarkers) -> Self {
+        self.missing = markers.clone();
+        self.missing_cells = vec![[0; 3]; markers.texts().len()];
+        self.roles = if markers.values().is_empty() {
+            self.header_roles.clone()
+        } else {
+            Box::new([])
+        };
+        self
+    }
+
+    /// Rows whose raw cell was missing (no sample), so far.
+    pub fn missing_raw(&self) -> u64 {
+        self.missing_raw
+    }
+
+    /// Missing cells so far, every column and marker together (cheap: to notice a change).
+    pub fn missing_cells(&self) -> u64 {
+        self.missing_cells.iter().flatten().sum()
+    }
+
+    /// Missing cells so far, by column and marker.
+    pub fn missing_tally(&self) -> MissingTally {
+        let mut tally = MissingTally::default();
+        let names = [
+            &self.names.raw,
+            &self.names.reference,
+            &self.names.temperature,
+        ];
+        for (marker, counts) in self.missing.texts().iter().zip(&self.missing_cells) {
+            for (name, &count) in names.iter().zip(counts) {
+                if count > 0 {
+                    tally.add(name, marker, count);
+                }
+            }
+        }
+        tally
     }
 
     /// The file name as given.
@@ -154,6 +233,12 @@ impl<R: Read> CsvFeed<R> {
         self.reader.consume_row(row.len);
         let seq = self.row;
         self.row += 1;
+        // An empty `ref` or `temp` cell (the fast path's only missing cell): counted under
+        // the empty marker, which is the first of every marker set.
+        self.missing_cells[0][REFERENCE] +=
+            u64::from(row.reference.is_none() & self.columns.reference.is_some());
+        self.missing_cells[0][TEMPERATURE] +=
+            u64::from(row.temperature.is_none() & self.columns.temperature.is_some());
         Some(Sample {
             seq,
             t: row.t.unwrap_or(seq as f64),
@@ -211,31 +296,32 @@ impl<R: Read> CsvFeed<R> {
         record: Option<&str>,
         index: usize,
         name: &str,
-        optional: bool,
-    ) -> Result<Option<T>, FeedError> {
-        // Fast path: a number parsed from the record's text. Anything else (blank, bad
-        // text, invalid UTF-8) takes the cell-by-cell path below, which decides and words
-        // the outcome exactly as before.
-        if let Some(value) = self
-            .cell_text(record, index)
-            .and_then(|text| trim(text).parse::<T>().ok())
-        {
-            return Ok(Some(value));
+    ) -> Result<Cell<T>, FeedError> {
+        // Fast path: a number parsed from the record's text, unless numeric markers are
+        // declared (then the text is matched first). Anything else (a marker, bad text,
+        // invalid UTF-8) takes the cell-by-cell path below, which decides and words the
+        // outcome.
+        if let Some(text) = self.cell_text(record, index) {
+            let text = trim(text);
+            if let Ok(value) = text.parse::<T>() {
+                if self.missing.values().is_empty() {
+                    return Ok(Cell::Value(value));
+                }
+                return Ok(match self.missing.index_of(text) {
+                    Some(marker) => Cell::Missing(marker),
+                    None => Cell::Value(value),
+                });
+            }
         }
         let cell = self.reader.record.get(index).unwrap_or(b"");
-        if cell.iter().all(|b| b.is_ascii_whitespace()) {
-            if optional {
-                return Ok(None);
-            }
-            return Err(FeedError::BadCell {
-                location: self.location(index + 1),
-                column: name.to_string(),
-                expected: "a number (nan and inf are accepted as data)",
-                found: String::new(),
-            });
+        if let Some(marker) = std::str::from_utf8(cell)
+            .ok()
+            .and_then(|text| self.missing.index_of(text))
+        {
+            return Ok(Cell::Missing(marker));
         }
         match parse_number(cell) {
-            Some(value) => Ok(Some(value)),
+            Some(value) => Ok(Cell::Value(value)),
             None if std::str::from_utf8(cell).is_err() => Err(FeedError::BadCell {
                 location: self.location(index + 1),
                 column: name.to_string(),
@@ -263,17 +349,24 @@ impl<R: Read> CsvFeed<R> {
     /// The next sample read by the state machine and parsed cell by cell.
     #[inline(never)]
     fn next_general<T: FeedFloat>(&mut self) -> Option<Result<Sample<T>, FeedError>> {
-        match self.reader.read_record() {
-            Ok(false) => return None,
-            Ok(true) => {}
-            Err(error) => {
-                self.row += 1;
-                return Some(Err(error));
+        loop {
+            match self.reader.read_record() {
+                Ok(false) => return None,
+                Ok(true) => {}
+                Err(error) => {
+                    self.row += 1;
+                    return Some(Err(error));
+                }
+            }
+            let seq = self.row;
+            self.row += 1;
+            match self.parse_record(seq) {
+                Ok(Some(sample)) => return Some(Ok(sample)),
+                // A missing raw cell: no sample, the next row.
+                Ok(None) => continue,
+                Err(error) => return Some(Err(error)),
             }
         }
-        let seq = self.row;
-        self.row += 1;
-        Some(self.parse_record(seq))
     }
 
     /// Parses up to `rows` more rows into `batch` (which it does not clear). Returns false
@@ -313,7 +406,9 @@ impl<R: Read> CsvFeed<R> {
         more
     }
 
-    fn parse_record<T: FeedFloat>(&self, seq: u64) -> Result<Sample<T>, FeedError> {
+    /// The sample of the record just read; `None` when its raw cell is missing. Every
+    /// missing cell of the row is counted.
+    fn parse_record<T: FeedFloat>(&mut self, seq: u64) -> Result<Option<Sample<T>>, FeedError> {
         let columns = self.columns;
         let names = &self.names;
         let record = std::str::from_utf8(self.reader.record.as_slice()).ok();
@@ -321,24 +416,36 @@ impl<R: Read> CsvFeed<R> {
             Some(index) => self.time_cell(record, index)?,
             None => seq as f64,
         };
-        let raw = self
-            .cell::<T>(record, columns.raw, &names.raw, false)?
-            .unwrap_or(T::NAN);
+        let raw = self.cell::<T>(record, columns.raw, &names.raw)?;
         let reference = match columns.reference {
-            Some(index) => self.cell::<T>(record, index, &names.reference, true)?,
+            Some(index) => Some(self.cell::<T>(record, index, &names.reference)?),
             None => None,
         };
         let temperature = match columns.temperature {
-            Some(index) => self.cell::<T>(record, index, &names.temperature, true)?,
+            Some(index) => Some(self.cell::<T>(record, index, &names.temperature)?),
             None => None,
         };
-        Ok(Sample {
+        let mut value = |cell: Option<Cell<T>>, column: usize| match cell? {
+            Cell::Value(value) => Some(value),
+            Cell::Missing(marker) => {
+                self.missing_cells[marker][column] += 1;
+                None
+            }
+        };
+        let raw = value(Some(raw), RAW);
+        let reference = value(reference, REFERENCE);
+        let temperature = value(temperature, TEMPERATURE);
+        let Some(raw) = raw else {
+            self.missing_raw += 1;
+            return Ok(None);
+        };
+        Ok(Some(Sample {
             seq,
             t,
             raw,
             reference,
             temperature,
-        })
+        }))
     }
 }
 
@@ -397,6 +504,52 @@ mod tests {
         assert_eq!(first.t, 1_772_323_201.0);
         let error = feed.next_sample::<f64>().unwrap().unwrap_err().to_string();
         assert!(error.starts_with("f.csv:3:2: column `counts`"), "{error}");
+    }
+
+    #[test]
+    fn empty_and_na_cells_are_missing_and_counted() {
+        // Rows 2 and 4 go to the general path (`NA`), the others take the fast path.
+        let text = "t,raw,ref,temp\n0,1,2,20\n1,,3,\n2,NA,,21\n3,4,na,\n4,5,,22\n";
+        let mut feed = feed(text).unwrap();
+        let got: Vec<(u64, f64, Option<f64>, Option<f64>)> =
+            std::iter::from_fn(|| feed.next_sample::<f64>())
+                .map(|s| s.unwrap())
+                .map(|s| (s.seq, s.raw, s.reference, s.temperature))
+                .collect();
+        assert_eq!(
+            got,
+            [
+                (0, 1.0, Some(2.0), Some(20.0)),
+                (3, 4.0, None, None),
+                (4, 5.0, None, Some(22.0))
+            ]
+        );
+        assert_eq!(feed.missing_raw(), 2);
+        let tally = feed.missing_tally();
+        assert_eq!(tally.by_column["raw"][""], 1);
+        assert_eq!(tally.by_column["raw"]["NA"], 1);
+        assert_eq!(tally.by_column["ref"][""], 2);
+        assert_eq!(tally.by_column["ref"]["NA"], 1);
+        assert_eq!(tally.by_column["temp"][""], 2);
+    }
+
+    #[test]
+    fn declared_markers_are_never_values() {
+        let markers = MissingMarkers::new(&["-200", "-9999.9"]).unwrap();
+        let text = "t,raw,ref\n0,1,-200\n1,-200.0,5\n2,-9999.9,\n3,-2e2,7\n4,-199,8\n";
+        let mut feed = feed(text).unwrap().with_missing(&markers);
+        // f32: the marker is matched on the cell's text, not on the f32 value (-9999.9 has
+        // no exact f32).
+        let got: Vec<(u64, f32, Option<f32>)> = std::iter::from_fn(|| feed.next_sample::<f32>())
+            .map(|s| s.unwrap())
+            .map(|s| (s.seq, s.raw, s.reference))
+            .collect();
+        assert_eq!(got, [(0, 1.0, None), (4, -199.0, Some(8.0))]);
+        assert_eq!(feed.missing_raw(), 3);
+        let tally = feed.missing_tally();
+        assert_eq!(tally.by_column["raw"]["-200"], 2);
+        assert_eq!(tally.by_column["raw"]["-9999.9"], 1);
+        assert_eq!(tally.by_column["ref"]["-200"], 1);
     }
 
     #[test]

@@ -78,25 +78,35 @@ impl MissingMarkers {
 
     /// The marker a cell's text matches, if any.
     pub fn marker_of(&self, cell: &str) -> Option<&str> {
+        self.index_of(cell).map(|i| self.texts[i].as_str())
+    }
+
+    /// The position in [`MissingMarkers::texts`] of the marker a cell's text matches.
+    pub fn index_of(&self, cell: &str) -> Option<usize> {
         let text = cell.trim();
-        if let Some(marker) = self.texts.iter().find(|m| m.eq_ignore_ascii_case(text)) {
-            return Some(marker);
+        if let Some(index) = self.texts.iter().position(|m| m.eq_ignore_ascii_case(text)) {
+            return Some(index);
         }
         if self.values.is_empty() {
             return None;
         }
         let value = text.parse::<f64>().ok()?;
-        self.marker_of_value(value)
+        self.index_of_value(value)
     }
 
     /// The numeric marker a parsed value equals, if any.
     pub fn marker_of_value(&self, value: f64) -> Option<&str> {
-        let index = self.values.iter().position(|&v| v == value)?;
-        let wanted = self.values[index];
+        self.index_of_value(value).map(|i| self.texts[i].as_str())
+    }
+
+    /// The position in [`MissingMarkers::texts`] of the numeric marker `value` equals.
+    pub fn index_of_value(&self, value: f64) -> Option<usize> {
+        if !self.values.contains(&value) {
+            return None;
+        }
         self.texts
             .iter()
-            .find(|t| t.parse::<f64>().ok() == Some(wanted))
-            .map(String::as_str)
+            .position(|t| t.parse::<f64>().ok() == Some(value))
     }
 
     /// True when the cell is missing.
@@ -125,14 +135,19 @@ pub struct MissingTally {
 impl MissingTally {
     /// Counts one missing cell.
     pub fn count(&mut self, column: &str, marker: &str) {
+        self.add(column, marker, 1);
+    }
+
+    /// Counts `n` missing cells.
+    pub fn add(&mut self, column: &str, marker: &str, n: u64) {
         let markers = match self.by_column.get_mut(column) {
             Some(markers) => markers,
             None => self.by_column.entry(column.to_string()).or_default(),
         };
         match markers.get_mut(marker) {
-            Some(n) => *n += 1,
+            Some(count) => *count += n,
             None => {
-                markers.insert(marker.to_string(), 1);
+                markers.insert(marker.to_string(), n);
             }
         }
     }

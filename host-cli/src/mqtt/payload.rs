@@ -245,6 +245,7 @@ fn parse_csv<R: FeedFloat>(
     let sample = match feed.next_sample::<R>() {
         Some(Ok(sample)) => sample,
         Some(Err(error)) => return Err(csv_error(error)),
+        None if feed.missing_raw() > 0 => return Err(Malformed::Missing(names.raw.clone())),
         None => {
             return Err(Malformed::Csv(
                 "payload: empty, expected one CSV line".into(),
@@ -357,5 +358,14 @@ mod tests {
         let error = parse::<f64>(b"6,c,abc,1", &format, &names, 1 << 16).unwrap_err();
         assert!(error.to_string().contains("column `raw`"), "{error}");
         assert!(parse::<f64>(b"1,c,2,3\n4,c,5,6", &format, &names, 1 << 16).is_err());
+        // A missing raw cell (empty or NA) is no sample, as in a feed.
+        for line in [&b"7,c,,1"[..], b"7,c,NA,1"] {
+            assert_eq!(
+                parse::<f64>(line, &format, &names, 1 << 16).unwrap_err(),
+                Malformed::Missing("raw".into())
+            );
+        }
+        let na_ref: Parsed<f64> = parse(b"8,c,2,NA", &format, &names, 1 << 16).unwrap();
+        assert_eq!(na_ref.sample.reference, None);
     }
 }

@@ -91,7 +91,7 @@ pub fn replay(options: &ReplayOptions) -> Result<ReplayResult> {
         };
     }
     let input: Box<dyn Read + Send> = Box::new(reader);
-    let feed = CsvFeed::new(file, input, &options.columns)?;
+    let feed = CsvFeed::new(file, input, &options.columns)?.with_missing(&options.missing);
     match (options.precision, options.pipelined) {
         (Precision::F32, true) => pipeline::replay_pipelined::<f32>(feed, options),
         (Precision::F64, true) => pipeline::replay_pipelined::<f64>(feed, options),

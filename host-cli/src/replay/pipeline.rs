@@ -1,7 +1,8 @@
 //! How rows reach the engine: a CSV feed parsed on a second thread and handed over in
 //! batches ([`BATCH_ROWS`], at most [`BATCHES_IN_FLIGHT`] waiting), the same parsed on the
 //! calling thread, or a device log's records. The engine sees the samples one by one in
-//! feed order whichever way they come, so the outputs are identical.
+//! feed order whichever way they come, so the outputs are identical. A CSV run's summary
+//! adds the reader's counts of missing cells (`missing_raw`, `missing`).
 
 use std::fmt::Display;
 use std::io::Read;
@@ -12,6 +13,7 @@ use serde_json::{json, Map, Value};
 use steadycal_core::real::Real;
 
 use crate::feed::{Batch, CsvFeed, FeedFloat, ParsedRow};
+use crate::field::missing::MissingTally;
 use crate::replay::options::{InputFormat, ReplayOptions};
 use crate::replay::run::{ReplayResult, Run};
 
@@ -86,7 +88,7 @@ where
                 );
             }
             if sender.send(batch).is_err() || !more {
-                return census;
+                return (census, feed.missing_raw(), feed.missing_tally());
             }
         });
         for mut batch in receiver {
@@ -95,12 +97,16 @@ where
             }
             let _ = recycle.try_send(batch);
         }
-        match parser.join() {
-            Ok(census) => run.census_counted(census),
+        let (missing_raw, missing) = match parser.join() {
+            Ok((census, missing_raw, missing)) => {
+                run.census_counted(census);
+                (missing_raw, missing)
+            }
             Err(panic) => std::panic::resume_unwind(panic),
-        }
+        };
         run.finish(|map| {
             map.insert("input_format".into(), json!(InputFormat::Csv));
+            missing_entries(map, missing_raw, &missing);
         })
     })
 }
@@ -114,21 +120,39 @@ where
     R: FeedFloat + Display,
 {
     let file = feed.file().to_string();
-    replay_rows::<R>(parsed_rows::<R>(&mut feed), &file, options)
+    let rows = FeedRows::<R> {
+        feed: &mut feed,
+        float: std::marker::PhantomData,
+    };
+    replay_rows_with(rows, &file, options, false, |rows, map| {
+        map.insert("input_format".into(), json!(InputFormat::Csv));
+        missing_entries(map, rows.feed.missing_raw(), &rows.feed.missing_tally());
+    })
+}
+
+/// The summary entries of a CSV feed's missing cells.
+fn missing_entries(map: &mut Map<String, Value>, missing_raw: u64, missing: &MissingTally) {
+    map.insert("missing_raw".into(), json!(missing_raw));
+    map.insert("missing".into(), json!(missing.by_column));
 }
 
 /// The feed's rows, each with its line and the bytes read so far.
-fn parsed_rows<R: FeedFloat>(
-    feed: &mut CsvFeed<Box<dyn Read + Send>>,
-) -> impl Iterator<Item = ParsedRow<R>> + '_ {
-    std::iter::from_fn(move || {
-        let next = feed.next_sample::<R>()?;
+struct FeedRows<'a, R> {
+    feed: &'a mut CsvFeed<Box<dyn Read + Send>>,
+    float: std::marker::PhantomData<R>,
+}
+
+impl<R: FeedFloat> Iterator for FeedRows<'_, R> {
+    type Item = ParsedRow<R>;
+
+    fn next(&mut self) -> Option<ParsedRow<R>> {
+        let next = self.feed.next_sample::<R>()?;
         Some(ParsedRow {
             next,
-            line: feed.line(),
-            bytes: feed.bytes_read(),
+            line: self.feed.line(),
+            bytes: self.feed.bytes_read(),
         })
-    })
+    }
 }
 
 /// Runs parsed rows through the engine and writes the outputs (the engine side of
