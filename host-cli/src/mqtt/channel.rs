@@ -117,8 +117,8 @@ impl<R: Real + Display> Channel<R> {
         self.engine.monitor.counters().samples
     }
 
-    /// True when a redelivered message (the broker's DUP flag) at time `t` was already
-    /// processed: it is not after the last sample's time.
+    /// True when a sample at time `t` was already processed: it is not after the last
+    /// sample's time (time increases within a channel; a broker's DUP flag is no guide).
     pub fn already_seen(&self, t: f64) -> bool {
         self.last_t.is_some_and(|last| t <= last)
     }

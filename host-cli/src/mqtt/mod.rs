@@ -30,7 +30,7 @@ use crate::feed::FeedFloat;
 use crate::precision::Precision;
 use options::{PayloadKind, WatchOptions};
 use payload::PayloadFormat;
-use service::{Service, Settings, Setup};
+use service::{Generation, Service, Settings, Setup};
 use state::StateDir;
 use topics::Topics;
 
@@ -97,8 +97,9 @@ fn serve<R: FeedFloat + Display + 'static>(
         status_period: Duration::from_secs(args.status_seconds),
         quiet,
     };
-    let mut service = Service::<R>::new(client, settings, resolved, state)?;
-    let notes = service::network(connection, Arc::clone(&stop));
+    let generation = Generation::default();
+    let mut service = Service::<R>::new(client, settings, resolved, state, generation.clone())?;
+    let notes = service::network(connection, Arc::clone(&stop), generation);
     service.run(&notes, &stop)?;
     stop.store(true, Ordering::SeqCst);
     Ok(ExitCode::SUCCESS)

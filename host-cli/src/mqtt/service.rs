@@ -9,16 +9,26 @@
 //! counted `--save-every` checks since its last save, when no message came for 0.2 s, and
 //! on shutdown; a save point waits until the broker has confirmed every message published
 //! so far, then saves the state directory, then acknowledges. After a crash the broker
-//! redelivers the unacknowledged samples (its DUP flag set): those at or before the
-//! channel's last saved time are counted as `redelivered` and left out, the others are
-//! processed again, and their events are published again with the same `seq` (a reader
+//! sends the unacknowledged samples again: those at or before the channel's last time are
+//! counted as `redelivered` and left out (whatever their DUP flag: mosquitto sends a
+//! message it wrote just before a connection closed again without it), the others are
+//! processed again, and their events published again with the same `seq` (a reader
 //! keeps the first of a (`channel`, `seq`, `kind`) line).
+//!
+//! Invariant: a message is acknowledged only on the connection it came on. An MQTT 3.1.1
+//! acknowledgement names a packet id, and the broker hands a freed id to the next message;
+//! an acknowledgement of a message from a lost connection, written on the next one, frees
+//! the id of the copy sent again, and the acknowledgement of that copy then acknowledges
+//! an unrelated later message before it is saved (lost if steadycal stops before saving
+//! it). Each sample carries its connection's [`Generation`]; the network thread bumps the
+//! generation under a lock and drops the acknowledgements still queued in the client, the
+//! engine acknowledges under the same lock, only samples of the current generation.
 
 use std::collections::HashMap;
 use std::fmt::Display;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{self, Receiver, RecvTimeoutError};
-use std::sync::Arc;
+use std::sync::{Arc, Mutex, PoisonError};
 use std::time::{Duration, Instant, SystemTime, UNIX_EPOCH};
 
 use anyhow::Result;
@@ -40,30 +50,54 @@ const CONFIRM_WAIT: Duration = Duration::from_secs(5);
 /// Refused channels printed on standard error before going quiet (every 1,000th after).
 const REFUSALS_SHOWN: u64 = 10;
 
+/// The number of the current connection (see the module's invariant).
+#[derive(Clone, Default)]
+pub struct Generation(Arc<Mutex<u64>>);
+
+impl Generation {
+    fn lock(&self) -> std::sync::MutexGuard<'_, u64> {
+        self.0.lock().unwrap_or_else(PoisonError::into_inner)
+    }
+}
+
 /// What the network thread hands over.
 pub enum Note {
-    /// A packet in or out.
-    Event(Event),
+    /// A packet in or out, and the generation of the connection it came on.
+    Event(Event, u64),
     /// The connection was lost (the reason) and is retried after the delay.
     Lost(String, Duration),
 }
 
 /// Starts the network thread.
-pub fn network(mut connection: Connection, stop: Arc<AtomicBool>) -> Receiver<Note> {
+pub fn network(
+    mut connection: Connection,
+    stop: Arc<AtomicBool>,
+    generation: Generation,
+) -> Receiver<Note> {
     let (sender, receiver) = mpsc::channel();
     std::thread::spawn(move || {
         let mut backoff = Duration::from_millis(100);
-        for notification in connection.iter() {
+        let mut current = *generation.lock();
+        while let Ok(notification) = connection.recv() {
             match notification {
                 Ok(event) => {
                     if matches!(event, Event::Incoming(Packet::ConnAck(_))) {
                         backoff = Duration::from_millis(100);
                     }
-                    if sender.send(Note::Event(event)).is_err() {
+                    if sender.send(Note::Event(event, current)).is_err() {
                         return;
                     }
                 }
                 Err(error) => {
+                    {
+                        // The client dropped the acknowledgements queued when the connection
+                        // ended; drop those the engine queued since, before it can see the
+                        // new generation.
+                        let mut shared = generation.lock();
+                        *shared += 1;
+                        current = *shared;
+                        connection.eventloop.clean();
+                    }
                     if stop.load(Ordering::SeqCst) {
                         return;
                     }
@@ -147,7 +181,8 @@ pub struct Service<R: FeedFloat + Display> {
     state: Option<StateDir>,
     channels: Vec<Channel<R>>,
     index: HashMap<String, usize>,
-    pending: Vec<Publish>,
+    pending: Vec<(Publish, u64)>,
+    generation: Generation,
     published: u64,
     confirmed: u64,
     save_due: bool,
@@ -171,6 +206,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         settings: Settings,
         resolved: Setup,
         state: Option<StateDir>,
+        generation: Generation,
     ) -> Result<Self> {
         let mut service = Service {
             client,
@@ -179,6 +215,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
             channels: Vec::new(),
             index: HashMap::new(),
             pending: Vec::new(),
+            generation,
             published: 0,
             confirmed: 0,
             save_due: false,
@@ -267,12 +304,14 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
 
     fn note(&mut self, note: Note) -> Result<()> {
         match note {
-            Note::Event(Event::Incoming(Packet::Publish(publish))) => self.sample(publish),
-            Note::Event(Event::Incoming(Packet::PubAck(_))) => {
+            Note::Event(Event::Incoming(Packet::Publish(publish)), generation) => {
+                self.sample(publish, generation)
+            }
+            Note::Event(Event::Incoming(Packet::PubAck(_)), _) => {
                 self.confirmed += 1;
                 Ok(())
             }
-            Note::Event(Event::Incoming(Packet::ConnAck(ack))) => {
+            Note::Event(Event::Incoming(Packet::ConnAck(ack)), _) => {
                 self.link.connected = true;
                 self.link.connects += 1;
                 if self.link.connects > 1 {
@@ -300,7 +339,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
                 }
                 Ok(())
             }
-            Note::Event(_) => Ok(()),
+            Note::Event(..) => Ok(()),
             Note::Lost(reason, retry) => {
                 // Unacknowledged samples come back, flagged, on the next connection.
                 self.pending.clear();
@@ -364,10 +403,10 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         self.publish(topic, serde_json::to_vec(&report)?, false)
     }
 
-    fn sample(&mut self, publish: Publish) -> Result<()> {
+    fn sample(&mut self, publish: Publish, generation: u64) -> Result<()> {
         let topics = &self.settings.topics;
         if topics.is_own(&publish.topic) {
-            self.pending.push(publish);
+            self.pending.push((publish, generation));
             return Ok(());
         }
         let parsed = parse::<R>(
@@ -394,7 +433,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
             Ok(i) => i,
             Err(reason) => {
                 self.refuse(&publish, reason)?;
-                self.pending.push(publish);
+                self.pending.push((publish, generation));
                 return Ok(());
             }
         };
@@ -419,15 +458,15 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
                 });
                 let topic = self.settings.topics.output(&channel.name, Output::Errors);
                 self.publish(topic, serde_json::to_vec(&report)?, false)?;
-                self.pending.push(publish);
+                self.pending.push((publish, generation));
                 return Ok(());
             }
         };
         let channel = &mut self.channels[i];
-        if publish.dup && parsed.timed && channel.already_seen(parsed.sample.t) {
+        if parsed.timed && channel.already_seen(parsed.sample.t) {
             channel.redelivered += 1;
             channel.dirty = true;
-            self.pending.push(publish);
+            self.pending.push((publish, generation));
             return Ok(());
         }
         let pushed = channel.push(parsed.sample, parsed.timed)?;
@@ -445,7 +484,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         if report {
             self.publish_status(i)?;
         }
-        self.pending.push(publish);
+        self.pending.push((publish, generation));
         Ok(())
     }
 
@@ -482,11 +521,15 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         if let Some(state) = &self.state {
             state.save(&mut self.channels)?;
         }
-        for publish in self.pending.drain(..) {
-            self.client
-                .ack(&publish)
-                .map_err(|e| anyhow::anyhow!("cannot acknowledge: {e}"))?;
-        }
+        // Under the generation's lock (module invariant): samples of an earlier connection
+        // are left (the broker sends them again); one the client's full queue cannot take
+        // waits for the next save point.
+        let current = self.generation.lock();
+        let client = &self.client;
+        self.pending.retain(|(publish, generation)| {
+            *generation == *current && client.try_ack(publish).is_err()
+        });
+        drop(current);
         self.save_due = false;
         Ok(())
     }
@@ -497,7 +540,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         let deadline = Instant::now() + CONFIRM_WAIT;
         while self.confirmed < self.published && Instant::now() < deadline {
             match notes.recv_timeout(Duration::from_millis(50)) {
-                Ok(Note::Event(Event::Incoming(Packet::PubAck(_)))) => self.confirmed += 1,
+                Ok(Note::Event(Event::Incoming(Packet::PubAck(_)), _)) => self.confirmed += 1,
                 Ok(Note::Lost(..)) => break,
                 // Samples arriving now are not acknowledged: they come back on restart.
                 Ok(_) | Err(RecvTimeoutError::Timeout) => {}
@@ -515,7 +558,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         let deadline = Instant::now() + Duration::from_secs(2);
         while Instant::now() < deadline {
             match notes.recv_timeout(Duration::from_millis(50)) {
-                Ok(Note::Event(Event::Outgoing(rumqttc::Outgoing::Disconnect))) => break,
+                Ok(Note::Event(Event::Outgoing(rumqttc::Outgoing::Disconnect), _)) => break,
                 Ok(Note::Lost(..)) | Err(RecvTimeoutError::Disconnected) => break,
                 _ => {}
             }
