@@ -55,13 +55,22 @@ struct Broker {
     child: Option<Child>,
 }
 
+fn free_port() -> u16 {
+    TcpListener::bind("127.0.0.1:0")
+        .unwrap()
+        .local_addr()
+        .unwrap()
+        .port()
+}
+
 impl Broker {
     fn start(program: PathBuf, dir: &Path) -> Broker {
-        let port = TcpListener::bind("127.0.0.1:0")
-            .unwrap()
-            .local_addr()
-            .unwrap()
-            .port();
+        Broker::start_with(program, dir, "")
+    }
+
+    /// A broker whose configuration ends with `extra` (more listeners).
+    fn start_with(program: PathBuf, dir: &Path, extra: &str) -> Broker {
+        let port = free_port();
         let dir = dir.join("broker");
         std::fs::create_dir_all(&dir).unwrap();
         // max_queued_messages 0: no limit on what waits for an offline persistent
@@ -70,7 +79,7 @@ impl Broker {
         // cannot write its persistence file in the test's private directory.
         let user = Command::new("id").arg("-un").output().unwrap().stdout;
         let config = format!(
-            "listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\npersistence_location {}/\nmax_queued_messages 0\nuser {}\n",
+            "listener {port} 127.0.0.1\nallow_anonymous true\npersistence true\npersistence_location {}/\nmax_queued_messages 0\nuser {}\n{extra}",
             dir.display(),
             String::from_utf8_lossy(&user).trim()
         );
@@ -116,14 +125,14 @@ impl Broker {
 
     /// Waits until a client with this id has connected (mosquitto's log says so).
     fn wait_for_client(&self, id: &str, times: usize) {
-        let until = Instant::now() + Duration::from_secs(10);
+        let until = Instant::now() + Duration::from_secs(30);
         let needle = format!(" as {id} ");
         loop {
             let log = std::fs::read_to_string(self.dir.join("log")).unwrap_or_default();
             if log.matches(&needle).count() >= times {
                 return;
             }
-            assert!(Instant::now() < until, "{id} connects within 10 s");
+            assert!(Instant::now() < until, "{id} connects within 30 s");
             std::thread::sleep(Duration::from_millis(20));
         }
     }
@@ -615,4 +624,230 @@ fn malformed_payloads_are_counted_reported_and_the_channel_goes_on() {
     assert_eq!(status["malformed"], 4);
     assert_eq!(status["samples"], 3);
     assert!(stderr.contains("malformed payload"), "{stderr}");
+}
+
+#[test]
+fn channels_beyond_the_cap_are_refused_with_a_message() {
+    let Some(program) = mosquitto_required("channels_beyond_the_cap_are_refused_with_a_message")
+    else {
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let broker = Broker::start(program, dir.path());
+    let collector = Collector::start(broker.port, "test-collector-4");
+    let service = watch(
+        &broker.url(),
+        &dir.path().join("state"),
+        &["--max-channels", "2"],
+    );
+    broker.wait_for_client("steadycal-watch", 1);
+    let samples = |from: u32| -> Vec<String> {
+        (from..from + 3)
+            .map(|t| format!(r#"{{"t":{t},"raw":{},"ref":{}}}"#, 10 + t, 10 + t))
+            .collect()
+    };
+    finish(publish(broker.port, "plant/cell-x/feed", &samples(0)));
+    finish(publish(broker.port, "plant/cell-y/feed", &samples(0)));
+    collector.wait_for_samples(&[("cell-x", 3), ("cell-y", 3)]);
+    // A third channel is refused, message by message; the two watched go on.
+    finish(publish(broker.port, "plant/cell-z/feed", &samples(0)));
+    finish(publish(broker.port, "plant/cell-x/feed", &samples(3)));
+    collector.wait_for_samples(&[("cell-x", 6), ("cell-y", 3)]);
+    let stderr = stop_watch(service);
+    let refusals: Vec<Value> = collector
+        .on("steadycal/errors")
+        .iter()
+        .map(|p| serde_json::from_slice(p).unwrap())
+        .collect();
+    assert_eq!(refusals.len(), 3, "{refusals:?}");
+    for (i, refusal) in refusals.iter().enumerate() {
+        assert_eq!(refusal["topic"], "plant/cell-z/feed");
+        assert_eq!(refusal["refused"], i as u64 + 1);
+        assert_eq!(
+            refusal["reason"],
+            "channel \"cell-z\" refused: 2 channels are watched, the cap (--max-channels)"
+        );
+    }
+    assert!(
+        collector.on("steadycal/cell-z/status").is_empty(),
+        "no status for a refused channel"
+    );
+    assert!(
+        stderr.contains(
+            "refused a message on plant/cell-z/feed (1 refused so far): channel \"cell-z\" refused"
+        ),
+        "{stderr}"
+    );
+}
+
+/// Runs the openssl command line (Debian's `openssl`) in `dir`.
+fn openssl(dir: &Path, args: &[&str]) {
+    let output = Command::new("openssl")
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("openssl runs");
+    assert!(
+        output.status.success(),
+        "openssl {args:?}: {}",
+        String::from_utf8_lossy(&output.stderr)
+    );
+}
+
+/// A certificate authority `NAME.pem`/`NAME.key` (EC P-256, one day).
+fn authority(dir: &Path, name: &str) {
+    openssl(
+        dir,
+        &[
+            "req",
+            "-x509",
+            "-newkey",
+            "ec",
+            "-pkeyopt",
+            "ec_paramgen_curve:prime256v1",
+            "-nodes",
+            "-days",
+            "1",
+            "-subj",
+            &format!("/CN={name}"),
+            "-addext",
+            "basicConstraints=critical,CA:TRUE",
+            "-addext",
+            "keyUsage=critical,keyCertSign,cRLSign",
+            "-keyout",
+            &format!("{name}.key"),
+            "-out",
+            &format!("{name}.pem"),
+        ],
+    );
+}
+
+/// A leaf certificate `NAME.pem`/`NAME.key` signed by the authority `ca`, for `usage`
+/// (serverAuth or clientAuth), naming 127.0.0.1 and localhost.
+fn leaf(dir: &Path, ca: &str, name: &str, usage: &str) {
+    openssl(
+        dir,
+        &[
+            "req",
+            "-newkey",
+            "ec",
+            "-pkeyopt",
+            "ec_paramgen_curve:prime256v1",
+            "-nodes",
+            "-subj",
+            &format!("/CN={name}"),
+            "-keyout",
+            &format!("{name}.key"),
+            "-out",
+            &format!("{name}.csr"),
+        ],
+    );
+    std::fs::write(
+        dir.join(format!("{name}.ext")),
+        format!("basicConstraints=CA:FALSE\nsubjectAltName=IP:127.0.0.1,DNS:localhost\nextendedKeyUsage={usage}\n"),
+    )
+    .unwrap();
+    openssl(
+        dir,
+        &[
+            "x509",
+            "-req",
+            "-in",
+            &format!("{name}.csr"),
+            "-CA",
+            &format!("{ca}.pem"),
+            "-CAkey",
+            &format!("{ca}.key"),
+            "-CAcreateserial",
+            "-days",
+            "1",
+            "-extfile",
+            &format!("{name}.ext"),
+            "-out",
+            &format!("{name}.pem"),
+        ],
+    );
+}
+
+#[test]
+fn mqtts_with_an_authority_file_and_a_client_certificate() {
+    let Some(program) = mosquitto_required("mqtts_with_an_authority_file_and_a_client_certificate")
+    else {
+        return;
+    };
+    let has_openssl = Command::new("openssl").arg("version").output().is_ok();
+    if !has_openssl {
+        assert!(
+            std::env::var("STEADYCAL_REQUIRE_MOSQUITTO").as_deref() != Ok("1"),
+            "openssl is required with mosquitto (apt-get install openssl)"
+        );
+        eprintln!("SKIPPED mqtts test: openssl not installed");
+        return;
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let pki = dir.path().join("pki");
+    std::fs::create_dir_all(&pki).unwrap();
+    authority(&pki, "ca");
+    authority(&pki, "other-ca");
+    leaf(&pki, "ca", "broker", "serverAuth");
+    leaf(&pki, "ca", "sensor-gateway", "clientAuth");
+    // The plain listener serves the test's publisher and collector; the TLS one requires
+    // a client certificate from the same authority.
+    let tls_port = free_port();
+    let file = |name: &str| pki.join(name).display().to_string();
+    let extra = format!(
+        "listener {tls_port} 127.0.0.1\ncafile {}\ncertfile {}\nkeyfile {}\nrequire_certificate true\n",
+        file("ca.pem"),
+        file("broker.pem"),
+        file("broker.key")
+    );
+    let broker = Broker::start_with(program, dir.path(), &extra);
+    let collector = Collector::start(broker.port, "test-collector-5");
+    let url = format!("mqtts://127.0.0.1:{tls_port}");
+    let service = watch(
+        &url,
+        &dir.path().join("state"),
+        &[
+            "--trust-ca",
+            &file("ca.pem"),
+            "--client-cert",
+            &file("sensor-gateway.pem"),
+            "--client-key",
+            &file("sensor-gateway.key"),
+        ],
+    );
+    // Refused: a broker certificate from an authority not trusted, and no client
+    // certificate where the broker requires one.
+    let untrusted = watch(
+        &url,
+        &dir.path().join("state-untrusted"),
+        &[
+            "--trust-ca",
+            &file("other-ca.pem"),
+            "--session-id",
+            "untrusted",
+        ],
+    );
+    let anonymous = watch(
+        &url,
+        &dir.path().join("state-anonymous"),
+        &["--trust-ca", &file("ca.pem"), "--session-id", "anonymous"],
+    );
+    broker.wait_for_client("steadycal-watch", 1);
+    let (csv, payloads) = feed("turbidity-outliers.csv", 600);
+    let (events, _) = replay(dir.path(), "cell-t", &csv);
+    finish(publish(broker.port, "plant/cell-t/feed", &payloads));
+    collector.wait_for_samples(&[("cell-t", 600)]);
+    let stderr = stop_watch(service);
+    assert!(stderr.contains(&format!("connected to {url}")), "{stderr}");
+    let (published, repeats) = events_of(&collector, "cell-t");
+    assert_eq!(published, events, "events over TLS equal replay's");
+    assert_eq!(repeats, 0);
+    for child in [untrusted, anonymous] {
+        signal(&child, "TERM");
+        let output = child.wait_with_output().unwrap();
+        let refused = String::from_utf8_lossy(&output.stderr);
+        assert!(refused.contains("connection lost or refused"), "{refused}");
+        assert!(!refused.contains("connected to"), "{refused}");
+    }
 }
