@@ -558,3 +558,113 @@ fn a_field_run_writes_its_report() {
     let html = std::fs::read_to_string(&page).unwrap();
     assert!(html.starts_with("<!DOCTYPE html>") && html.contains("<svg"));
 }
+
+/// UTC date and time of `START + seconds` as `YYYY-MM-DD HH:MM:SS`.
+fn utc_text(seconds: i64) -> String {
+    let (date, time) = rome_local(seconds - 3600);
+    let d: Vec<&str> = date.split('/').collect();
+    format!("{}-{}-{} {}", d[2], d[1], d[0], time.replace('.', ":"))
+}
+
+/// Runs `replay` with `args` and returns its events, checks and readings files.
+fn run_outputs(dir: &Path, name: &str, args: &[&str]) -> [Vec<u8>; 3] {
+    let outputs =
+        ["events.jsonl", "checks.csv", "readings.csv"].map(|o| dir.join(format!("{name}.{o}")));
+    steadycal()
+        .arg("replay")
+        .args(args)
+        .arg("--config")
+        .arg(feeds().join("load-cell.monitor.toml"))
+        .arg("--events")
+        .arg(&outputs[0])
+        .arg("--checks")
+        .arg(&outputs[1])
+        .arg("--readings")
+        .arg(&outputs[2])
+        .arg("--quiet")
+        .assert()
+        .success();
+    outputs.map(|path| std::fs::read(path).unwrap())
+}
+
+#[test]
+fn rows_without_a_raw_value_keep_their_seq_in_every_reader() {
+    let dir = scratch("seq");
+    let rows = load_cell_rows();
+    // Every 97th row (from the 5th) has no raw value: an empty cell in the canonical feed,
+    // -200 in the logger's file, -200 in the sensor log of two logs.
+    let gap = |i: usize| i % 97 == 5;
+    let mut canonical = String::from("t,raw,ref,temp\n");
+    let mut logger = String::from("stamp,raw,ref,temp\n");
+    let mut sensor = String::from("stamp,raw,temp\n");
+    let mut reference = String::from("stamp,ref\n");
+    for (i, [t, raw, refv, temp]) in rows.iter().enumerate() {
+        let seconds: i64 = t.parse().unwrap();
+        let stamp = utc_text(seconds);
+        let (raw, marked) = if gap(i) {
+            ("", "-200")
+        } else {
+            (raw.as_str(), raw.as_str())
+        };
+        canonical.push_str(&format!("{},{raw},{refv},{temp}\n", START + seconds));
+        logger.push_str(&format!("{stamp},{marked},{refv},{temp}\n"));
+        sensor.push_str(&format!("{stamp},{marked},{temp}\n"));
+        if !refv.is_empty() {
+            reference.push_str(&format!("{stamp},{refv}\n"));
+        }
+    }
+    assert!(rows
+        .iter()
+        .enumerate()
+        .any(|(i, r)| gap(i) && !r[2].is_empty()));
+    let paths = ["canonical.csv", "logger.csv", "sensor.csv", "reference.csv"].map(|n| dir.join(n));
+    for (path, text) in paths.iter().zip([canonical, logger, sensor, reference]) {
+        std::fs::write(path, text).unwrap();
+    }
+    let [canonical, logger, sensor, reference] = paths.map(|p| p.display().to_string());
+    let format = [
+        "--time-column",
+        "stamp",
+        "--time-format",
+        "%Y-%m-%d %H:%M:%S",
+    ];
+    let expected = run_outputs(&dir, "canonical", &[&canonical]);
+    let mut args = vec![logger.as_str(), "--missing=-200"];
+    args.extend(format);
+    let field = run_outputs(&dir, "logger", &args);
+    // The reference of a row without a raw value finds no sample within 10 s (samples are
+    // 30 s apart): unpaired, as the canonical row is no sample.
+    let mut args = vec![
+        sensor.as_str(),
+        "--missing=-200",
+        "--reference",
+        &reference,
+        "--match-within",
+        "10s",
+    ];
+    args.extend(format);
+    let joined = run_outputs(&dir, "joined", &args);
+    for (name, got) in [("one log", field), ("two logs", joined)] {
+        for (k, output) in ["events", "checks", "readings"].iter().enumerate() {
+            assert!(
+                got[k] == expected[k],
+                "{name}: {output} differ from the canonical feed's"
+            );
+        }
+    }
+    // The canonical reader numbers by data-row index: a check after the first gap (row 5)
+    // carries its row's index.
+    let checks = String::from_utf8(expected[1].clone()).unwrap();
+    let first_after_gap = rows
+        .iter()
+        .enumerate()
+        .find(|(i, r)| *i > 5 && !r[2].is_empty())
+        .unwrap()
+        .0;
+    assert!(
+        checks
+            .lines()
+            .any(|l| l.starts_with(&format!("{first_after_gap},"))),
+        "{checks:.300}"
+    );
+}

@@ -165,13 +165,13 @@ fn assert_same(all: &Outputs, channel: &str, alone: &Outputs) {
 /// One sensor's row: t, raw (`None`: lost), ref, temp.
 type Row = (String, Option<String>, String, String);
 
-/// Writes a canonical feed (t, raw, ref, temp) of the rows that have a raw value.
+/// Writes a canonical feed (t, raw, ref, temp); a lost reading is an empty raw cell (the
+/// row keeps its data-row index, the `seq` of the samples after it).
 fn write_canonical(path: &Path, rows: &[Row]) {
     let mut text = String::from("t,raw,ref,temp\n");
     for (t, raw, reference, temp) in rows {
-        if let Some(raw) = raw {
-            text.push_str(&format!("{t},{raw},{reference},{temp}\n"));
-        }
+        let raw = raw.as_deref().unwrap_or("");
+        text.push_str(&format!("{t},{raw},{reference},{temp}\n"));
     }
     std::fs::write(path, text).unwrap();
 }

@@ -40,6 +40,8 @@ pub struct SensorRow<T> {
     pub temperature: Option<T>,
     /// 1-based line in the sensor log.
     pub line: u64,
+    /// 0-based data-row index in the sensor log (the sample's `seq`).
+    pub index: u64,
 }
 
 /// A reference row as read from the reference log (its clock offset already applied).
@@ -66,6 +68,8 @@ pub struct JoinedRow<T> {
     pub temperature: Option<T>,
     /// Line in the sensor log (of the last sample averaged for an averaged check).
     pub line: u64,
+    /// Data-row index in the sensor log, as `line` (the sample's `seq`).
+    pub index: u64,
     /// Line of the paired reference row.
     pub reference_line: Option<u64>,
     /// Sensor samples behind the raw value: 1, or the number averaged.
@@ -222,6 +226,7 @@ where
                 reference: claim.map(|(_, r)| r.value),
                 temperature: row.temperature,
                 line: row.line,
+                index: row.index,
                 reference_line: claim.map(|(_, r)| r.line),
                 samples: 1,
             }),
@@ -278,6 +283,7 @@ where
         // Samples at or before the window's start are readings.
         self.flush_before_or_at(start);
         let (mut sum, mut count, mut temp_sum, mut temps, mut line) = (0.0, 0u32, 0.0, 0u32, 0);
+        let mut index = 0;
         let mut kept = VecDeque::new();
         while let Some(slot) = self.pending.pop_front() {
             match slot {
@@ -289,6 +295,7 @@ where
                         temps += 1;
                     }
                     line = row.line;
+                    index = row.index;
                 }
                 Slot::Error(error) if kept.is_empty() => self.out.push_back(Err(error)),
                 other => kept.push_back(other),
@@ -308,6 +315,7 @@ where
             reference: Some(reference.value),
             temperature,
             line,
+            index,
             reference_line: Some(reference.line),
             samples: count,
         }));
@@ -405,6 +413,7 @@ mod tests {
                     raw,
                     temperature: None,
                     line: i as u64 + 2,
+                    index: i as u64,
                 })
             })
             .collect()
@@ -479,18 +488,19 @@ mod tests {
         // Window (0.5, 3]: samples at 1, 2, 3 → mean 3.
         let r = reference(&[(3.0, 30.0), (9.0, 90.0)]);
         let (rows, tally) = join(s, r, Pairing::Average(2.5));
-        let shape: Vec<(f64, f64, Option<f64>, u32)> = rows
+        let shape: Vec<(f64, f64, Option<f64>, u32, u64)> = rows
             .iter()
-            .map(|r| (r.t, r.raw, r.reference, r.samples))
+            .map(|r| (r.t, r.raw, r.reference, r.samples, r.index))
             .collect();
-        // The second window (6.5, 9] holds no sample: unpaired.
+        // The second window (6.5, 9] holds no sample: unpaired. The check takes the
+        // data-row index of the last sample averaged.
         assert_eq!(
             shape,
             [
-                (0.0, 1.0, None, 1),
-                (3.0, 3.0, Some(30.0), 3),
-                (4.0, 5.0, None, 1),
-                (5.0, 6.0, None, 1)
+                (0.0, 1.0, None, 1, 0),
+                (3.0, 3.0, Some(30.0), 3, 3),
+                (4.0, 5.0, None, 1, 4),
+                (5.0, 6.0, None, 1, 5)
             ]
         );
         assert_eq!(
@@ -541,13 +551,13 @@ mod tests {
                 if *dropped {
                     continue;
                 }
-                sensor_rows.push(Ok(SensorRow { t, raw: *raw, temperature: None, line }));
-                expected.push((t, *raw, *reference, line));
+                sensor_rows.push(Ok(SensorRow { t, raw: *raw, temperature: None, line, index: i as u64 }));
+                expected.push((t, *raw, *reference, line, i as u64));
             }
             let join = TimeJoin::new(sensor_rows.into_iter(), reference_rows.into_iter(), Pairing::Nearest(tolerance));
-            let got: Vec<(f64, f64, Option<f64>, u64)> = join
+            let got: Vec<(f64, f64, Option<f64>, u64, u64)> = join
                 .map(|r| r.unwrap())
-                .map(|r| (r.t, r.raw, r.reference, r.line))
+                .map(|r| (r.t, r.raw, r.reference, r.line, r.index))
                 .collect();
             prop_assert_eq!(got, expected);
         }

@@ -8,7 +8,8 @@
 //!
 //! Records are split by the `csv` crate (the one the canonical reader's tests compare
 //! against). A row whose every cell is blank (a spreadsheet's trailing `;;;;` rows) is
-//! skipped and counted. A cell that is a missing marker gives no value and is counted by
+//! skipped and counted; it keeps its data-row index, as the canonical reader's row without
+//! a raw value does ([`LogRow::index`]). A cell that is a missing marker gives no value and is counted by
 //! column and marker ([`MissingTally`]); any other cell that is not a number stops the row
 //! with a [`FeedError`] naming file, line, column and what was expected.
 //!
@@ -101,7 +102,9 @@ pub struct LogRow<T> {
     pub channel: String,
     /// 1-based line.
     pub line: u64,
-    /// 0-based index among the data rows (blank rows not counted).
+    /// 0-based index among the data rows (the records after the header: blank rows and
+    /// bad rows counted, an empty line not; among one channel's rows when the reader keeps
+    /// [`LogLayout::only_channel`]). A sample's `seq`.
     pub index: u64,
 }
 
@@ -319,6 +322,8 @@ impl LogReader {
                 .all(|c| c.iter().all(u8::is_ascii_whitespace))
             {
                 self.blank_rows += 1;
+                // A data row all the same (not one of a kept channel's rows).
+                self.rows += u64::from(self.only_channel.is_none());
                 continue;
             }
             return Some(Ok(()));
@@ -666,6 +671,19 @@ mod tests {
         );
         assert_eq!(r.blank_rows, 1);
         assert_eq!(r.tally.column_total("s1"), 0);
+    }
+
+    #[test]
+    fn blank_rows_keep_their_data_row_index() {
+        let out = rows("raw,ref\n1,1\n,\n3,3\n", &LogLayout::default());
+        let got: Vec<(u64, f64)> = out
+            .iter()
+            .map(|r| {
+                let r = r.as_ref().unwrap();
+                (r.index, r.t)
+            })
+            .collect();
+        assert_eq!(got, [(0, 0.0), (2, 2.0)]);
     }
 
     #[test]

@@ -3,8 +3,10 @@
 //!
 //! A row whose raw cell is missing is no sample: it is counted (`missing_raw`) and fed to
 //! nothing. A missing reference makes a row a reading; a missing temperature is passed on as
-//! absent (the basis decides). Samples are numbered (`seq`) in the order they are given to
-//! the monitor (the replay's own census then counts their values).
+//! absent (the basis decides). A sample's `seq` is its row's 0-based data-row index in the
+//! (sensor) log, as the canonical CSV reader and the Arrow reader number them: a row
+//! without a raw value keeps its index unused, so one feed gives the same `seq` whichever
+//! reader reads it (an averaged check takes the index of the last sample averaged).
 //!
 //! Invariants: never panics; memory is flat in the length of the logs.
 
@@ -64,7 +66,6 @@ impl Default for FieldTally {
 pub struct LogSamples<R> {
     reader: LogReader,
     row: LogRow<R>,
-    seq: u64,
     /// What was counted.
     pub tally: FieldTally,
 }
@@ -75,7 +76,6 @@ impl<R: FeedFloat> LogSamples<R> {
         LogSamples {
             reader,
             row: LogRow::default(),
-            seq: 0,
             tally,
         }
     }
@@ -115,13 +115,12 @@ impl<R: FeedFloat> Iterator for LogSamples<R> {
                 continue;
             };
             let sample = Sample {
-                seq: self.seq,
+                seq: self.row.index,
                 t: self.row.t,
                 raw,
                 reference: self.row.reference,
                 temperature: self.row.temperature,
             };
-            self.seq += 1;
             return Some(FieldSample {
                 next: Ok(sample),
                 line,
@@ -155,6 +154,7 @@ impl<R: FeedFloat> Iterator for SensorRows<R> {
                 raw,
                 temperature: self.row.temperature,
                 line: self.row.line,
+                index: self.row.index,
             }));
         }
     }
@@ -190,7 +190,6 @@ impl<R: FeedFloat> Iterator for ReferenceRows<R> {
 /// The samples of a sensor log joined with a reference log.
 pub struct JoinedSamples<R: FeedFloat> {
     join: TimeJoin<R, SensorRows<R>, ReferenceRows<R>>,
-    seq: u64,
     /// What was counted (complete once the iterator is exhausted).
     pub tally: FieldTally,
 }
@@ -217,7 +216,6 @@ impl<R: FeedFloat> JoinedSamples<R> {
         };
         JoinedSamples {
             join: TimeJoin::new(sensor, reference, pairing),
-            seq: 0,
             tally,
         }
     }
@@ -253,16 +251,16 @@ impl<R: FeedFloat> Iterator for JoinedSamples<R> {
                 reference,
                 temperature,
                 line,
+                index,
                 ..
             }) => {
                 let sample = Sample {
-                    seq: self.seq,
+                    seq: index,
                     t,
                     raw,
                     reference,
                     temperature,
                 };
-                self.seq += 1;
                 Some(FieldSample {
                     next: Ok(sample),
                     line,
@@ -303,7 +301,8 @@ mod tests {
                 (x.seq, x.t, x.raw, x.reference, s.line)
             })
             .collect();
-        assert_eq!(got, [(0, 0.0, 1.0, Some(2.0), 2), (1, 3.0, 4.0, None, 5)]);
+        // `seq` is the data-row index: the two rows without a raw value keep theirs.
+        assert_eq!(got, [(0, 0.0, 1.0, Some(2.0), 2), (3, 3.0, 4.0, None, 5)]);
         assert_eq!(samples.tally.missing_raw, 2);
         assert_eq!(samples.tally.missing.by_column["raw"]["-9999"], 1);
         assert_eq!(samples.tally.missing.by_column["ref"]["-9999"], 1);
