@@ -851,3 +851,43 @@ fn mqtts_with_an_authority_file_and_a_client_certificate() {
         assert!(!refused.contains("connected to"), "{refused}");
     }
 }
+
+#[test]
+fn a_topic_level_with_a_quote_or_a_backslash_is_refused_and_reported() {
+    let Some(program) =
+        mosquitto_required("a_topic_level_with_a_quote_or_a_backslash_is_refused_and_reported")
+    else {
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let broker = Broker::start(program, dir.path());
+    let collector = Collector::start(broker.port, "test-collector-6");
+    let service = watch(&broker.url(), &dir.path().join("state"), &[]);
+    broker.wait_for_client("steadycal-watch", 1);
+    let odd = r#"plant/cell"7\b/feed"#;
+    let sample = vec![r#"{"t":0,"raw":10,"ref":10}"#.to_string()];
+    finish(publish(broker.port, odd, &sample));
+    finish(publish(broker.port, "plant/cell-7/feed", &sample));
+    collector.wait_for_samples(&[("cell-7", 1)]);
+    let until = Instant::now() + DEADLINE;
+    while collector.on("steadycal/errors").is_empty() {
+        assert!(Instant::now() < until, "a refusal within {DEADLINE:?}");
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    let stderr = stop_watch(service);
+    let refusals = collector.on("steadycal/errors");
+    assert_eq!(refusals.len(), 1);
+    let refusal: Value = serde_json::from_slice(&refusals[0]).unwrap();
+    assert_eq!(refusal["topic"], odd, "the topic round-trips");
+    assert_eq!(
+        refusal["reason"],
+        r#"channel "cell\"7\\b": expected 1 to 64 letters, digits, '.', '_' or '-', not starting with '.'"#
+    );
+    // Nothing is published under a topic with the name; the good channel's events carry
+    // its name.
+    let seen = collector.seen.lock().unwrap();
+    assert!(
+        seen.iter().all(|(topic, _)| !topic.contains('"')),
+        "{stderr}"
+    );
+}

@@ -3,8 +3,9 @@
 //!
 //! Invariants: `seq` of the next sample is the number of samples the monitor has counted
 //! (so a resumed channel numbers on like one uninterrupted replay of its feed, whose `seq`
-//! is the 0-based row index); malformed payloads take no `seq`. Event lines are the bytes
-//! `replay` writes ([`write_event`]) with `"channel":NAME,` put after the opening brace.
+//! is the 0-based row index); malformed payloads take no `seq`. Event lines are written by
+//! [`write_channel_event`], the writer of `replay` on a file of many sensors: the channel
+//! first, escaped as a JSON string ([`ChannelPrefix`]), then the event's fields.
 
 use std::collections::BTreeMap;
 use std::fmt::Display;
@@ -18,8 +19,9 @@ use steadycal_core::sample::Sample;
 
 use crate::number::number;
 use crate::replay::engine::Engine;
-use crate::replay::sink::events::write_event;
+use crate::replay::sink::events::write_channel_event;
 use crate::replay::sink::summary::alarms;
+use crate::replay::sink::ChannelPrefix;
 
 /// When an alarm was raised: the time and `seq` of the sample that raised it.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
@@ -80,6 +82,8 @@ pub struct Channel<R: Real> {
     pub dirty: bool,
     /// The record saved with the snapshot on disk.
     pub saved: Option<ChannelRecord>,
+    /// `{"channel":NAME,` with NAME escaped ([`ChannelPrefix::event`]).
+    prefix: Vec<u8>,
 }
 
 impl<R: Real + Display> Channel<R> {
@@ -87,7 +91,9 @@ impl<R: Real + Display> Channel<R> {
     /// belongs to the snapshot).
     pub fn new(name: String, engine: Engine<R>, record: Option<ChannelRecord>) -> Self {
         let checks = engine.monitor.counters().checks;
+        let prefix = ChannelPrefix::new(Some(&name)).event;
         let mut channel = Channel {
+            prefix,
             name,
             engine,
             last_t: None,
@@ -131,13 +137,11 @@ impl<R: Real + Display> Channel<R> {
         }
         let before = self.engine.monitor.raised_alarms();
         let mut pushed = Pushed::default();
-        let prefix = format!("{{\"channel\":\"{}\",", self.name);
         let t = sample.t;
+        let prefix = &self.prefix;
         self.engine.push(&sample, |event| {
             let mut line = Vec::with_capacity(160);
-            write_event(&mut line, event, t)?;
-            // `{` of the event object becomes `{"channel":NAME,`.
-            line.splice(0..1, prefix.bytes());
+            write_channel_event(&mut line, prefix, event, t)?;
             pushed.lines.push(line);
             Ok(())
         })?;
@@ -266,5 +270,41 @@ mod tests {
         assert!(channel.already_seen(119.0));
         assert!(!channel.already_seen(119.5));
         assert_eq!(channel.record().samples, 20);
+    }
+
+    #[test]
+    fn a_name_with_quotes_backslashes_and_control_characters_is_escaped() {
+        // The service admits only `[A-Za-z0-9._-]` names (`topics::valid_channel`); the
+        // line is still written escaped whatever the name.
+        let name = "cell \"7\"\\b\u{1}\n";
+        let config = MonitorConfig::<f64>::default_for_range(1.0, 1000.0);
+        let engine = Engine::<f64>::new(&config, None).unwrap();
+        let mut channel = Channel::new(name.into(), engine, None);
+        let sample = Sample {
+            seq: 0,
+            t: 5.0,
+            raw: f64::NAN,
+            reference: None,
+            temperature: None,
+        };
+        let mut lines = channel.push(sample, true).unwrap().lines;
+        let sample = Sample {
+            raw: 10.0,
+            t: 6.0,
+            ..sample
+        };
+        lines.extend(channel.push(sample, true).unwrap().lines);
+        assert_eq!(lines.len(), 1, "one sample_rejected event");
+        let text = String::from_utf8(lines[0].clone()).unwrap();
+        assert!(!text.contains('\n') && !text.contains('\u{1}'), "{text}");
+        let event: Value = serde_json::from_str(&text).unwrap();
+        assert_eq!(event["channel"], name, "{text}");
+        assert_eq!(event["seq"], 0);
+        assert_eq!(event["kind"], "sample_rejected");
+        // Escapes of RFC 8259, section 7: `\"`, `\\`, `\u0001`, `\n`.
+        assert!(
+            text.starts_with(r#"{"channel":"cell \"7\"\\b\u0001\n","seq":0,"#),
+            "{text}"
+        );
     }
 }
