@@ -535,6 +535,26 @@ fn broker_and_service_restarts_lose_nothing() {
             .any(|s| s["connection"]["lost"].as_u64() >= Some(1))
     });
     assert!(reported, "a status reports the lost connection");
+    // The broker's confirmations add up in every status, across the broker's restart and
+    // the service's: each publication confirmed at most once, none given up (the broker
+    // kept the session).
+    let mut statuses = 0;
+    for (topic, payload) in collector.seen.lock().unwrap().iter() {
+        if !topic.ends_with("/status") {
+            continue;
+        }
+        let link = &serde_json::from_slice::<Value>(payload).unwrap()["connection"];
+        let count = |key: &str| link[key].as_u64().unwrap();
+        assert!(count("confirmed") <= count("published"), "{link}");
+        assert_eq!(
+            count("published"),
+            count("confirmed") + count("unconfirmed") + count("given_up"),
+            "{link}"
+        );
+        assert_eq!(count("given_up"), 0, "{link}");
+        statuses += 1;
+    }
+    assert!(statuses > 0);
     for (channel, (events, summary)) in &expected {
         let (published, repeats) = events_of(&collector, channel);
         assert_eq!(
@@ -843,12 +863,18 @@ fn mqtts_with_an_authority_file_and_a_client_certificate() {
     let (published, repeats) = events_of(&collector, "cell-t");
     assert_eq!(published, events, "events over TLS equal replay's");
     assert_eq!(repeats, 0);
+    // Refused and stopped by SIGTERM: the exit status of a clean stop, and why it never
+    // connected as the last word.
     for child in [untrusted, anonymous] {
-        signal(&child, "TERM");
-        let output = child.wait_with_output().unwrap();
-        let refused = String::from_utf8_lossy(&output.stderr);
+        let refused = stop_watch(child);
         assert!(refused.contains("connection lost or refused"), "{refused}");
-        assert!(!refused.contains("connected to"), "{refused}");
+        let last = refused.lines().last().unwrap_or_default();
+        let prefix = format!("steadycal: stopped without ever connecting to {url}: ");
+        let reason = last.strip_prefix(&prefix).expect(&refused);
+        assert!(
+            refused.contains(&format!("connection lost or refused ({reason})")),
+            "{refused}"
+        );
     }
 }
 
@@ -888,6 +914,26 @@ fn a_topic_level_with_a_quote_or_a_backslash_is_refused_and_reported() {
     let seen = collector.seen.lock().unwrap();
     assert!(
         seen.iter().all(|(topic, _)| !topic.contains('"')),
+        "{stderr}"
+    );
+}
+
+#[test]
+fn stopped_before_any_connection_it_exits_cleanly_and_says_why() {
+    // No broker needed: nothing listens on the port.
+    let dir = tempfile::tempdir().unwrap();
+    let url = format!("mqtt://127.0.0.1:{}", free_port());
+    let child = watch(&url, &dir.path().join("state"), &[]);
+    // Past the first attempts (0.1 s, 0.2 s, 0.4 s apart), into a wait between two.
+    std::thread::sleep(Duration::from_millis(1200));
+    let stderr = stop_watch(child);
+    assert!(
+        stderr.contains("connection lost or refused (I/O: Connection refused"),
+        "{stderr}"
+    );
+    assert_eq!(
+        stderr.lines().last().unwrap_or_default(),
+        format!("steadycal: stopped without ever connecting to {url}: I/O: Connection refused (os error 111)"),
         "{stderr}"
     );
 }

@@ -4,14 +4,16 @@
 //! TLS), [`topics`] (channel from topic, the topics published), [`payload`] (JSON and CSV
 //! sample payloads), [`channel`] (one channel: the engine `replay` drives, its numbering,
 //! alarms since-when, status), [`state`] (the state directory: snapshots and records,
-//! written power-safe), [`service`] (the loop: network thread, save points,
-//! acknowledgements, reconnects, shutdown).
+//! written power-safe), [`confirm`] (the broker's confirmations of what is published,
+//! by packet id), [`service`] (the loop: network thread, save points, acknowledgements,
+//! reconnects, shutdown).
 //!
 //! The client is `rumqttc` (MQTT 3.1.1) with rustls on the ring provider; the session is
 //! persistent (clean session off, fixed client id) and every subscription and publication
 //! is QoS 1.
 
 pub mod channel;
+pub mod confirm;
 pub mod options;
 pub mod payload;
 pub mod service;

@@ -15,6 +15,14 @@
 //! processed again, and their events published again with the same `seq` (a reader
 //! keeps the first of a (`channel`, `seq`, `kind`) line).
 //!
+//! The broker's confirmations of what steadycal publishes are counted per publication by
+//! packet id ([`Confirmations`]); a save point waits until every publication is confirmed
+//! or given up (the broker kept no session, or 5 s passed).
+//!
+//! SIGINT or SIGTERM stops the service cleanly (exit status 0), connected or not: it saves,
+//! acknowledges what it may, disconnects, and says so; a service that never connected says
+//! why on standard error.
+//!
 //! Invariant: a message is acknowledged only on the connection it came on. An MQTT 3.1.1
 //! acknowledgement names a packet id, and the broker hands a freed id to the next message;
 //! an acknowledgement of a message from a lost connection, written on the next one, frees
@@ -32,10 +40,11 @@ use std::sync::{Arc, Mutex, PoisonError};
 use std::time::{Duration, Instant, SystemTime, UNIX_EPOCH};
 
 use anyhow::Result;
-use rumqttc::{Client, Connection, Event, Packet, Publish, QoS};
+use rumqttc::{Client, Connection, Event, Outgoing, Packet, Publish, QoS, Request};
 use serde_json::{json, Value};
 
 use super::channel::Channel;
+use super::confirm::{Confirmations, Counts};
 use super::payload::{parse, Malformed, PayloadFormat};
 use super::state::StateDir;
 use super::topics::{valid_channel, Output, Topics};
@@ -66,6 +75,23 @@ pub enum Note {
     Event(Event, u64),
     /// The connection was lost (the reason) and is retried after the delay.
     Lost(String, Duration),
+    /// The broker kept no session (sent just before its `CONNACK`): the client dropped
+    /// what the last connection left unacknowledged, and these publications it had not
+    /// written.
+    NewSession {
+        /// Publications handed to the client and not written when the connection ended.
+        unwritten: u64,
+    },
+}
+
+/// Publications the client holds unwritten (packet id 0) after [`rumqttc::EventLoop::clean`].
+fn unwritten(connection: &Connection) -> u64 {
+    connection
+        .eventloop
+        .pending
+        .iter()
+        .filter(|request| matches!(request, Request::Publish(p) if p.pkid == 0))
+        .count() as u64
 }
 
 /// Starts the network thread.
@@ -78,11 +104,19 @@ pub fn network(
     std::thread::spawn(move || {
         let mut backoff = Duration::from_millis(100);
         let mut current = *generation.lock();
+        let mut held = 0;
         while let Ok(notification) = connection.recv() {
             match notification {
                 Ok(event) => {
-                    if matches!(event, Event::Incoming(Packet::ConnAck(_))) {
+                    if let Event::Incoming(Packet::ConnAck(ack)) = &event {
                         backoff = Duration::from_millis(100);
+                        // The client cleared what it held (`EventLoop::poll`).
+                        if !ack.session_present
+                            && sender.send(Note::NewSession { unwritten: held }).is_err()
+                        {
+                            return;
+                        }
+                        held = 0;
                     }
                     if sender.send(Note::Event(event, current)).is_err() {
                         return;
@@ -97,6 +131,7 @@ pub fn network(
                         *shared += 1;
                         current = *shared;
                         connection.eventloop.clean();
+                        held = unwritten(&connection);
                     }
                     if stop.load(Ordering::SeqCst) {
                         return;
@@ -107,6 +142,9 @@ pub fn network(
                     let until = Instant::now() + backoff;
                     while Instant::now() < until && !stop.load(Ordering::SeqCst) {
                         std::thread::sleep(Duration::from_millis(20));
+                    }
+                    if stop.load(Ordering::SeqCst) {
+                        return;
                     }
                     backoff = (backoff * 2).min(Duration::from_secs(10));
                 }
@@ -159,16 +197,22 @@ struct Link {
     connects: u64,
     lost: u64,
     last_lost: Option<(String, f64)>,
+    /// Why the last attempt to connect, or the last connection, ended.
+    last_failure: Option<String>,
 }
 
 impl Link {
-    fn json(&self) -> Value {
+    fn json(&self, counts: Counts) -> Value {
         json!({
             "state": if self.connected { "connected" } else { "reconnecting" },
             "reconnects": self.connects.saturating_sub(1),
             "lost": self.lost,
             "last_lost_reason": self.last_lost.as_ref().map(|l| l.0.clone()),
             "last_lost_at": self.last_lost.as_ref().map(|l| l.1),
+            "published": counts.published,
+            "confirmed": counts.confirmed,
+            "unconfirmed": counts.unconfirmed,
+            "given_up": counts.given_up,
         })
     }
 }
@@ -183,8 +227,7 @@ pub struct Service<R: FeedFloat + Display> {
     index: HashMap<String, usize>,
     pending: Vec<(Publish, u64)>,
     generation: Generation,
-    published: u64,
-    confirmed: u64,
+    confirm: Confirmations,
     save_due: bool,
     unconfirmed_since: Option<Instant>,
     refused: u64,
@@ -216,8 +259,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
             index: HashMap::new(),
             pending: Vec::new(),
             generation,
-            published: 0,
-            confirmed: 0,
+            confirm: Confirmations::default(),
             save_due: false,
             unconfirmed_since: None,
             refused: 0,
@@ -257,7 +299,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         self.client
             .publish(topic, QoS::AtLeastOnce, retain, payload)
             .map_err(|e| anyhow::anyhow!("cannot hand a message to the MQTT client: {e}"))?;
-        self.published += 1;
+        self.confirm.handed();
         Ok(())
     }
 
@@ -272,7 +314,8 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         let channel = &mut self.channels[i];
         channel.checks_reported = channel.checks();
         let topic = self.settings.topics.output(&channel.name, Output::Status);
-        let payload = serde_json::to_vec(&channel.status_json(&self.link.json()))?;
+        let payload =
+            serde_json::to_vec(&channel.status_json(&self.link.json(self.confirm.counts())))?;
         self.publish(topic, payload, true)
     }
 
@@ -288,6 +331,10 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
                     false
                 }
                 Err(RecvTimeoutError::Timeout) => true,
+                // The network thread ends on its own only when asked to stop.
+                Err(RecvTimeoutError::Disconnected) if stop.load(Ordering::SeqCst) => {
+                    return self.shutdown(notes);
+                }
                 Err(RecvTimeoutError::Disconnected) => {
                     anyhow::bail!("the MQTT client stopped")
                 }
@@ -302,24 +349,38 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         }
     }
 
+    /// Counts what a note says of the broker's confirmations; true when it says nothing
+    /// else.
+    fn confirmation(&mut self, note: &Note) -> bool {
+        match note {
+            Note::Event(Event::Outgoing(Outgoing::Publish(pkid)), _) if *pkid != 0 => {
+                self.confirm.written(*pkid)
+            }
+            Note::Event(Event::Incoming(Packet::PubAck(ack)), _) => {
+                self.confirm.acknowledged(ack.pkid);
+            }
+            Note::NewSession { unwritten } => {
+                let dropped = self.confirm.new_session(*unwritten);
+                if dropped > 0 && !self.settings.quiet {
+                    eprintln!("steadycal: warning: the broker kept no session; {dropped} publication(s) not confirmed are given up");
+                }
+            }
+            _ => return false,
+        }
+        true
+    }
+
     fn note(&mut self, note: Note) -> Result<()> {
+        if self.confirmation(&note) {
+            return Ok(());
+        }
         match note {
             Note::Event(Event::Incoming(Packet::Publish(publish)), generation) => {
                 self.sample(publish, generation)
             }
-            Note::Event(Event::Incoming(Packet::PubAck(_)), _) => {
-                self.confirmed += 1;
-                Ok(())
-            }
             Note::Event(Event::Incoming(Packet::ConnAck(ack)), _) => {
                 self.link.connected = true;
                 self.link.connects += 1;
-                if self.link.connects > 1 {
-                    // The client sends again what the lost connection left unconfirmed,
-                    // but a publication the broker took without answering may come back
-                    // confirmed or not: count from here so a save is never held forever.
-                    self.confirmed = self.published;
-                }
                 if !self.settings.quiet {
                     let again = if self.link.connects > 1 { "re" } else { "" };
                     eprintln!("steadycal: {again}connected to {}", self.settings.shown);
@@ -339,7 +400,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
                 }
                 Ok(())
             }
-            Note::Event(..) => Ok(()),
+            Note::Event(..) | Note::NewSession { .. } => Ok(()),
             Note::Lost(reason, retry) => {
                 // Unacknowledged samples come back, flagged, on the next connection.
                 self.pending.clear();
@@ -348,6 +409,7 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
                     self.link.last_lost = Some((reason.clone(), now_seconds()));
                 }
                 self.link.connected = false;
+                self.link.last_failure = Some(reason.clone());
                 eprintln!(
                     "steadycal: broker {}: connection lost or refused ({reason}); retrying in {:.1} s",
                     self.settings.shown,
@@ -497,21 +559,20 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
         if !due || !self.link.connected {
             return Ok(());
         }
-        if self.confirmed < self.published {
+        if !self.confirm.settled() {
             // Held until the broker confirms what was published, but never for ever: a
-            // confirmation lost with a connection would otherwise stop every save.
+            // broker that stops confirming would otherwise stop every save.
             let since = *self.unconfirmed_since.get_or_insert_with(Instant::now);
             if since.elapsed() < CONFIRM_WAIT {
                 return Ok(());
             }
+            let lapsed = self.confirm.lapse();
             if !self.settings.quiet {
                 eprintln!(
-                    "steadycal: warning: {} publication(s) unconfirmed for {} s; saving anyway",
-                    self.published - self.confirmed,
+                    "steadycal: warning: {lapsed} publication(s) unconfirmed for {} s; saving anyway",
                     CONFIRM_WAIT.as_secs()
                 );
             }
-            self.confirmed = self.published;
         }
         self.unconfirmed_since = None;
         self.save_and_ack()
@@ -535,19 +596,23 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
     }
 
     /// On SIGINT or SIGTERM: wait (a while) for the broker to confirm what was published,
-    /// save and acknowledge, publish every status, disconnect.
+    /// save and acknowledge, disconnect. A service that never connected has processed
+    /// nothing: it saves (nothing changed) and says why it never connected.
     fn shutdown(&mut self, notes: &Receiver<Note>) -> Result<()> {
+        let never = self.link.connects == 0;
         let deadline = Instant::now() + CONFIRM_WAIT;
-        while self.confirmed < self.published && Instant::now() < deadline {
+        while !never && !self.confirm.settled() && Instant::now() < deadline {
             match notes.recv_timeout(Duration::from_millis(50)) {
-                Ok(Note::Event(Event::Incoming(Packet::PubAck(_)), _)) => self.confirmed += 1,
                 Ok(Note::Lost(..)) => break,
-                // Samples arriving now are not acknowledged: they come back on restart.
-                Ok(_) | Err(RecvTimeoutError::Timeout) => {}
+                Ok(note) => {
+                    // Samples arriving now are not acknowledged: they come back on restart.
+                    self.confirmation(&note);
+                }
+                Err(RecvTimeoutError::Timeout) => {}
                 Err(RecvTimeoutError::Disconnected) => break,
             }
         }
-        let saved = if self.confirmed >= self.published {
+        let saved = if never || self.confirm.settled() {
             self.save_and_ack()?;
             true
         } else {
@@ -563,7 +628,17 @@ impl<R: FeedFloat + Display + 'static> Service<R> {
                 _ => {}
             }
         }
-        if !self.settings.quiet {
+        if never {
+            let why = self
+                .link
+                .last_failure
+                .as_deref()
+                .unwrap_or("no attempt to connect had finished");
+            eprintln!(
+                "steadycal: stopped without ever connecting to {}: {why}",
+                self.settings.shown
+            );
+        } else if !self.settings.quiet {
             let kept = match (&self.state, saved) {
                 (Some(_), true) => "state saved",
                 (Some(_), false) => "state kept at the last save",
