@@ -35,7 +35,7 @@ pub struct MqttArgs {
     #[arg(long, value_name = "N", default_value_t = 100)]
     pub save_every: u64,
     /// Acknowledge samples to the broker, after saving the state, at the latest when this
-    /// many are waiting (keep it below the broker's in-flight limit, 20 in mosquitto).
+    /// many are waiting (at most the broker's in-flight limit, 20 in mosquitto).
     #[arg(long, value_name = "N", default_value_t = 16)]
     pub ack_window: usize,
     /// Publish a channel's retained status every N checks.
