@@ -94,6 +94,31 @@ impl MissingMarkers {
         self.index_of_value(value)
     }
 
+    /// The position in [`MissingMarkers::texts`] of the marker a cell's text matches when
+    /// numbers are written with a decimal comma: its text, or its number (`-9999,90` is
+    /// the marker `-9999.9`) read in f64 from the text, never from a value already narrowed
+    /// to a run's float type. Allocates only for a cell of more than 64 bytes.
+    pub fn index_of_comma(&self, cell: &str) -> Option<usize> {
+        let text = cell.trim();
+        if let Some(index) = self.texts.iter().position(|m| m.eq_ignore_ascii_case(text)) {
+            return Some(index);
+        }
+        if self.values.is_empty() {
+            return None;
+        }
+        let mut buffer = [0u8; 64];
+        let value = match buffer.get_mut(..text.len()) {
+            Some(out) => {
+                for (o, b) in out.iter_mut().zip(text.bytes()) {
+                    *o = if b == b',' { b'.' } else { b };
+                }
+                std::str::from_utf8(out).ok()?.parse::<f64>().ok()?
+            }
+            None => text.replace(',', ".").parse::<f64>().ok()?,
+        };
+        self.index_of_value(value)
+    }
+
     /// The numeric marker a parsed value equals, if any.
     pub fn marker_of_value(&self, value: f64) -> Option<&str> {
         self.index_of_value(value).map(|i| self.texts[i].as_str())
@@ -185,6 +210,14 @@ mod tests {
         assert_eq!(m.marker_of("NULL"), Some("null"));
         assert_eq!(m.marker_of("-199.9"), None);
         assert_eq!(m.marker_of_value(-200.0), Some("-200"));
+        let comma = MissingMarkers::new(&["-9999.9"]).unwrap();
+        assert_eq!(comma.index_of_comma("-9999,90"), Some(2));
+        assert_eq!(
+            comma.index_of_comma(&format!("-9999,9{}", "0".repeat(70))),
+            Some(2)
+        );
+        assert_eq!(comma.index_of_comma("-9999,8"), None);
+        assert_eq!(comma.index_of_comma("na"), Some(1));
         assert_eq!(m.texts(), ["", "NA", "-200", "null"]);
     }
 

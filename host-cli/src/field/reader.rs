@@ -347,7 +347,14 @@ impl LogReader {
         }
         let line = self.record.position().map(|p| p.line()).unwrap_or(0);
         let columns = &self.columns;
-        let missing = |i: usize| self.missing.is_missing(self.cell_text(i));
+        let missing = |i: usize| {
+            let text = self.cell_text(i);
+            if self.decimal_comma {
+                self.missing.index_of_comma(text).is_some()
+            } else {
+                self.missing.is_missing(text)
+            }
+        };
         Some(Ok(RowShape {
             line,
             channel: columns
@@ -468,8 +475,16 @@ impl LogReader {
             });
         };
         let text = text.trim();
-        if let Some(marker) = self.missing.marker_of(text) {
-            self.tally.count(name, marker);
+        // Markers are matched on the cell's text (a numeric marker by the text's number in
+        // f64), as the canonical reader does, never on the value narrowed to the run's
+        // float type: in f32, `-9999.9` is no f64 marker and `-200.000001` reads as -200.
+        let marker = if self.decimal_comma {
+            self.missing.index_of_comma(text)
+        } else {
+            self.missing.index_of(text)
+        };
+        if let Some(marker) = marker {
+            self.tally.count(name, &self.missing.texts()[marker]);
             return Ok(None);
         }
         // The canonical reader's cell parser (bit for bit `str::parse`, faster on plain
@@ -489,13 +504,7 @@ impl LogReader {
                 .and_then(|t| t.parse::<T>().ok()),
         };
         match parsed {
-            Some(value) => {
-                if let Some(marker) = self.missing.marker_of_value(value.to_f64()) {
-                    self.tally.count(name, marker);
-                    return Ok(None);
-                }
-                Ok(Some(value))
-            }
+            Some(value) => Ok(Some(value)),
             None => Err(FeedError::BadRow {
                 location: self.location(line, index + 1),
                 message: format!(
@@ -671,6 +680,26 @@ mod tests {
         );
         assert_eq!(r.blank_rows, 1);
         assert_eq!(r.tally.column_total("s1"), 0);
+    }
+
+    #[test]
+    fn numeric_markers_match_the_text_not_the_narrowed_value() {
+        let layout = LogLayout {
+            separator: b';',
+            decimal_comma: true,
+            missing: MissingMarkers::new(&["-9999.9", "-200"]).unwrap(),
+            ..LogLayout::default()
+        };
+        let text = "t;raw;ref\n0;-9999,9;-200,0\n1;-200,000001;5\n";
+        let mut r = reader(text, &layout).unwrap();
+        let mut row = LogRow::<f32>::default();
+        r.next_row(&mut row).unwrap().unwrap();
+        assert_eq!((row.raw[0], row.reference), (None, None));
+        r.next_row(&mut row).unwrap().unwrap();
+        // -200.000001 is a measurement (it rounds to -200 in f32, which is no marker test).
+        assert_eq!(row.raw[0], Some(-200.0f32));
+        assert_eq!(r.tally.by_column["raw"]["-9999.9"], 1);
+        assert_eq!(r.tally.by_column["ref"]["-200"], 1);
     }
 
     #[test]
