@@ -668,3 +668,93 @@ fn rows_without_a_raw_value_keep_their_seq_in_every_reader() {
         "{checks:.300}"
     );
 }
+
+#[test]
+fn a_decimal_comma_marker_is_missing_in_an_f32_run() {
+    let dir = scratch("f32-marker");
+    let feed = dir.join("logger.csv");
+    let mut text = String::from("t;raw;ref\n");
+    for i in 0..60 {
+        // Every tenth raw value lost (-9999,9), every third row a check.
+        let raw = if i % 10 == 4 {
+            "-9999,9".to_string()
+        } else {
+            format!("{},5", 100 + i)
+        };
+        let reference = if i % 3 == 0 {
+            format!("{},0", 100 + i)
+        } else {
+            String::new()
+        };
+        text.push_str(&format!("{i};{raw};{reference}\n"));
+    }
+    std::fs::write(&feed, text).unwrap();
+    let summary = dir.join("summary.json");
+    steadycal()
+        .arg("replay")
+        .arg(&feed)
+        .args(["--separator", ";", "--decimal-comma", "--missing=-9999.9"])
+        .args([
+            "--precision",
+            "f32",
+            "--level-low",
+            "1",
+            "--level-high",
+            "1000",
+        ])
+        .arg("--summary")
+        .arg(&summary)
+        .assert()
+        .success();
+    let s = json(&summary);
+    // -9999.9 has no exact f32; the marker is matched on the cell, so the six lost values
+    // are missing, not measurements.
+    assert_eq!(s["missing"]["raw"]["-9999.9"], 6);
+    assert_eq!(s["missing_raw"], 6);
+    assert_eq!(s["samples"], 54);
+}
+
+#[test]
+fn a_log_without_any_sensor_value_says_so() {
+    let dir = scratch("no-values");
+    // Canonical reader: every raw cell empty or NA.
+    let canonical = dir.join("canonical.csv");
+    std::fs::write(&canonical, "t,raw,ref\n0,,1\n1,NA,2\n2,,\n").unwrap();
+    let file = canonical.display().to_string();
+    let stderr = failure(&["replay", &file]);
+    assert!(
+        stderr.contains(&format!("{file}: all 3 data rows have a missing sensor value (column `raw`, markers \"\", \"NA\"), expected at least one value")),
+        "{stderr}"
+    );
+    // Field reader: a logger's -200 in every raw cell, a blank row.
+    let logger = dir.join("logger.csv");
+    std::fs::write(
+        &logger,
+        "when;S1;CO\n10/03/2004 18:00:00;-200;2,6\n10/03/2004 19:00:00;-200;-200\n;;\n",
+    )
+    .unwrap();
+    let file = logger.display().to_string();
+    let summary = dir.join("summary.json");
+    let stderr = failure(&[
+        "replay",
+        &file,
+        "--separator",
+        ";",
+        "--decimal-comma",
+        "--time-column",
+        "when",
+        "--time-format",
+        "%d/%m/%Y %H:%M:%S",
+        "--raw-column",
+        "S1",
+        "--ref-column",
+        "CO",
+        "--missing=-200",
+        "--summary",
+        &summary.display().to_string(),
+    ]);
+    let message = format!("{file}: all 3 data rows have a missing sensor value (column `S1`, markers \"\", \"NA\", \"-200\"), expected at least one value");
+    assert!(stderr.contains(&message), "{stderr}");
+    assert!(!stderr.contains("no data rows"), "{stderr}");
+    assert_eq!(json(&summary)["stopped_at"], message.as_str());
+}

@@ -82,6 +82,19 @@ pub enum FeedError {
         /// File name.
         file: String,
     },
+    /// Data rows follow the header, but none has a sensor value: every raw cell is a
+    /// missing marker (or the row is blank).
+    #[error("{file}: all {rows} data rows have a missing sensor value (column `{column}`, markers {markers}), expected at least one value")]
+    NoValues {
+        /// File name.
+        file: String,
+        /// Data rows read, every one without a sensor value.
+        rows: u64,
+        /// The sensor (raw) column.
+        column: String,
+        /// The missing markers in force, quoted.
+        markers: String,
+    },
     /// A device log holds no intact sample record.
     #[error("{file}: no intact sample record in the device log, expected at least one (damaged spans are listed in the summary)")]
     NoRecords {

@@ -392,6 +392,13 @@ impl<'a, R: Real + Display> Run<'a, R> {
             census_entries(map, &census, options);
             extra(map);
         }
+        no_values(
+            &mut error,
+            &mut summary,
+            &options.columns.raw,
+            &options.missing,
+            0,
+        );
         let suspects = census.suspects();
         if options.warnings {
             census_warnings(file, &census, &suspects, options);
@@ -413,6 +420,38 @@ impl<'a, R: Real + Display> Run<'a, R> {
             suspects,
         })
     }
+}
+
+/// Words a run that gave no sample because every data row lacks a sensor value
+/// ([`FeedError::NoValues`] instead of [`FeedError::NoRows`], in `error` and in the
+/// summary's `stopped_at`), from the summary's `missing_raw` and `blank_rows` more rows
+/// without any value. Left as it is when bad rows were skipped (not every row lacks a
+/// value then) or nothing was missing.
+pub fn no_values(
+    error: &mut Option<FeedError>,
+    summary: &mut Value,
+    column: &str,
+    markers: &crate::field::missing::MissingMarkers,
+    blank_rows: u64,
+) {
+    let Some(FeedError::NoRows { file }) = error else {
+        return;
+    };
+    let missing_raw = summary["missing_raw"].as_u64().unwrap_or(0);
+    if missing_raw == 0 || summary["rows_skipped"].as_u64().unwrap_or(0) > 0 {
+        return;
+    }
+    let quoted: Vec<String> = markers.texts().iter().map(|m| format!("{m:?}")).collect();
+    let better = FeedError::NoValues {
+        file: file.clone(),
+        rows: missing_raw + blank_rows,
+        column: column.to_string(),
+        markers: quoted.join(", "),
+    };
+    if let Value::Object(map) = summary {
+        map.insert("stopped_at".into(), json!(better.to_string()));
+    }
+    *error = Some(better);
 }
 
 /// The summary entries of the census: the time span, suspected undeclared missing markers,

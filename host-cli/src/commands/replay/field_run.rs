@@ -181,6 +181,17 @@ pub fn run(
     };
     if let Value::Object(map) = &mut result.summary {
         summary_entries(map, &tally, plan);
+    }
+    // A log whose every raw cell is missing says so (the run's own check counts no blank
+    // rows: the field reader counts them).
+    crate::replay::run::no_values(
+        &mut result.error,
+        &mut result.summary,
+        plan.sensor.raw.first().map_or("raw", String::as_str),
+        &plan.sensor.missing,
+        tally.blank_rows,
+    );
+    if let Value::Object(map) = &mut result.summary {
         map.insert(
             "level_low".into(),
             serde_json::json!(options.config.level_low),
