@@ -16,6 +16,11 @@
 //! limits 0.03113656 and 0.17982178 (chemCal output; Procontrol 3.1: 0.07434); the line fitted
 //! to the standards, intercept 2481 and slope 9662 (envalysis).
 //!
+//! The line fitted to the standards as printed by envalysis 0.7.0 on its reference page
+//! (`reference/calibration.html`, examples `as.list(din)` and `summary(din)`): intercept
+//! 2480.867 (standard error 131.4), slope 9661.939 (standard error 423.4), residual standard
+//! error 192.3 on 8 degrees of freedom.
+//!
 //! Partial check, stated plainly: both packages ship the data set as binary R data, and no
 //! text copy of the 10 signals could be found, so the data are not read here. The line's
 //! summary is taken from chemCal's printed outputs: the slope b and intercept a from its two
@@ -136,6 +141,10 @@ fn din32645_blank_method() {
         blank.detection_limit
     );
     assert_eq!(blank.df, 9);
+    // envalysis 0.7.0, reference/calibration.html, `as.list(din)`: blank_mean 2080.8,
+    // blank_sd 172.2581.
+    assert_eq!(format!("{:.1}", blank.blank_mean), "2080.8");
+    assert_eq!(format!("{:.4}", blank.blank_sd), "172.2581");
     assert_eq!(format!("{:.3}", blank.critical_value), "0.053"); // envalysis: LOD 0.053
                                                                  // The standard's approximation: detection limit twice the critical value for α = β.
     assert!((blank.detection_limit - 2.0 * blank.critical_value).abs() < 1e-15);
@@ -156,4 +165,37 @@ fn din32645_blank_method() {
     // Fewer than two blank readings or a zero slope give no limits.
     assert!(din32645_blank(&[2003.0], b, 0.01, 0.01, 1).is_none());
     assert!(din32645_blank(&blanks, 0.0, 0.01, 0.01, 1).is_none());
+}
+
+/// The limits from the line as envalysis 0.7.0 prints it (intercept 2480.867, slope 9661.939,
+/// residual standard error 192.3 on 8 degrees of freedom), independent of chemCal's printed
+/// critical value: the critical value is no round trip here.
+#[test]
+fn din32645_from_the_printed_fit_summary() {
+    let (a, b, s): (f64, f64, f64) = (2480.867, 9661.939, 192.3); // envalysis 0.7.0, reference/calibration.html
+    let x: Vec<f64> = (1..=10).map(|i| 0.05 * i as f64).collect();
+    let n = x.len() as f64;
+    let mean = x.iter().sum::<f64>() / n;
+    let q: f64 = x.iter().map(|v| (v - mean).powi(2)).sum();
+    // The design x = 0.05 … 0.50: the printed standard errors follow from s and the design.
+    let se_a = s * (1.0 / n + mean * mean / q).sqrt();
+    let se_b = s / q.sqrt();
+    println!("SE(a) = {se_a:.4}, SE(b) = {se_b:.4}");
+    assert_eq!(format!("{se_a:.1}"), "131.4"); // envalysis: 131.4
+    assert_eq!(format!("{se_b:.1}"), "423.4"); // envalysis: 423.4
+                                               // The same line as chemCal's printed LOD points (rounded to 7 digits there and here).
+    assert!((a + b * 0.0698127 - 3155.393).abs() < 2e-3);
+    assert!((a + b * 0.08655484 - 3317.154).abs() < 2e-3);
+
+    let din = din32645(&x, s, b, 0.01, 0.01, 3.0, 1).unwrap();
+    println!(
+        "critical value {:.7}, detection limit {:.5}, quantification limit {:.5}",
+        din.critical_value, din.detection_limit, din.quantification_limit
+    );
+    assert_eq!(format!("{:.2}", din.critical_value), "0.07"); // DIN 32645
+    assert_eq!(format!("{:.4}", din.critical_value), "0.0698"); // Dintest
+                                                                // chemCal 0.0698127; s is printed to 4 digits, so within 0.05/192.3 relative.
+    assert!((din.critical_value - 0.0698127).abs() < 0.0698127 * 0.05 / 192.3);
+    assert_eq!(format!("{:.2}", din.detection_limit), "0.14"); // DIN 32645, alpha = beta = 0.01
+    assert_eq!(format!("{:.3}", din.quantification_limit), "0.212"); // chemCal, envalysis
 }

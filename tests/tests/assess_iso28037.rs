@@ -7,6 +7,13 @@
 //! `test/test_fitting.py`, tests `test_iso28037_wls1`, `test_iso28037_wls2`,
 //! `test_iso_ts28037_2010_fn`). Each value is compared to the printed digits (a value printed
 //! as 1.757 must round to 1.757).
+//!
+//! The same values, as "published values", are in GTC's documentation
+//! (`docs/API/straight_line_functions.rst`), which cites BS DD ISO/TS 28037:2010 (the British
+//! Standards Institution's edition): section 6.3, p. 13 (equal u(y): a = 1.867, u(a) = 0.465,
+//! b = 1.757, u(b) = 0.120, cov(a, b) = −0.05, χ² = 1.665 with 4 degrees of freedom);
+//! section 6.3, p. 15 (unequal u(y); GTC's test suite says p. 14 for the ISO edition); and
+//! section 7.4, p. 21 (uncertainties in both variables).
 
 use steadycal_cli::assess::{assess, AssessOptions, CalibrationData};
 
