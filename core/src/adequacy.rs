@@ -52,7 +52,8 @@ impl<R: Real, const BINS: usize> Default for MeanCheck<R, BINS> {
 ///
 /// ```
 /// use steadycal_core::adequacy::chi_square_quantile;
-/// // χ²(10) at 0.999 is 29.59 in standard tables (from memory); the approximation is close.
+/// // χ²(10) at 0.999 is 29.59 (SciPy 1.11.4 `stats.chi2.ppf(0.999, 10)` = 29.5883); the
+/// // approximation is close.
 /// let q = chi_square_quantile(10, 3.0902f64);
 /// assert!((q - 29.59).abs() < 0.3);
 /// ```
@@ -157,8 +158,8 @@ mod tests {
 
     #[test]
     fn wilson_hilferty_against_table() {
-        // χ² upper quantiles from standard tables (from memory): χ²(1, 0.999) = 10.83,
-        // χ²(5, 0.999) = 20.52, χ²(16, 0.999) = 39.25.
+        // χ² upper quantiles (SciPy 1.11.4 `stats.chi2.ppf(0.999, ν)`):
+        // χ²(1, 0.999) = 10.8276, χ²(5, 0.999) = 20.5150, χ²(16, 0.999) = 39.2524.
         assert!((chi_square_quantile(5, 3.0902f64) - 20.52).abs() < 0.3);
         assert!((chi_square_quantile(16, 3.0902f64) - 39.25).abs() < 0.3);
         assert!((chi_square_quantile(1, 3.0902f64) - 10.83).abs() < 1.0);

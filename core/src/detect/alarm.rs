@@ -52,7 +52,8 @@ impl AlarmRule {
 /// Defaults (see [`AlarmRules::DEFAULT`]) and why:
 /// - `bias_shift`: warn, 8 CUSUM signals each within 50 checks of the previous. A
 ///   two-sided CUSUM with k = 0.5, h = 5 signals every 465 checks in control (Montgomery,
-///   Introduction to Statistical Quality Control, tabular CUSUM table, from memory), and
+///   Introduction to Statistical Quality Control, tabular CUSUM table, from memory: no
+///   edition could be reached here), and
 ///   then a signal follows within 50 checks with probability about 0.09 (measured by
 ///   simulation), so eight in a row is a false alarm about once in 10^10 checks, while a
 ///   1σ shift signals every 10.4 checks and raises in about 85.

@@ -4,13 +4,14 @@
 //! when the calibration is right, whatever the level), the upper and lower sums are
 //! `C⁺ = max(0, C⁺ + z − k)` and `C⁻ = max(0, C⁻ − z − k)`, with reference value `k` and
 //! decision interval `h` in sigma units (Montgomery, Introduction to Statistical Quality
-//! Control, tabular CUSUM; from memory). A sum above `h` is a signal; the estimated shift is
-//! `k + C⁺/N⁺` (or `−k − C⁻/N⁻`), `N` the number of consecutive checks the sum has been
-//! positive, and both sums restart from zero after a signal.
+//! Control, tabular CUSUM; from memory: no edition could be reached here). A sum above `h`
+//! is a signal; the estimated shift is `k + C⁺/N⁺` (or `−k − C⁻/N⁻`), `N` the number of
+//! consecutive checks the sum has been positive, and both sums restart from zero after a
+//! signal.
 //!
 //! Defaults k = 0.5, h = 5: in-control average run length 465 checks, 10.4 checks for a
-//! 1σ shift (Montgomery's table for the two-sided tabular CUSUM, from memory; reproduced by
-//! simulation in the conformance tests).
+//! 1σ shift (Montgomery's table for the two-sided tabular CUSUM, from memory, no edition
+//! could be reached here; reproduced by simulation in the conformance tests).
 //!
 //! # Invariants
 //! - Both sums are finite and non-negative; a non-finite input is ignored.

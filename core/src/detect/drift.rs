@@ -17,8 +17,8 @@
 //! columns of σ²P by the same factors as `Basis::physical` (gain = θ₁/s, quadratic = θ₂/s²,
 //! temperature = θ/s_T), computed here by [`CovarianceLayout`].
 //!
-//! Default quantiles χ²_p(0.999) for p = 1..4: 10.828, 13.816, 16.266, 18.467 (standard χ²
-//! tables, from memory).
+//! Default quantiles χ²_p(0.999) for p = 1..4: 10.828, 13.816, 16.266, 18.467 (SciPy 1.11.4
+//! `stats.chi2.ppf(0.999, p)`: 10.8276, 13.8155, 16.2662, 18.4668).
 //!
 //! # Invariants
 //! - A baseline is finite with a non-negative covariance diagonal ([`Baseline::new`]).
@@ -46,7 +46,7 @@ pub struct DriftConfig<R> {
 }
 
 impl<R: Real> DriftConfig<R> {
-    /// χ²_p(0.999), p = 1..4 (standard χ² tables, from memory).
+    /// χ²_p(0.999), p = 1..4 (SciPy 1.11.4 `stats.chi2.ppf(0.999, p)`, rounded to 3 decimals).
     pub fn chi_square_999() -> [R; 4] {
         [10.828, 13.816, 16.266, 18.467].map(R::from_f64)
     }

@@ -123,10 +123,11 @@ impl<R: Real> DetectConfig<R> {
     /// - stuck after 50 identical raw values, or a window of 32 checks whose raw range is
     ///   below 1 % of the predicted range (common practice, no source);
     /// - spikes beyond 6 standardized units (a normal residual passes 6σ about twice in
-    ///   10^9 checks; standard normal tables, from memory), accepted as a change from the
-    ///   3rd in a row;
+    ///   10^9 checks: SciPy 1.11.4 `2 * stats.norm.sf(6)` = 1.97e-9), accepted as a change
+    ///   from the 3rd in a row;
     /// - reference gap after one day, 86,400 s (a daily check, common practice, no source);
-    /// - CUSUM k = 0.5, h = 5 (Montgomery, from memory); spread jump k = 0.3, h = 8;
+    /// - CUSUM k = 0.5, h = 5 (Montgomery's tabular CUSUM; from memory, the book could not
+    ///   be reached here); spread jump k = 0.3, h = 8;
     /// - drift: gain tolerance 1 %, offset tolerance `low` raw units, χ²_p(0.999), baseline
     ///   frozen 1000 checks after the warm-up, evaluated every 16 checks;
     /// - alarm rules [`AlarmRules::DEFAULT`].

@@ -4,9 +4,11 @@
 //! level. A jump of the SD by a ratio ρ at all levels multiplies `z²` by ρ², i.e. shifts
 //! `ln z²` by `2 ln ρ`. The detector is a one-sided upper CUSUM on
 //! `v = (ln z² − E[ln χ²₁]) / SD[ln χ²₁]`, with `E[ln χ²₁] = ψ(1/2) + ln 2 = −1.2704` and
-//! `SD[ln χ²₁] = √(ψ′(1/2)) = π/√2 = 2.2214` (digamma and trigamma at 1/2, standard
-//! special-function tables, from memory). The logarithm keeps one large residual from
-//! dominating (the upper tail of `ln χ²₁` is light), which a CUSUM on `z² − 1` would not.
+//! `SD[ln χ²₁] = √(ψ′(1/2)) = π/√2 = 2.2214` (digamma and trigamma at 1/2; SciPy 1.11.4
+//! gives `special.digamma(0.5) + log(2)` = −1.2703628454614782 and
+//! `sqrt(special.polygamma(1, 0.5))` = 2.221441469079183). The logarithm keeps one large
+//! residual from dominating (the upper tail of `ln χ²₁` is light), which a CUSUM on `z² − 1`
+//! would not.
 //!
 //! This is distinct from `spread_tracks_level`: that one says the scatter depends on the
 //! level (a shape), this one says the scatter grew everywhere (a change in time).
@@ -23,9 +25,9 @@ use serde::{Deserialize, Serialize};
 
 use crate::real::{non_negative_setting, positive_setting, Real};
 
-/// `E[ln χ²₁] = ψ(1/2) + ln 2` (from memory).
+/// `E[ln χ²₁] = ψ(1/2) + ln 2` (SciPy 1.11.4: `special.digamma(0.5) + log(2)`).
 pub const MEAN_LN_CHI_SQUARE_1: f64 = -1.270_362_845_461_478;
-/// `SD[ln χ²₁] = π/√2` (from memory).
+/// `SD[ln χ²₁] = π/√2` (SciPy 1.11.4: `sqrt(special.polygamma(1, 0.5))`).
 pub const SD_LN_CHI_SQUARE_1: f64 = 2.221_441_469_079_183;
 
 /// Settings of a [`SpreadJumpCusum`], in units of `SD[ln χ²₁]`.
@@ -128,8 +130,9 @@ mod tests {
 
     #[test]
     fn constants_match_closed_forms() {
-        // ψ(1/2) = −γ − 2 ln 2 and ψ′(1/2) = π²/2 (Abramowitz & Stegun 6.3.3 and 6.4.4,
-        // from memory); γ = 0.5772156649 (from memory).
+        // ψ(1/2) = −γ − 2 ln 2 and ψ′(1/2) = π²/2: the closed forms, checked against
+        // SciPy 1.11.4 (`special.digamma(0.5)`, `special.polygamma(1, 0.5)`); γ as SciPy
+        // 1.11.4 gives it (`-special.digamma(1)` = 0.5772156649015329).
         let gamma = 0.577_215_664_901_532_9;
         let mean = -gamma - 2.0 * core::f64::consts::LN_2 + core::f64::consts::LN_2;
         assert!((mean - MEAN_LN_CHI_SQUARE_1).abs() < 1e-12);

@@ -44,14 +44,14 @@ pub struct MonitorConfig<R> {
     /// Checks before the spread bins and the ladder's likelihoods start.
     pub warm_up: u32,
     /// Log-likelihood lead a rung needs to count as winning (default χ²₁(0.999)/2 = 5.41;
-    /// the quantile 10.83 from standard χ² tables, from memory).
+    /// the quantile 10.83: SciPy 1.11.4 `stats.chi2.ppf(0.999, 1)` = 10.8276).
     pub switch_margin: R,
     /// Consecutive winning checks before a switch.
     pub switch_hold: u32,
     /// Rung to start on.
     pub initial_rung: Rung,
     /// Koenker statistic above which the scatter is said to track the level (default
-    /// χ²₁(0.999) = 10.83, standard χ² tables, from memory).
+    /// χ²₁(0.999) = 10.83; SciPy 1.11.4 `stats.chi2.ppf(0.999, 1)` = 10.8276).
     pub spread_threshold: R,
     /// How often (in checks) the spread exponent and Koenker statistic are evaluated.
     pub spread_every: u32,
@@ -59,8 +59,8 @@ pub struct MonitorConfig<R> {
     pub mean_check_after: u32,
     /// Residuals a level bin needs to take part in the mean-adequacy check.
     pub mean_check_min_per_bin: u32,
-    /// Standard normal quantile of the mean-adequacy check (default 3.090 for α = 0.001,
-    /// standard normal tables, from memory).
+    /// Standard normal quantile of the mean-adequacy check (default 3.090 for α = 0.001;
+    /// SciPy 1.11.4 `stats.norm.isf(0.001)` = 3.0902).
     pub mean_check_z: R,
     /// Normal quantile of the interval reported for k (default 1.96 for 95 %).
     pub interval_z: R,
