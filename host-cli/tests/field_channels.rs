@@ -150,3 +150,90 @@ fn a_wide_file_joined_to_one_reference_log_gives_each_channel_its_column_alone()
     }
     assert!(checked > 0);
 }
+
+/// A feed of 40 rows whose every tenth raw value and every fourth reference are the
+/// logger's -200 ("no value").
+fn marked_feed() -> String {
+    let mut text = String::from("t,raw,ref\n");
+    for i in 0..40 {
+        let raw = if i % 10 == 7 {
+            "-200".to_string()
+        } else {
+            format!("{}", 100 + i)
+        };
+        let reference = match i % 4 {
+            0 => "-200".to_string(),
+            2 => format!("{}", 100 + i),
+            _ => String::new(),
+        };
+        text.push_str(&format!("{i},{raw},{reference}\n"));
+    }
+    text
+}
+
+#[test]
+fn fleet_and_watch_take_missing_markers() {
+    let dir = scratch("markers");
+    let channels = dir.join("channels");
+    std::fs::create_dir_all(&channels).unwrap();
+    std::fs::write(channels.join("a.csv"), marked_feed()).unwrap();
+    let json_path = dir.join("fleet.json");
+    steadycal()
+        .arg("fleet")
+        .arg(&channels)
+        .args([
+            "--missing=-200",
+            "--level-low",
+            "1",
+            "--level-high",
+            "1000",
+            "--quiet",
+        ])
+        .arg("--json")
+        .arg(&json_path)
+        .assert()
+        .success();
+    let rows: Value = serde_json::from_slice(&std::fs::read(&json_path).unwrap()).unwrap();
+    // 40 rows, 4 raw values -200 (rows 7, 17, 27, 37): 36 samples; references on the 10
+    // rows with i % 4 == 2 (all even, so none lost its raw value): 10 checks.
+    assert_eq!(rows[0]["samples"], 36);
+    assert_eq!(rows[0]["checks"], 10);
+    let feed = dir.join("stream.csv");
+    std::fs::write(&feed, marked_feed()).unwrap();
+    let summary = dir.join("watch.summary.json");
+    steadycal()
+        .arg("watch")
+        .arg(&feed)
+        .args([
+            "--missing=-200",
+            "--level-low",
+            "1",
+            "--level-high",
+            "1000",
+            "--quiet",
+            "--json",
+        ])
+        .arg("--summary")
+        .arg(&summary)
+        .assert()
+        .success();
+    let s: Value = serde_json::from_slice(&std::fs::read(&summary).unwrap()).unwrap();
+    assert_eq!(s["samples"], 36);
+    assert_eq!(s["missing_raw"], 4);
+    assert_eq!(s["missing"]["ref"]["-200"], 10);
+    let output = steadycal()
+        .args([
+            "watch",
+            "--mqtt",
+            "mqtt://localhost:1",
+            "--topic",
+            "a/+",
+            "--missing=-200",
+        ])
+        .assert()
+        .code(2)
+        .get_output()
+        .clone();
+    assert!(String::from_utf8_lossy(&output.stderr)
+        .contains("--missing applies to a CSV stream, not to --mqtt payloads"));
+}

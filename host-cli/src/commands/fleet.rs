@@ -48,6 +48,10 @@ pub struct FleetArgs {
     /// Do not print the table on standard output.
     #[arg(long, short)]
     pub quiet: bool,
+    /// A cell text that means "no value" in every feed (repeatable; empty cells, NA and
+    /// the configuration's columns.missing always do), e.g. --missing=-200.
+    #[arg(long, value_name = "TEXT", value_parser = crate::field::missing::parse_marker, allow_hyphen_values = true)]
+    pub missing: Vec<String>,
     #[command(flatten)]
     pub monitor: MonitorArgs,
     #[command(flatten)]
@@ -187,7 +191,10 @@ fn channel(args: &FleetArgs, feed: &Path) -> FleetRow {
     options.precision = args.monitor.precision;
     options.columns = resolved.columns;
     options.baseline = resolved.baseline;
-    options.missing = resolved.missing;
+    options.missing = match super::with_markers(resolved.missing, &args.missing) {
+        Ok(markers) => markers,
+        Err(error) => return FleetRow::failed(file, format!("{error:#}")),
+    };
     options.warnings = false;
     // Channels run in parallel on the pool, one thread each: no parser thread per channel,
     // so `--jobs N` keeps N cores busy and no more.

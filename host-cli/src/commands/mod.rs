@@ -208,6 +208,23 @@ pub fn resolve(
     })
 }
 
+/// The markers of a configuration plus those of `--missing`.
+pub fn with_markers(
+    markers: crate::field::missing::MissingMarkers,
+    extra: &[String],
+) -> anyhow::Result<crate::field::missing::MissingMarkers> {
+    if extra.is_empty() {
+        return Ok(markers);
+    }
+    let all: Vec<&str> = markers
+        .texts()
+        .iter()
+        .map(String::as_str)
+        .chain(extra.iter().map(String::as_str))
+        .collect();
+    crate::field::missing::MissingMarkers::new(&all).map_err(|e| anyhow::anyhow!("--missing: {e}"))
+}
+
 /// The feed's column names: the command line's, else the file's `[columns]`, else the
 /// defaults.
 pub fn column_names(file: &ConfigFile, columns: &ColumnArgs) -> ColumnNames {

@@ -71,6 +71,11 @@ pub struct WatchArgs {
     /// Exit with code 1 when an event at or above this severity was raised.
     #[arg(long, value_enum, value_name = "LEVEL")]
     pub fail_on: Option<FailOn>,
+    /// A cell text that means "no value" (repeatable; empty cells, NA and the
+    /// configuration's columns.missing always do), e.g. --missing=-200. Time cells are
+    /// read as by `replay` without field options (seconds or RFC 3339).
+    #[arg(long, value_name = "TEXT", value_parser = crate::field::missing::parse_marker, allow_hyphen_values = true)]
+    pub missing: Vec<String>,
     #[command(flatten)]
     pub monitor: MonitorArgs,
     #[command(flatten)]
@@ -88,8 +93,12 @@ enum Message<R> {
 
 /// Runs `watch`.
 pub fn run(args: WatchArgs) -> anyhow::Result<ExitCode> {
-    let resolved = resolve(&args.monitor, &args.columns, None)?;
+    let mut resolved = resolve(&args.monitor, &args.columns, None)?;
+    resolved.missing = super::with_markers(resolved.missing, &args.missing)?;
     if let Some(url) = &args.broker.mqtt {
+        if !args.missing.is_empty() {
+            anyhow::bail!("--missing applies to a CSV stream, not to --mqtt payloads (a JSON payload leaves out `raw` when it has no value)");
+        }
         if args.input.as_os_str() != "-" || args.events.is_some() || args.summary.is_some() {
             anyhow::bail!("--mqtt reads samples from the broker and publishes events there; leave out FILE, --events and --summary");
         }
