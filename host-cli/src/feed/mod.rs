@@ -215,7 +215,7 @@ impl Default for ColumnNames {
 }
 
 /// The float types a feed is parsed into: `f32` and `f64`.
-pub trait FeedFloat: Real + FromStr + DecimalFloat + Send {}
+pub trait FeedFloat: Real + FromStr + DecimalFloat + Send + 'static {}
 impl FeedFloat for f32 {}
 impl FeedFloat for f64 {}
 

@@ -316,11 +316,8 @@ impl LogReader {
                     }));
                 }
             }
-            if self
-                .record
-                .iter()
-                .all(|c| c.iter().all(u8::is_ascii_whitespace))
-            {
+            // Every cell blank (the cells lie end to end in one slice).
+            if self.record.as_slice().iter().all(u8::is_ascii_whitespace) {
                 self.blank_rows += 1;
                 // A data row all the same (not one of a kept channel's rows).
                 self.rows += u64::from(self.only_channel.is_none());
@@ -420,6 +417,19 @@ impl LogReader {
     }
 
     fn time_cell(&mut self, line: u64) -> Result<f64, FeedError> {
+        if let ([index], TimeForm::Auto) = (self.columns.time.as_slice(), self.time.form()) {
+            // Seconds in one column, the common case: the cell's bytes straight to the fast
+            // cell parser (no joining, no UTF-8 check). Anything else takes the path below,
+            // which gives the same value for these cells. Callgrind, 2·10^5 sensor rows
+            // joined with 10^5 reference rows: 445 instructions per time cell by the path
+            // below, see the commit message for the figure with this one.
+            let cell = self.record.get(*index).unwrap_or(b"");
+            if let Some(seconds) = whole_cell::<f64>(&mut self.number, cell) {
+                if seconds.is_finite() {
+                    return Ok(seconds);
+                }
+            }
+        }
         let record = &self.record;
         let cells = self
             .columns
@@ -466,6 +476,27 @@ impl LogReader {
             Column::Temperature => &self.columns.temperature.as_ref().expect("present").1,
         };
         let cell = self.record.get(index).unwrap_or(b"");
+        if !self.decimal_comma {
+            // A plain number that is no numeric marker, the common case: parsed from the
+            // cell's bytes (no UTF-8 check, no trimming, no text-marker comparison). A
+            // cell the fast parser takes is a number for `str::parse`, so it can only
+            // match a text marker that is a number of the same value; with numeric
+            // markers declared, the cell's number is read in f64 (as the marker test
+            // below reads it, never narrowed) and one equal to a marker takes the path
+            // below. Callgrind (as in `time_cell`): 740 instructions per numeric cell by
+            // the path below.
+            if let Some(value) = whole_cell::<T>(&mut self.number, cell) {
+                let values = self.missing.values();
+                let no_marker = values.is_empty()
+                    || matches!(
+                        parse_cell::<f64>(&self.number, b'\n'),
+                        Some((wide, length)) if length == self.number.len() && !values.contains(&wide)
+                    );
+                if no_marker {
+                    return Ok(Some(value));
+                }
+            }
+        }
         let Ok(text) = std::str::from_utf8(cell) else {
             return Err(FeedError::BadRow {
                 location: self.location(line, index + 1),
@@ -524,6 +555,19 @@ impl LogReader {
                 ),
             }),
         }
+    }
+}
+
+/// A whole cell by the canonical reader's cell parser (bit for bit `str::parse` of the
+/// trimmed text), `number` holding the cell and a line end; `None` when the parser does not
+/// take it all.
+fn whole_cell<T: FeedFloat>(number: &mut Vec<u8>, cell: &[u8]) -> Option<T> {
+    number.clear();
+    number.extend_from_slice(cell);
+    number.push(b'\n');
+    match parse_cell::<T>(number, b'\n') {
+        Some((value, length)) if length == number.len() => Some(value),
+        _ => None,
     }
 }
 
@@ -680,6 +724,27 @@ mod tests {
         );
         assert_eq!(r.blank_rows, 1);
         assert_eq!(r.tally.column_total("s1"), 0);
+    }
+
+    #[test]
+    fn a_point_decimal_marker_is_matched_on_the_text_in_f32() {
+        // -9999.9 in f32 is no f64 marker; the cell's text is.
+        let layout = LogLayout {
+            missing: MissingMarkers::new(&["-9999.9", "-200"]).unwrap(),
+            ..LogLayout::default()
+        };
+        let text = "t,raw,ref\n0,-9999.9,-200.0\n1,-200.000001,5\n2,-2e2,7\n";
+        let mut r = reader(text, &layout).unwrap();
+        let mut row = LogRow::<f32>::default();
+        r.next_row(&mut row).unwrap().unwrap();
+        assert_eq!((row.raw[0], row.reference), (None, None));
+        r.next_row(&mut row).unwrap().unwrap();
+        assert_eq!((row.raw[0], row.reference), (Some(-200.0f32), Some(5.0)));
+        r.next_row(&mut row).unwrap().unwrap();
+        assert_eq!(row.raw[0], None);
+        assert_eq!(r.tally.by_column["raw"]["-9999.9"], 1);
+        assert_eq!(r.tally.by_column["raw"]["-200"], 1);
+        assert_eq!(r.tally.by_column["ref"]["-200"], 1);
     }
 
     #[test]

@@ -15,6 +15,7 @@ use steadycal_core::sample::Sample;
 use crate::feed::{FeedError, FeedFloat};
 use crate::field::join::{JoinTally, JoinedRow, Pairing, ReferenceRow, SensorRow, TimeJoin};
 use crate::field::missing::MissingTally;
+use crate::field::prefetch::Prefetch;
 use crate::field::reader::{LogReader, LogRow};
 
 /// A sample with its line and the bytes read so far (what the replay engine takes).
@@ -130,33 +131,53 @@ impl<R: FeedFloat> Iterator for LogSamples<R> {
     }
 }
 
-/// Sensor rows of a sensor log (missing raw cells counted and skipped).
-pub struct SensorRows<R> {
+/// Sensor rows of a sensor log (missing raw cells counted and skipped), each with the bytes
+/// read after it.
+struct SensorLog<R> {
     reader: LogReader,
     row: LogRow<R>,
     missing_raw: u64,
+}
+
+impl<R: FeedFloat> Iterator for SensorLog<R> {
+    type Item = (Result<SensorRow<R>, FeedError>, u64);
+
+    fn next(&mut self) -> Option<Self::Item> {
+        loop {
+            if let Err(error) = self.reader.next_row(&mut self.row)? {
+                return Some((Err(error), self.reader.bytes_read()));
+            }
+            let Some(raw) = self.row.raw.first().copied().flatten() else {
+                self.missing_raw += 1;
+                continue;
+            };
+            let row = SensorRow {
+                t: self.row.t,
+                raw,
+                temperature: self.row.temperature,
+                line: self.row.line,
+                index: self.row.index,
+            };
+            return Some((Ok(row), self.reader.bytes_read()));
+        }
+    }
+}
+
+/// The sensor rows of a sensor log, read and parsed ahead on their own thread (the sensor
+/// log is the long one; the join and the reference log stay on the consumer's thread).
+pub struct SensorRows<R: FeedFloat> {
+    rows: Prefetch<SensorLog<R>>,
+    /// Bytes of the sensor log read after the last row taken.
+    bytes: u64,
 }
 
 impl<R: FeedFloat> Iterator for SensorRows<R> {
     type Item = Result<SensorRow<R>, FeedError>;
 
     fn next(&mut self) -> Option<Self::Item> {
-        loop {
-            if let Err(error) = self.reader.next_row(&mut self.row)? {
-                return Some(Err(error));
-            }
-            let Some(raw) = self.row.raw.first().copied().flatten() else {
-                self.missing_raw += 1;
-                continue;
-            };
-            return Some(Ok(SensorRow {
-                t: self.row.t,
-                raw,
-                temperature: self.row.temperature,
-                line: self.row.line,
-                index: self.row.index,
-            }));
-        }
+        let (row, bytes) = self.rows.next()?;
+        self.bytes = bytes;
+        Some(row)
     }
 }
 
@@ -205,9 +226,12 @@ impl<R: FeedFloat> JoinedSamples<R> {
         tally: FieldTally,
     ) -> Self {
         let sensor = SensorRows {
-            reader: sensor,
-            row: LogRow::default(),
-            missing_raw: 0,
+            rows: Prefetch::new(SensorLog {
+                reader: sensor,
+                row: LogRow::default(),
+                missing_raw: 0,
+            }),
+            bytes: 0,
         };
         let reference = ReferenceRows {
             reader: reference,
@@ -222,10 +246,15 @@ impl<R: FeedFloat> JoinedSamples<R> {
 
     fn finish_counts(&mut self) {
         let (sensor, reference) = self.join.parts();
-        self.tally.missing_raw = sensor.missing_raw;
-        self.tally.missing = sensor.reader.tally.clone();
+        // The join has taken every sensor row when it ends, so the sensor log is back.
+        let mut blank_rows = reference.reader.blank_rows;
+        if let Some(sensor) = sensor.rows.finished() {
+            self.tally.missing_raw = sensor.missing_raw;
+            self.tally.missing = sensor.reader.tally.clone();
+            blank_rows += sensor.reader.blank_rows;
+        }
         self.tally.reference_missing = reference.reader.tally.clone();
-        self.tally.blank_rows = sensor.reader.blank_rows + reference.reader.blank_rows;
+        self.tally.blank_rows = blank_rows;
         self.tally.join = Some(self.join.tally().clone());
     }
 }
@@ -238,7 +267,7 @@ impl<R: FeedFloat> Iterator for JoinedSamples<R> {
             self.finish_counts();
             return None;
         };
-        let bytes = self.join.parts().0.reader.bytes_read();
+        let bytes = self.join.parts().0.bytes;
         match item {
             Err(error) => Some(FieldSample {
                 line: error.line().unwrap_or(0),
