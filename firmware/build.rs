@@ -231,6 +231,7 @@ fn read_feed(path: &PathBuf, limit: Option<usize>) -> Result<Vec<Sample<f32>>, S
             raw,
             reference,
             temperature,
+            averaged: 1,
         });
     }
     Ok(samples)

@@ -271,6 +271,7 @@ fn check_record<R: Real>(
             raw: R::from_f64(a),
             reference: options.0.then(|| R::from_f64(b)),
             temperature: options.1.then(|| R::from_f64(a)),
+            averaged: 1,
         }),
         _ => Record::Event(Event {
             seq,

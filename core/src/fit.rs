@@ -6,6 +6,12 @@
 //! Estimation*). One update is Bierman's observational update with measurement variance
 //! `β/w`, followed by the division of `D` by `β` that forgetting requires.
 //!
+//! A check that is the mean of `m` values (the `Averaging` of the `sample` module) has `m` times
+//! a single value's weight: measurement variance `β/(m·w)`. The weighted residual sum
+//! below then has the expectation of single values' residuals, so `σ²` (and everything
+//! scaled by it: the parameter covariance, the readings' uncertainty) stays the variance
+//! of one value, and each update counts as one sample in the effective count.
+//!
 //! # Invariants
 //! - `D` stays in `[floor, initial_variance]`: positive, so `P` is symmetric positive
 //!   definite by construction, and bounded, so a long stretch without excitation (a
@@ -36,12 +42,17 @@ pub struct FitConfig<R> {
 }
 
 /// The constants of one update derived from a [`FitConfig`]: `β`, `1/β` and the
-/// covariance ceiling. Fits that share a configuration (the ladder's rungs) take them once
-/// per check, held in registers, instead of each reading its own copy.
+/// covariance ceiling, and the factor of the measurement variance. Fits that share a
+/// configuration (the ladder's rungs) take them once per check, held in registers, instead
+/// of each reading its own copy.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub(crate) struct Forgetting<R> {
     /// `β`.
     pub beta: R,
+    /// `β/m`, the factor of the relative variance in the measurement variance of one
+    /// update: `β` for a single value, `β/m` for a check that is the mean of `m` values
+    /// (weight `m` times a single value's; see `Averaging` in the `sample` module).
+    pub measurement: R,
     /// `1/β`.
     pub inverse_beta: R,
     /// The initial variance, also the ceiling of the covariance diagonal.
@@ -54,8 +65,19 @@ impl<R: Real> Forgetting<R> {
     pub fn of(config: &FitConfig<R>) -> Self {
         Self {
             beta: config.forgetting,
+            measurement: config.forgetting,
             inverse_beta: R::ONE / config.forgetting,
             ceiling: config.initial_variance,
+        }
+    }
+
+    /// The same constants for a check whose variance is `inverse` (`1/m`) times a single
+    /// value's: the measurement factor `β·inverse` (exactly `β` for `inverse = 1`).
+    #[inline(always)]
+    pub fn averaged(self, inverse: R) -> Self {
+        Self {
+            measurement: self.beta * inverse,
+            ..self
         }
     }
 }
@@ -191,7 +213,8 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
     /// The update for a caller that has computed the a-priori `residual = y − xᵀθ` on the
     /// same state: `relative_variance` is `1/w`, the sample's variance relative to the
     /// fit's σ² (a positive value), and
-    /// `forgetting` holds this fit's `β`, `1/β` and ceiling (so that several fits fed the same
+    /// `forgetting` holds this fit's `β`, `1/β`, ceiling and measurement factor (`β/m`, see
+    /// [`Forgetting::averaged`]) (so that several fits fed the same
     /// check share that work; it must match the fit's own configuration).
     /// A non-finite regressor, residual or relative variance needs no check beforehand:
     /// it makes the new state non-finite, which the update refuses (leaving the fit as it
@@ -204,8 +227,9 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         relative_variance: R,
         forgetting: Forgetting<R>,
     ) -> Result<(), FitError> {
-        // Measurement variance β/w of Bierman's observational update.
-        let alpha0 = forgetting.beta * relative_variance;
+        // Measurement variance β/w of Bierman's observational update (β/(m·w) for the
+        // mean of m values).
+        let alpha0 = forgetting.measurement * relative_variance;
         // The loops run over the dimension in use; the common dimensions are written out
         // (the same operations in the same order, so the same bits). Bare-metal builds
         // leave the three-parameter form out: about 460 bytes of a board's flash, against
@@ -235,7 +259,7 @@ impl<R: Real, const P: usize> RecursiveFit<R, P> {
         relative_variance: R,
         forgetting: Forgetting<R>,
     ) -> Result<(), FitError> {
-        let alpha0 = forgetting.beta * relative_variance;
+        let alpha0 = forgetting.measurement * relative_variance;
         self.update_two(x, alpha0, residual, forgetting)
     }
 

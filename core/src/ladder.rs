@@ -22,6 +22,11 @@
 //! - The likelihood sums only take samples that every rung could use (level above the
 //!   origin, prediction above the origin), so the rungs are compared on the same data, and
 //!   only samples at or above the bottom of the working range (`level_floor`).
+//! - A check that is the mean of `m` values ([`Averaging`]) has weight `m` times a single
+//!   value's in every rung's fit, counts `m` times its squared transformed residual in the
+//!   likelihood sums (still one check in `N` and in `Σ ln u`), and is standardized by
+//!   `√(σ²·(1/(m·w(f)) + xᵀPx))`. With `m = 1` each factor is exactly 1: the same bits as
+//!   the arithmetic without it.
 //! - A rung only becomes active after it has led the active rung by the required lead at
 //!   every comparison (one each `decide_every` checks) over `switch_hold` checks; that is,
 //!   for `switch_hold` checks in a row. The required lead is `switch_margin·(1 + s)`, with
@@ -38,6 +43,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::fit::{FitConfig, Forgetting, RecursiveFit};
 use crate::real::Real;
+use crate::sample::Averaging;
 use crate::transform::{Rung, RUNG_COUNT};
 
 /// Settings of a [`PowerLadder`].
@@ -122,7 +128,8 @@ pub struct Assessment<R> {
     /// `raw − prediction`.
     pub residual: R,
     /// The residual standardized by the active rung's spread model at this level
-    /// (`residual / √(σ²·(1/w(f) + xᵀPx))`); `None` until the fit has a residual variance.
+    /// (`residual / √(σ²·(1/(m·w(f)) + xᵀPx))`, `m` the values the raw value is the mean
+    /// of); `None` until the fit has a residual variance.
     pub standardized: Option<R>,
 }
 
@@ -374,10 +381,17 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
     /// The active rung's view of a check before any fit changes: its a-priori prediction,
     /// residual and standardized residual (the same values [`PowerLadder::update`] reports
     /// in its [`LadderStep`]). Changes nothing; used by the screen to exclude spikes from
-    /// every fit.
+    /// every fit. `inverse` is `1/m` for a raw value that is the mean of `m` values
+    /// ([`Averaging::inverse`]; 1 for a single value).
     #[inline]
-    pub fn assess(&self, config: &LadderConfig<R>, x: &[R; P], raw: R) -> Assessment<R> {
-        let (prediction, standardized) = self.standardized_on(config, self.active, x, raw);
+    pub fn assess(
+        &self,
+        config: &LadderConfig<R>,
+        x: &[R; P],
+        raw: R,
+        inverse: R,
+    ) -> Assessment<R> {
+        let (prediction, standardized) = self.standardized_on(config, self.active, x, raw, inverse);
         Assessment {
             prediction,
             residual: raw - prediction,
@@ -386,7 +400,8 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
     }
 
     /// A rung's a-priori prediction and standardized residual
-    /// `(raw − f) / √(σ²·(1/w(f) + xᵀPx))` for a check, without changing anything.
+    /// `(raw − f) / √(σ²·(inverse/w(f) + xᵀPx))` for a check, without changing anything,
+    /// with `inverse` the check's `1/m` ([`Averaging::inverse`]; 1 for a single value).
     /// The standardized residual is `None` until that rung's fit has a residual variance.
     #[inline(always)]
     pub fn standardized_on(
@@ -395,11 +410,12 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         rung: Rung,
         x: &[R; P],
         raw: R,
+        inverse: R,
     ) -> (R, Option<R>) {
         let fit = &self.rungs[rung.index()].fit;
         let prediction = fit.predict(x);
         let variance = fit.residual_variance();
-        let relative = Self::relative_variance(config, rung, prediction);
+        let relative = Self::relative_variance(config, rung, prediction) * inverse;
         let spread = variance * (relative + fit.leverage(x));
         let standardized = if fit.updates() as usize > fit.dim() && spread > R::ZERO {
             Some((raw - prediction) / spread.sqrt())
@@ -413,7 +429,8 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
     /// spread model that has one (an outlier whatever the scatter model, not evidence for
     /// another rung). A rung is credible while its profile log-likelihood is within
     /// `switch_margin` of the best (a likelihood-ratio confidence set for λ). Only the active
-    /// rung is computed unless its residual is beyond the bound.
+    /// rung is computed unless its residual is beyond the bound. `inverse` as for
+    /// [`PowerLadder::standardized_on`].
     pub fn beyond_on_every_rung(
         &self,
         config: &LadderConfig<R>,
@@ -421,6 +438,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         x: &[R; P],
         raw: R,
         bound: R,
+        inverse: R,
     ) -> bool {
         let beyond = |z: Option<R>| matches!(z, Some(z) if !(z.abs() <= bound));
         if !beyond(active) {
@@ -440,7 +458,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             .into_iter()
             .filter(|&rung| rung != self.active && credible(rung))
             .all(|rung| {
-                let (_, z) = self.standardized_on_out_of_line(config, rung, x, raw);
+                let (_, z) = self.standardized_on_out_of_line(config, rung, x, raw, inverse);
                 z.is_none() || beyond(z)
             })
     }
@@ -454,25 +472,29 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
         rung: Rung,
         x: &[R; P],
         raw: R,
+        inverse: R,
     ) -> (R, Option<R>) {
-        self.standardized_on(config, rung, x, raw)
+        self.standardized_on(config, rung, x, raw, inverse)
     }
 
-    /// One check: `x` the regressors of the reference, `raw` the sensor output.
-    /// The caller has screened `raw` and `x` to be finite.
+    /// One check of a single value: `x` the regressors of the reference, `raw` the sensor
+    /// output. The caller has screened `raw` and `x` to be finite.
     pub fn update(&mut self, config: &LadderConfig<R>, x: &[R; P], raw: R) -> LadderStep<R> {
-        let assessment = self.assess(config, x, raw);
-        self.update_assessed(config, x, raw, assessment)
+        let assessment = self.assess(config, x, raw, R::ONE);
+        self.update_assessed(config, x, raw, assessment, Averaging::SINGLE)
     }
 
     /// [`PowerLadder::update`] with the assessment already made by
-    /// [`PowerLadder::assess`] on the same state, `x` and `raw` (saves computing it twice).
+    /// [`PowerLadder::assess`] on the same state, `x`, `raw` and `averaging.inverse`
+    /// (saves computing it twice), for a raw value that is the mean of `averaging`'s `m`
+    /// values.
     pub fn update_assessed(
         &mut self,
         config: &LadderConfig<R>,
         x: &[R; P],
         raw: R,
         assessment: Assessment<R>,
+        averaging: Averaging<R>,
     ) -> LadderStep<R> {
         let Assessment {
             prediction,
@@ -502,7 +524,7 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             transformed: raw_transforms,
             predictions_positive: true,
             log_rung_log_level: None,
-            forgetting: Forgetting::of(&config.fit),
+            forgetting: Forgetting::of(&config.fit).averaged(averaging.inverse),
             level_floor: config.level_floor,
         };
         // Every rung's fit has the ladder's dimension; the straight line (two parameters)
@@ -528,14 +550,16 @@ impl<R: Real, const P: usize> PowerLadder<R, P> {
             let beta = config.fit.forgetting;
             self.sample_weight = beta * self.sample_weight + R::ONE;
             self.log_level_sum = beta * self.log_level_sum + ln_raw;
-            // Written out (no loop): the five residuals stay in registers.
+            // Written out (no loop): the five residuals stay in registers. The mean of m
+            // values counts its square m times (m = 1: the same bits).
             let [a, b, c, d, e] = pass.transformed;
+            let m = averaging.count;
             let [ra, rb, rc, rd, re] = &mut self.rungs;
-            ra.transformed_sse = beta * ra.transformed_sse + a * a;
-            rb.transformed_sse = beta * rb.transformed_sse + b * b;
-            rc.transformed_sse = beta * rc.transformed_sse + c * c;
-            rd.transformed_sse = beta * rd.transformed_sse + d * d;
-            re.transformed_sse = beta * re.transformed_sse + e * e;
+            ra.transformed_sse = beta * ra.transformed_sse + m * (a * a);
+            rb.transformed_sse = beta * rb.transformed_sse + m * (b * b);
+            rc.transformed_sse = beta * rc.transformed_sse + m * (c * c);
+            rd.transformed_sse = beta * rd.transformed_sse + m * (d * d);
+            re.transformed_sse = beta * re.transformed_sse + m * (e * e);
             self.since_decision = self.since_decision.saturating_add(1);
             if self.since_decision >= config.decide_every.max(1) {
                 switch = self.decide(config);

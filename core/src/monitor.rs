@@ -8,6 +8,28 @@
 //! (the classical calibration standard error generalized through the transform by the delta
 //! method: `Var(x̂) = σ²·(1/w(f) + xᵀPx) / b²`, with `w` the rung's weight and `b` the slope).
 //!
+//! # Averaged samples
+//! A sample whose raw value is the mean of `m` values ([`Sample::averaged`]) has `1/m` of
+//! a single value's variance; where each use of a check's variance stands:
+//! - every rung's fit weights it `m` times a single value, and the likelihood sums count
+//!   its squared transformed residual `m` times ([`crate::ladder`]); the fits' `σ²` stays
+//!   the variance of one value;
+//! - its standardized residual ([`CheckDetail::standardized`]) divides by
+//!   `√(σ²·(1/(m·w(f)) + xᵀPx))`: the spike screen (on every rung), the mean-adequacy
+//!   check, the bias CUSUM and the spread-jump CUSUM all take it, so they see unit
+//!   variance whatever `m`;
+//! - the spread profile takes `residual·√m`, the residual on a single value's scale: the
+//!   profile, its exponent and Koenker statistic, and so the rung evidence, describe
+//!   single values;
+//! - the drift test, the sensor's baseline and the readings use the fit's `σ²` and
+//!   parameter covariance, already on a single value's scale; a reading of a mean of `m`
+//!   values gets `Var(x̂) = σ²·(1/(m·w(f)) + xᵀPx) / b²`, a single value's is unchanged;
+//! - the screen (range, stuck signal, reference gap) and the no-response window look at
+//!   raw values and times only: unchanged.
+//!
+//! With `m = 1` every factor is exactly 1, so a single value computes the same bits as
+//! without the count ([`crate::sample::Averaging`]).
+//!
 //! # Invariants
 //! - `push` never panics and never stores a NaN: a non-finite raw, reference or temperature
 //!   is rejected (and reported) before it touches any state.
@@ -355,7 +377,10 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         outcome.flags.insert(Flags::CHECK);
         let x: [R; P] = self.config.basis.regressors(reference, temperature);
         let warmed_up = self.ladder.warmed_up(&self.ladder_config);
-        let assessment = self.ladder.assess(&self.ladder_config, &x, sample.raw);
+        let averaging = sample.averaging();
+        let assessment = self
+            .ladder
+            .assess(&self.ladder_config, &x, sample.raw, averaging.inverse);
         let spike_bound = self.config.detect.screen.spike_bound;
         let beyond = warmed_up
             && self.ladder.beyond_on_every_rung(
@@ -364,15 +389,16 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
                 &x,
                 sample.raw,
                 spike_bound,
+                averaging.inverse,
             );
         if warmed_up && self.detectors.is_spike(&self.config.detect.screen, beyond) {
             self.reject(sample, RejectReason::Spike, outcome);
             return;
         }
         let rung = self.ladder.active();
-        let step = self
-            .ladder
-            .update_assessed(&self.ladder_config, &x, sample.raw, assessment);
+        let step =
+            self.ladder
+                .update_assessed(&self.ladder_config, &x, sample.raw, assessment, averaging);
         self.counters.checks += 1;
         outcome.detail = Detail::Check(CheckDetail {
             prediction: step.prediction,
@@ -393,12 +419,11 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         }
         let level = step.prediction - self.ladder_config.level_origin;
         if warmed_up {
+            // On a single value's scale (see the module docs).
+            let residual = step.residual * averaging.root;
             let bin = match step.log_level {
-                Some(log_level) => {
-                    self.spread
-                        .push_binned_with_log(level, log_level, step.residual)
-                }
-                None => self.spread.push_binned(level, step.residual),
+                Some(log_level) => self.spread.push_binned_with_log(level, log_level, residual),
+                None => self.spread.push_binned(level, residual),
             };
             if let (Some(bin), Some(z)) = (bin, step.standardized) {
                 self.mean_check.push(bin, z);
@@ -571,7 +596,7 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     }
 
     fn read(&mut self, sample: &Sample<R>, temperature: Option<R>, outcome: &mut Outcome<R>) {
-        match self.reading(sample.raw, temperature) {
+        match self.reading_of_mean(sample.raw, temperature, sample.averaged) {
             Some(reading) => {
                 self.counters.readings += 1;
                 outcome.detail = Detail::Reading(reading);
@@ -588,6 +613,13 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
     /// The calibrated reading for a raw value (inverse prediction through the active fit),
     /// or `None` before the fit is determined or where the calibration cannot be inverted.
     pub fn reading(&self, raw: R, temperature: Option<R>) -> Option<Reading<R>> {
+        self.reading_of_mean(raw, temperature, 1)
+    }
+
+    /// [`Monitor::reading`] for a raw value that is the mean of `averaged` values (its
+    /// relative variance divided by `averaged`; 0 and 1 are a single value).
+    #[inline(always)]
+    fn reading_of_mean(&self, raw: R, temperature: Option<R>, averaged: u32) -> Option<Reading<R>> {
         let fit = self.ladder.active_fit();
         if (fit.updates() as usize) <= fit.dim() {
             return None;
@@ -599,8 +631,11 @@ impl<R: Real, const P: usize, const BINS: usize, const Q: usize> Monitor<R, P, B
         let prediction = fit.predict(&x);
         let slope = basis.slope(&theta, value);
         let rung = self.ladder.active();
-        let relative =
+        let mut relative =
             PowerLadder::<R, P>::relative_variance(&self.ladder_config, rung, prediction);
+        if averaged > 1 {
+            relative /= R::from_u32(averaged);
+        }
         let variance = fit.residual_variance() * (relative + fit.leverage(&x)) / (slope * slope);
         let standard_uncertainty = variance.sqrt();
         if !(value.is_finite() && standard_uncertainty.is_finite()) {
@@ -629,3 +664,6 @@ pub use config::{ConfigError, MonitorConfig};
 
 #[cfg(test)]
 mod tests;
+
+#[cfg(test)]
+mod averaging_tests;

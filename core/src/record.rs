@@ -258,6 +258,7 @@ mod tests {
             raw: f64::MAX,
             reference: Some(f64::MAX),
             temperature: Some(f64::MAX),
+            averaged: 1,
         });
         let mut raw = [0u8; 128];
         let len = postcard::to_slice(&sample, &mut raw).unwrap().len();
@@ -325,7 +326,7 @@ mod tests {
 
         #[test]
         fn samples_round_trip(seq in any::<u64>(), t in any::<f64>(), raw in any::<f32>(), reference in any::<Option<f32>>()) {
-            let record = Record::Sample(Sample { seq, t, raw, reference, temperature: None });
+            let record = Record::Sample(Sample { seq, t, raw, reference, temperature: None, averaged: 1 });
             let mut frame = [0u8; MAX_FRAME_LEN];
             let len = encode_frame(&record, &mut frame).unwrap();
             let back = decode_frame::<f32>(&mut frame[..len - 1]).unwrap();

@@ -2,6 +2,10 @@
 //!
 //! # Invariants
 //! - A `Sample` may carry any value, NaN and ±∞ included; the monitor screens it.
+//! - A `Sample`'s [`Sample::averaged`] count is at least 1 as the monitor reads it (0 is
+//!   read as 1): every constructor makes 1, [`Sample::averaged_over`] sets another.
+//!   A sample of count 1 takes exactly the arithmetic of a sample without the count (see
+//!   [`Averaging`]).
 //! - An [`Outcome`] with a [`Reading`] always has finite value and uncertainties.
 //! - An [`Outcome`] carries a [`CheckDetail`] exactly when its sample was a check the
 //!   monitor fitted (flag `CHECK` without `REJECTED`); a push makes a reading or a check's
@@ -11,6 +15,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::real::Real;
 use crate::transform::Rung;
+use crate::wire::{Reader, Wire, Writer};
 
 /// One sample of one channel.
 ///
@@ -20,6 +25,9 @@ use crate::transform::Rung;
 /// assert!(check.reference.is_some());
 /// let reading = Sample::reading(8, 80.0, 55.1f32);
 /// assert!(reading.reference.is_none());
+/// // A check whose raw value is the mean of four sensor values.
+/// let averaged = Sample::check(9, 90.0, 101.1f32, 100.0).averaged_over(4);
+/// assert_eq!(averaged.averaged, 4);
 /// ```
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Sample<R> {
@@ -33,6 +41,17 @@ pub struct Sample<R> {
     pub reference: Option<R>,
     /// Temperature, when the channel measures it.
     pub temperature: Option<R>,
+    /// How many raw values `raw` is the mean of: 1 for a single value (0 is read as 1).
+    /// The variance of the mean is `1/averaged` of a single value's, which the monitor
+    /// accounts for (see [`Averaging`]). Not in the device log (see the crate's
+    /// ARCHITECTURE.md, open questions): a record decodes with 1.
+    #[serde(skip, default = "single_value")]
+    pub averaged: u32,
+}
+
+/// The count of a sample that is one value (serde's default for [`Sample::averaged`]).
+fn single_value() -> u32 {
+    1
 }
 
 impl<R: Real> Sample<R> {
@@ -44,6 +63,7 @@ impl<R: Real> Sample<R> {
             raw,
             reference: Some(reference),
             temperature: None,
+            averaged: 1,
         }
     }
 
@@ -55,6 +75,7 @@ impl<R: Real> Sample<R> {
             raw,
             reference: None,
             temperature: None,
+            averaged: 1,
         }
     }
 
@@ -62,6 +83,71 @@ impl<R: Real> Sample<R> {
     pub fn with_temperature(mut self, temperature: R) -> Self {
         self.temperature = Some(temperature);
         self
+    }
+
+    /// The same sample with its raw value the mean of `count` raw values (0 is read as 1).
+    /// Its temperature and reference are taken as they are (a mean of each, when the
+    /// caller averaged them too).
+    pub fn averaged_over(mut self, count: u32) -> Self {
+        self.averaged = count;
+        self
+    }
+
+    /// The variance factors of this sample's averaging.
+    #[inline(always)]
+    pub fn averaging(&self) -> Averaging<R> {
+        Averaging::of(self.averaged)
+    }
+}
+
+/// What averaging `m` raw values does to a raw value's variance, in the three forms the
+/// monitor uses: the mean of `m` independent values with variance `σ²` has variance
+/// `σ²/m`.
+///
+/// # The rule
+/// For a check whose raw value is the mean of `m` values (see [`Sample::averaged`]):
+/// - its weight in every rung's fit is `m` times a single value's (relative variance
+///   `1/(m·w(f))`), and its squared transformed residual counts `m` times in the rungs'
+///   likelihood sums (a weighted likelihood with known relative weights: the profile
+///   `σ²` is `Σ mᵢ·rᵢ²/N`, `N` the count of checks);
+/// - its residual is standardized by `√(σ²·(1/(m·w(f)) + xᵀPx))`, so the detectors, the
+///   spike screen and the mean-adequacy check see unit variance whatever `m`;
+/// - the spread profile takes `residual·√m`, a residual on a single value's scale, so the
+///   profile (and so every reading's uncertainty) describes single values;
+/// - a reading of such a mean gets the variance `σ²·(1/(m·w(f)) + xᵀPx)/b²`.
+///
+/// With `m = 1` every factor is exactly 1 and every product with it is the other factor
+/// bit for bit, so a single-value sample computes what it computed without the count.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Averaging<R> {
+    /// `m`.
+    pub count: R,
+    /// `1/m`: the variance of the mean relative to a single value's.
+    pub inverse: R,
+    /// `√m`: turns a residual of the mean into one on a single value's scale.
+    pub root: R,
+}
+
+impl<R: Real> Averaging<R> {
+    /// One value (`m = 1`): every factor 1.
+    pub const SINGLE: Self = Averaging {
+        count: R::ONE,
+        inverse: R::ONE,
+        root: R::ONE,
+    };
+
+    /// The factors of a mean of `count` values (`count` ≤ 1 is one value).
+    #[inline(always)]
+    pub fn of(count: u32) -> Self {
+        if count <= 1 {
+            return Self::SINGLE;
+        }
+        let m = R::from_u32(count);
+        Averaging {
+            count: m,
+            inverse: R::ONE / m,
+            root: m.sqrt(),
+        }
     }
 }
 
@@ -88,7 +174,9 @@ pub struct CheckDetail<R> {
     /// `raw − prediction`.
     pub residual: R,
     /// The residual standardized by that rung's spread model at this level, including the
-    /// uncertainty of the prediction; `None` until the fit has a residual variance.
+    /// uncertainty of the prediction, for the mean of [`Sample::averaged`] values
+    /// (`residual / √(σ²·(1/(m·w(f)) + xᵀPx))`); `None` until the fit has a residual
+    /// variance.
     pub standardized: Option<R>,
     /// The rung in use when the check arrived (the one that made the prediction).
     pub rung: Rung,
@@ -118,7 +206,7 @@ impl Flags {
     pub const EVENTS_DROPPED: Flags = Flags(1 << 7);
     /// The active rung is not yet backed by the evidence: the warm-up is not over, or
     /// another rung leads but has not yet won (see
-    /// [`crate::ladder::PowerLadder::provisional`]). A reading is made on the active rung
+    /// `PowerLadder::provisional` of the `ladder` module). A reading is made on the active rung
     /// all the same.
     pub const PROVISIONAL: Flags = Flags(1 << 8);
 
@@ -196,5 +284,24 @@ pub enum Detail<R> {
     Check(CheckDetail<R>),
 }
 
-// The snapshot and device-log codec of this module's types (bytes: see `crate::wire`).
-crate::wire::wire_struct!(impl[R: Real] Sample<R> { seq, t, raw, reference, temperature });
+// The device-log codec of a sample (bytes: see `crate::wire`): the fields serde writes,
+// so `averaged` is left out and decodes as 1, as serde's default gives.
+impl<R: Real> Wire for Sample<R> {
+    fn put(&self, w: &mut Writer<'_>) {
+        self.seq.put(w);
+        self.t.put(w);
+        self.raw.put(w);
+        self.reference.put(w);
+        self.temperature.put(w);
+    }
+    fn get(r: &mut Reader<'_>) -> Self {
+        Sample {
+            seq: Wire::get(r),
+            t: Wire::get(r),
+            raw: Wire::get(r),
+            reference: Wire::get(r),
+            temperature: Wire::get(r),
+            averaged: 1,
+        }
+    }
+}

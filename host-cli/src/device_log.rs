@@ -134,6 +134,7 @@ fn convert_record<S: Real, R: Real>(record: Record<S>) -> Record<R> {
             raw: convert(s.raw),
             reference: s.reference.map(convert),
             temperature: s.temperature.map(convert),
+            averaged: s.averaged,
         }),
         Record::Event(e) => Record::Event(Event {
             seq: e.seq,

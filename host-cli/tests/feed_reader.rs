@@ -201,6 +201,7 @@ mod reference {
                         raw,
                         reference,
                         temperature,
+                        averaged: 1,
                     }))
                 })();
                 match row {

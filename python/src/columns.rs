@@ -110,6 +110,7 @@ impl BatchColumns {
             raw: R::from_f64(self.raw.value(i)),
             reference: optional(&self.reference),
             temperature: optional(&self.temperature),
+            averaged: 1,
         })
     }
 }

@@ -86,6 +86,7 @@ fn push_one<'py, R: Column>(
         raw: R::from_f64(raw),
         reference: reference.map(R::from_f64),
         temperature: temperature.map(R::from_f64),
+        averaged: 1,
     };
     let mut events = Vec::new();
     let outcome = engine

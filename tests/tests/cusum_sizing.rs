@@ -147,6 +147,7 @@ fn the_whole_monitor_at_the_derived_h_signals_at_the_budgeted_rate() {
             raw: row.raw as f32,
             reference: row.reference.map(|r| r as f32),
             temperature: None,
+            averaged: 1,
         });
         while monitor.pop_event().is_some() {}
     }

@@ -60,6 +60,7 @@ fn sample(seq: usize, row: &Row) -> Sample<f32> {
         raw: row.raw as f32,
         reference: row.reference.map(|r| r as f32),
         temperature: None,
+        averaged: 1,
     }
 }
 

@@ -78,7 +78,7 @@ fn a_fitted_check_carries_what_its_rung_predicted() {
         let raw = 0.5 + 2.0 * reference + 0.01 * (((i * 7919) % 13) as f64 - 6.0);
         let sample = Sample::check(i, i as f64, raw, reference);
         let x: [f64; 3] = monitor.config.basis.regressors(reference, None);
-        let expected = monitor.ladder.assess(&monitor.ladder_config, &x, raw);
+        let expected = monitor.ladder.assess(&monitor.ladder_config, &x, raw, 1.0);
         let rung = monitor.rung();
         let outcome = monitor.push(&sample);
         let check = outcome.check().expect("a fitted check has its detail");

@@ -270,6 +270,7 @@ impl ArrowColumns {
                 raw: R::from_f64(raw_value),
                 reference: reference.map(R::from_f64),
                 temperature: temperature.map(R::from_f64),
+                averaged: 1,
             });
             out.lines.push(row);
         }

@@ -245,6 +245,7 @@ impl<R: Read> CsvFeed<R> {
             raw: row.raw,
             reference: row.reference,
             temperature: row.temperature,
+            averaged: 1,
         })
     }
 
@@ -445,6 +446,7 @@ impl<R: Read> CsvFeed<R> {
             raw,
             reference,
             temperature,
+            averaged: 1,
         }))
     }
 }

@@ -121,6 +121,7 @@ impl<R: FeedFloat> Iterator for LogSamples<R> {
                 raw,
                 reference: self.row.reference,
                 temperature: self.row.temperature,
+                averaged: 1,
             };
             return Some(FieldSample {
                 next: Ok(sample),
@@ -281,14 +282,18 @@ impl<R: FeedFloat> Iterator for JoinedSamples<R> {
                 temperature,
                 line,
                 index,
+                samples,
                 ..
             }) => {
+                // An averaged check keeps its count: the monitor weighs it as the mean of
+                // that many sensor samples.
                 let sample = Sample {
                     seq: index,
                     t,
                     raw,
                     reference,
                     temperature,
+                    averaged: samples,
                 };
                 Some(FieldSample {
                     next: Ok(sample),

@@ -256,6 +256,7 @@ mod tests {
                 raw,
                 reference: Some(raw),
                 temperature: None,
+                averaged: 1,
             };
             lines.extend(channel.push(sample, true).unwrap().lines);
         }

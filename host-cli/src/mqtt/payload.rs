@@ -188,6 +188,7 @@ fn parse_json<R: FeedFloat>(payload: &[u8], names: &ColumnNames) -> Result<Parse
             raw,
             reference,
             temperature,
+            averaged: 1,
         },
         timed: t.is_some(),
         channel,
