@@ -287,6 +287,7 @@ mod tests {
             raw: f64::NAN,
             reference: None,
             temperature: None,
+            averaged: 1,
         };
         let mut lines = channel.push(sample, true).unwrap().lines;
         let sample = Sample {
